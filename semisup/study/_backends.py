@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import logging
 import os
+import sys
 from collections.abc import Callable, Iterable
 from typing import Any
 
@@ -25,13 +26,10 @@ _WORKER_CTX: CellContext | None = None
 def _one_thread() -> None:
     """One BLAS / torch thread per worker: parallelism comes from running cells side by side."""
     for var in ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
-        os.environ.setdefault(var, "1")
-    try:
-        import torch
-
+        os.environ[var] = "1"  # read by torch and BLAS when they load in this worker
+    torch = sys.modules.get("torch")
+    if torch is not None:
         torch.set_num_threads(1)
-    except ImportError:  # pragma: no cover  (torch is a dependency; keep workers alive anyway)
-        pass
 
 
 def _dumps(obj: Any) -> bytes:
@@ -59,8 +57,18 @@ def _run_in_worker(cell: Cell) -> dict[str, Any]:
 
 
 def _run_serial(ctx: CellContext, cells: list[Cell], on_result: Callable[[dict], None]) -> None:
-    for cell in cells:
-        on_result(run_cell(ctx, cell))
+    """In this process, with the same one-thread limits as a worker (same numbers, and tiny
+    fits are faster without BLAS threads)."""
+    torch = sys.modules.get("torch")
+    before = torch.get_num_threads() if torch is not None else None
+    if torch is not None:
+        torch.set_num_threads(1)
+    try:
+        for cell in cells:
+            on_result(run_cell(ctx, cell))
+    finally:
+        if torch is not None:
+            torch.set_num_threads(before)
 
 
 def _run_pool(

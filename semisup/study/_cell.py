@@ -7,6 +7,7 @@ same cell gives the same numbers on any worker of any backend.
 from __future__ import annotations
 
 import logging
+import sys
 import time
 import traceback
 import warnings
@@ -77,7 +78,21 @@ def _unlabeled_rows(ctx: CellContext, draw: np.ndarray, seed: int) -> np.ndarray
 
 
 def run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
-    """Run one cell and return its store row; exceptions become ``failed`` rows."""
+    """Run one cell and return its store row; exceptions become ``failed`` rows.
+
+    BLAS / OpenMP pools are limited to one thread while the cell runs, so a cell gives the same
+    numbers in this process, a pool worker or a Dask worker.
+    """
+    from threadpoolctl import threadpool_limits
+
+    torch = sys.modules.get("torch")  # loaded when a method or the coordinator needed it
+    if torch is not None and torch.get_num_threads() != 1:
+        torch.set_num_threads(1)
+    with threadpool_limits(limits=1):
+        return _run_cell(ctx, cell)
+
+
+def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
     from ..methods import MethodUnavailable
 
     start = time.perf_counter()

@@ -148,7 +148,8 @@ def _make_orders(spec, features, y, pool_idx, budgets, strategies):
     orders: dict[tuple[str, int], np.ndarray] = {}
     for strategy in strategies:
         for repeat in range(spec.repeats):
-            seed = derive_seed(spec.seed, "draw", strategy, repeat)
+            # Same seed for every strategy: uncertainty starts from the random draw.
+            seed = derive_seed(spec.seed, "draw", repeat)
             order, _ = acquisition_order(strategy, Z_pool, y_pool, budgets, seed=seed,
                                          proba_fn=None)
             orders[(strategy, repeat)] = order
