@@ -82,6 +82,7 @@ class DataCard:
     def to_markdown(self) -> str:
         """The card as Markdown."""
         name = Path(self.source).name
+        id_text = f"`{self.id_column}`" if self.id_column else "none (row number)"
         lines = [f"# Data card: {name}", "", f"> {self.caution}", ""]
         lines += [
             "## Source", "",
@@ -92,7 +93,7 @@ class DataCard:
             f"| rows | {self.n_rows:,} |",
             f"| columns | {self.n_columns:,} |",
             f"| label column | `{self.label_column}` |",
-            f"| id column | {('`' + self.id_column + '`') if self.id_column else 'none (row number)'} |",
+            f"| id column | {id_text} |",
             f"| encoded features | {self.n_encoded_features:,} |",
             "",
             "## Columns by kind", "",
@@ -317,7 +318,7 @@ def make_card(
     labeled = y != UNLABELED
     n_labeled = int(labeled.sum())
     counts = np.bincount(y[labeled], minlength=dataset.n_classes)
-    class_counts = {name: int(c) for name, c in zip(dataset.class_names, counts)}
+    class_counts = {name: int(c) for name, c in zip(dataset.class_names, counts, strict=True)}
     ratio = float(counts.max() / max(counts.min(), 1))
     if ratio >= IMBALANCE_RATIO:
         small = dataset.class_names[int(counts.argmin())]

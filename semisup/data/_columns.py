@@ -157,7 +157,7 @@ def prepare_columns(
     label_column: str,
     id_column: str | None = None,
     overrides: Mapping[str, str] | None = None,
-    where: Where = Where(),
+    where: Where | None = None,
 ) -> tuple[pd.DataFrame, list[str]]:
     """Check every feature column and turn numbers written as text into numbers.
 
@@ -170,6 +170,7 @@ def prepare_columns(
         number styles, a column declared numeric that is not.
     """
     overrides = dict(overrides or {})
+    where = where or Where()
     notes: list[str] = []
     columns: dict[str, pd.Series] = {}
     for column in frame.columns:

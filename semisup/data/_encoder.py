@@ -7,7 +7,6 @@ from collections.abc import Mapping
 
 import numpy as np
 import pandas as pd
-from pandas.api import types as ptypes
 from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.utils.validation import check_is_fitted
 
@@ -209,7 +208,8 @@ class TableEncoder(TransformerMixin, BaseEstimator):
                 f"--kind {column}=drop (or text) or group its values first"
             )
         # Most frequent first, ties by level name so the order is the same on every run.
-        order = sorted(zip(counts.index.astype(str), counts.to_numpy()), key=lambda t: (-t[1], t[0]))
+        pairs = zip(counts.index.astype(str), counts.to_numpy(), strict=True)
+        order = sorted(pairs, key=lambda t: (-t[1], t[0]))
         has_missing = bool(text.isna().any())
         room = int(self.max_levels) - 1 - int(has_missing)  # one column for "(other)"
         kept = [level for level, count in order if count >= int(self.min_level_count)][:room]

@@ -40,7 +40,7 @@ def encode_labels(
     *,
     column: str,
     unlabeled_markers: Sequence[str] = (),
-    where: Where = Where(),
+    where: Where | None = None,
 ) -> tuple[np.ndarray, list[str], list[str]]:
     """Turn a label column into ``(y, class_names, notes)``.
 
@@ -51,6 +51,7 @@ def encode_labels(
     Raises DataError when no row is labeled or only one class is; warns (DataWarning) about a
     class with a single labeled row and labels that differ only in case or white space.
     """
+    where = where or Where()
     text = as_text(labels)
     present = text.notna().to_numpy().copy()
     notes: list[str] = []

@@ -69,7 +69,8 @@ def _normalise_encoding(path: Path, encoding: str | None) -> str:
     return "utf-8-sig" if codec.name == "utf-8" else codec.name
 
 
-def _decode_error(path: Path, encoding: str, exc: UnicodeDecodeError, offset: int = 0) -> DataError:
+def _decode_error(path: Path, encoding: str, exc: UnicodeDecodeError,
+                  offset: int = 0) -> DataError:
     bad = exc.object[exc.start:exc.start + 1].hex() if exc.object else "??"
     label = "utf-8" if encoding == "utf-8-sig" else encoding
     return DataError(
