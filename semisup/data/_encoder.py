@@ -98,22 +98,35 @@ class TableEncoder(TransformerMixin, BaseEstimator):
         tags.input_tags.allow_nan = True
         tags.input_tags.categorical = True
         tags.input_tags.string = True
+        tags.transformer_tags.preserves_dtype = ["float32"]  # output is always float32
         return tags
 
     # -- helpers -------------------------------------------------------------------------
     @staticmethod
     def _as_frame(X) -> pd.DataFrame:
         if isinstance(X, pd.DataFrame):
-            return X
-        if isinstance(X, pd.Series):
-            return X.to_frame()
-        array = np.asarray(X)
-        if array.ndim == 1:
-            raise ValueError("TableEncoder expects a 2-D table (n_samples, n_columns); got a "
-                             "1-D array, reshape it with .reshape(-1, 1)")
-        if array.ndim != 2:
-            raise ValueError(f"TableEncoder expects a 2-D table, got {array.ndim} dimensions")
-        return pd.DataFrame(array, columns=[f"x{i}" for i in range(array.shape[1])])
+            frame = X
+        elif isinstance(X, pd.Series):
+            frame = X.to_frame()
+        else:
+            if hasattr(X, "toarray") or hasattr(X, "tocsr"):
+                raise TypeError("TableEncoder does not accept sparse input; pass a dense "
+                                "DataFrame or array")
+            array = np.asarray(X)
+            if array.ndim == 1:
+                raise ValueError("TableEncoder expects a 2-D table (n_samples, n_columns); got "
+                                 "a 1-D array. Reshape your data with .reshape(-1, 1)")
+            if array.ndim != 2:
+                raise ValueError(f"TableEncoder expects a 2-D table, got {array.ndim} "
+                                 "dimensions")
+            frame = pd.DataFrame(array, columns=[f"x{i}" for i in range(array.shape[1])])
+        if any(np.issubdtype(np.dtype(d), np.complexfloating) for d in frame.dtypes
+               if isinstance(d, np.dtype)):
+            raise ValueError("Complex data not supported by TableEncoder")
+        if frame.shape[1] == 0:
+            raise ValueError(f"0 feature(s) (shape=({frame.shape[0]}, 0)) while a minimum of 1 "
+                             "is required by TableEncoder")
+        return frame
 
     def _check_params(self) -> None:
         if int(self.min_level_count) < 1:
@@ -126,8 +139,9 @@ class TableEncoder(TransformerMixin, BaseEstimator):
         """Learn kinds, medians, scales and levels from a DataFrame."""
         self._check_params()
         frame = self._as_frame(X)
-        if frame.shape[0] == 0:
-            raise ValueError("TableEncoder needs at least 1 row to fit; got 0 rows")
+        if frame.shape[0] < 2:
+            raise ValueError(f"TableEncoder needs at least 2 rows to fit; got n_samples = "
+                             f"{frame.shape[0]}")
         given = dict(self.kinds or {})
         missing_given = [c for c in frame.columns if c not in given]
         inferred = infer_column_kinds(frame[missing_given]) if missing_given else {}
@@ -228,6 +242,9 @@ class TableEncoder(TransformerMixin, BaseEstimator):
         """Encode a DataFrame with the fitted columns; returns float32 ``(n_rows, n_out)``."""
         check_is_fitted(self, "blocks_")
         frame = self._as_frame(X)
+        if not isinstance(X, (pd.DataFrame, pd.Series)) and frame.shape[1] != self.n_features_in_:
+            raise ValueError(f"X has {frame.shape[1]} features, but TableEncoder is expecting "
+                             f"{self.n_features_in_} features as input")
         absent = [c for c in self.feature_names_in_ if c not in frame.columns]
         if absent:
             raise DataError(f"table lacks column {absent[0]!r} that the encoder was fitted on; "

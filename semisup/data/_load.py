@@ -15,7 +15,6 @@ import pandas as pd
 from .._errors import DataError
 from ._columns import Where, as_text, infer_column_kinds, prepare_columns
 from ._dataset import Dataset
-from ._encoder import TableEncoder
 from ._labels import encode_labels
 from ._read import _PARQUET_SUFFIXES, KIND_OVERRIDES, file_sha256, read_table
 
@@ -158,6 +157,9 @@ def _build(
             column_kinds[column] = kinds[column]
         else:
             column_kinds[column] = feature_kinds[column]
+    # scikit-learn loads here, after the cheap checks, so bad input fails fast.
+    from ._encoder import TableEncoder
+
     encoder = TableEncoder(kinds=feature_kinds)
     try:
         X = encoder.fit_transform(features)
