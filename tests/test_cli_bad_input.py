@@ -184,38 +184,6 @@ def test_case_and_space_variants_of_a_label_warn(tmp_path):
     assert sorted(_card_json(tmp_path)["class_counts"]) == ["Cat", "cat", "dog", "dog "]
 
 
-def test_thousands_separators_are_parsed_and_noted(tmp_path):
-    content = b'a,b,label\n"1,234.5",2,x\n"12,000",3,y\n7,4,x\n"1,000,000",5,y\n'
-    result, _ = _card(tmp_path, "thousands.csv", content)
-    assert result.returncode == 0, result.stderr
-    card = _card_json(tmp_path)
-    assert card["columns"][0]["kind"] == "numeric"
-    assert any("',' thousands separators" in n and "'1,234.5' -> 1234.5" in n
-               for n in card["notes"])
-
-
-def test_decimal_commas_are_parsed_with_semicolon_delimiter(tmp_path):
-    content = b"a;b;label\n3,5;2;x\n1.234,5;3;y\n7;4;x\n0,25;5;y\n"
-    result, _ = _card(tmp_path, "comma.csv", content)
-    assert result.returncode == 0, result.stderr
-    card = _card_json(tmp_path)
-    assert card["columns"][0]["kind"] == "numeric"
-    assert any("decimal commas" in n and "'3,5' -> 3.5" in n for n in card["notes"])
-
-
-def test_other_encoding_works_when_named(tmp_path):
-    content = "a,b,label\n1,café,x\n2,thé,y\n3,café,x\n".encode("latin-1")
-    result, _ = _card(tmp_path, "latin.csv", content, "--encoding", "latin-1")
-    assert result.returncode == 0, result.stderr
-    assert _card_json(tmp_path)["class_counts"] == {"x": 2, "y": 1}
-
-
-def test_sniffed_delimiter_semicolon(tmp_path):
-    result, _ = _card(tmp_path, "semi.csv", b"a;b;label\n1;2;x\n3;4;y\n5;6;x\n")
-    assert result.returncode == 0, result.stderr
-    assert _card_json(tmp_path)["n_columns"] == 3
-
-
 @pytest.mark.slow
 def test_more_than_a_million_categorical_levels(tmp_path):
     n = 1_000_001
