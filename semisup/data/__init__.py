@@ -10,7 +10,6 @@ from ._load import dataset_from_frame, load_dataset
 from ._read import read_kind_overrides, read_table
 
 
-
 def __getattr__(name: str):
     # TableEncoder imports scikit-learn (slow); load it on first use so that bad input is
     # reported without waiting for that import.

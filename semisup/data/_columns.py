@@ -24,8 +24,9 @@ COLUMN_KINDS = ("numeric", "categorical", "constant", "id-like", "text", "drop",
 #: Fewer non-missing values than this and a column is never called id-like or free text.
 MIN_ROWS_FOR_ID_OR_TEXT = 20
 
-#: A text column whose share of number-like values is at least this is "numbers with a few
-#: stray words" (an error asking for a fix), below it a text column (common practice, no source).
+#: A text column whose share of number-like values is at least this, and whose distinct
+#: numbers outnumber its distinct words, is "numbers with a few stray words" (an error asking
+#: for a fix); otherwise a text column (common practice, no source).
 MIXED_NUMERIC_SHARE = 0.5
 
 _ID_NAME = re.compile(r"(^|[_\W])(id|key|uuid|guid|index|row|record|no)$", re.IGNORECASE)
@@ -95,7 +96,10 @@ def _parse_number_text(
         bad_values = set(uniques[~number_like])
         bad_rows = stripped.isin(bad_values).to_numpy() & present
         numeric_share = 1.0 - bad_rows.sum() / present.sum()
-        if forced or numeric_share >= MIXED_NUMERIC_SHARE:
+        # Codes such as "0" / "L" / "X" are categories: call a column "numbers with stray
+        # words" only when its numbers are also more varied than its words.
+        varied = int(number_like.sum()) > int((~number_like).sum())
+        if forced or (numeric_share >= MIXED_NUMERIC_SHARE and varied):
             row = _first_row(bad_rows)
             value = stripped.iloc[row]
             why = "is declared numeric" if forced else (

@@ -268,7 +268,8 @@ class TableEncoder(TransformerMixin, BaseEstimator):
             elif block.kind == "categorical":
                 levels = self.categories_[column]
                 text = as_text(frame[column])
-                codes = pd.Index(levels, dtype=object).get_indexer(text.astype(object)).astype(np.int64)
+                index = pd.Index(levels, dtype=object)
+                codes = index.get_indexer(text.astype(object)).astype(np.int64)
                 other = levels.index(OTHER_LEVEL)
                 fill = np.where(
                     text.isna().to_numpy() & (MISSING_LEVEL in levels),
