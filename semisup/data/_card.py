@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+from pandas.api import types as ptypes
 
 from .._atomic import atomic_write_text
 from .._errors import DataWarning
@@ -36,6 +37,9 @@ LEAKAGE_MAX_ROWS = 20_000
 #: Largest/smallest labeled class count at or above which the card notes an imbalance
 #: (common practice, no source).
 IMBALANCE_RATIO = 3.0
+
+#: Float columns longer than this get no distinct-value count in the card.
+DISTINCT_MAX_FLOAT_ROWS = 100_000
 
 CAUTION = (
     "Caution: a model trained on few labels can be badly wrong, and a data card does not "
@@ -119,6 +123,9 @@ class DataCard:
         if len(self.columns) > 40 or not listed:
             lines.append("")
             lines.append(f"{untouched} of {len(self.columns)} columns have no missing values.")
+        if any(c["distinct"] is None for c in self.columns):
+            lines.append(f"Distinct values are not counted for float columns over "
+                         f"{DISTINCT_MAX_FLOAT_ROWS:,} rows.")
         lines += [
             "", "## Labels", "",
             f"- labeled rows: {self.n_labeled:,} of {self.n_rows:,} "
@@ -269,7 +276,11 @@ def _column_profiles(frame: pd.DataFrame, column_kinds: Mapping[str, str]) -> li
     profiles = []
     for column in frame.columns:
         series = frame[column]
-        distinct = int(series.nunique(dropna=True))
+        # Counting distinct floats in a big column costs seconds and says little.
+        if ptypes.is_float_dtype(series.dtype) and len(series) > DISTINCT_MAX_FLOAT_ROWS:
+            distinct = None
+        else:
+            distinct = int(series.nunique(dropna=True))
         profiles.append({
             "name": str(column),
             "kind": column_kinds.get(column, "?"),

@@ -191,7 +191,10 @@ def _read_parquet(path: Path) -> pd.DataFrame:
                             f"{name!r}; rename one so every column name is unique")
         seen[name] = position
     try:
-        frame = pd.read_parquet(path)
+        # self_destruct frees each Arrow column once converted: peak memory ~1 copy, not 2.
+        table = pq.read_table(path)
+        frame = table.to_pandas(self_destruct=True, split_blocks=True)
+        del table
     except Exception as exc:  # noqa: BLE001
         raise DataError(f"{path}: Parquet file cannot be read ({type(exc).__name__}: {exc}); "
                         "write it again with pandas or pyarrow") from None
