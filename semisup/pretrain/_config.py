@@ -25,9 +25,9 @@ class VAEConfig:
     latent_dim: int = 16  # size of z
     hidden: tuple[int, ...] = (128, 64)  # encoder widths; the decoder mirrors them; () = linear
     beta: float = 1.0  # weight of the KL term after warm-up (1.0 = the ELBO)
-    learning_rate: float = 2e-3  # Adam step size
+    learning_rate: float = 3e-3  # Adam step size
     max_epochs: int = 150  # upper bound on passes over the training rows
-    batch_size: int = 128  # rows per minibatch
+    batch_size: int = 256  # rows per minibatch
     patience: int = 10  # epochs without held-out improvement before stopping
     validation_fraction: float = 0.1  # share of rows held out for early stopping
     kl_warmup_epochs: int = 10  # KL weight rises linearly from 0 to beta over these epochs

@@ -167,8 +167,8 @@ def reconstruction_log_likelihood(
         if numeric_extra is None:
             terms = gaussian_log_likelihood(x_num, mean, variance)
         else:
-            extra = numeric_extra if layout.all_numeric else numeric_extra.index_select(
-                1, numeric_idx
+            extra = (
+                numeric_extra if layout.all_numeric else numeric_extra.index_select(1, numeric_idx)
             )
             terms = gaussian_expected_log_likelihood(x_num, mean, variance, extra)
         total = total + terms.sum(dim=1)

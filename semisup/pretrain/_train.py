@@ -157,9 +157,11 @@ def train_module(
                 monitored = _objective(rec_v, kl_v, beta_final)
                 record["val_elbo"] = float((rec_v - kl_v).mean())
             else:
-                monitored = train_elbo if not variational or beta_final == 1.0 else _epoch_objective(
-                    module, X, train_index, layout, index, monitor_eps, beta_final
-                )
+                monitored = train_elbo
+                if variational and beta_final != 1.0:
+                    monitored = _epoch_objective(
+                        module, X, train_index, layout, index, monitor_eps, beta_final
+                    )
             history.append(record)
             if monitored > best_value + config.tol:
                 best_value = monitored
@@ -179,7 +181,10 @@ def train_module(
         module.load_state_dict(best_state)
     module.eval()
     return TrainResult(
-        epochs=epoch, best_epoch=best_epoch, stopped_early=stopped_early, steps=step,
+        epochs=epoch,
+        best_epoch=best_epoch,
+        stopped_early=stopped_early,
+        steps=step,
         history=history,
     )
 
@@ -223,6 +228,10 @@ def _report(bar, record: dict[str, float], epoch: int, max_epochs: int, started:
         eta = elapsed / epoch * (max_epochs - epoch)
         logger.debug(
             "epoch %d/%d train ELBO %.4f held-out ELBO %s (%.1fs, at most %.1fs left)",
-            epoch, max_epochs, record["train_elbo"],
-            f"{record['val_elbo']:.4f}" if "val_elbo" in record else "n/a", elapsed, eta,
+            epoch,
+            max_epochs,
+            record["train_elbo"],
+            f"{record['val_elbo']:.4f}" if "val_elbo" in record else "n/a",
+            elapsed,
+            eta,
         )

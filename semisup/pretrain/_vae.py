@@ -15,7 +15,7 @@ __all__ = ["VAEModule", "row_terms"]
 
 def _mlp(sizes: list[int]) -> nn.Sequential:
     layers: list[nn.Module] = []
-    for width_in, width_out in zip(sizes[:-1], sizes[1:]):
+    for width_in, width_out in zip(sizes[:-1], sizes[1:], strict=True):
         layers += [nn.Linear(width_in, width_out), nn.ReLU()]
     return nn.Sequential(*layers)
 
@@ -109,7 +109,12 @@ def row_terms(
         else:
             out = module.decode(module.reparameterize(mu, logvar, eps))
         rec = reconstruction_log_likelihood(
-            x, out, module.variance(), layout, index, numeric_out=numeric_out,
+            x,
+            out,
+            module.variance(),
+            layout,
+            index,
+            numeric_out=numeric_out,
             numeric_extra=extra,
         )
         return rec, kl, mu

@@ -74,9 +74,9 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         latent_dim: int = 16,
         hidden: tuple[int, ...] = (128, 64),
         beta: float = 1.0,
-        learning_rate: float = 2e-3,
+        learning_rate: float = 3e-3,
         max_epochs: int = 150,
-        batch_size: int = 128,
+        batch_size: int = 256,
         patience: int = 10,
         validation_fraction: float = 0.1,
         kl_warmup_epochs: int = 10,
@@ -154,9 +154,11 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         split = np.random.default_rng(derive_seed(seed, "vae", "split")).permutation(n_rows)
         val_index = np.sort(split[:n_val])
         train_index = np.sort(split[n_val:])
-        draws = np.random.default_rng(derive_seed(seed, "vae", "score-draws")).standard_normal(
-            (N_SCORE_DRAWS, cfg.latent_dim)
-        ).astype(np.float32)
+        draws = (
+            np.random.default_rng(derive_seed(seed, "vae", "score-draws"))
+            .standard_normal((N_SCORE_DRAWS, cfg.latent_dim))
+            .astype(np.float32)
+        )
 
         with torch_state(derive_seed(seed, "vae", "torch"), cfg.n_threads):
             X_t = torch.from_numpy(_scaled(X, mean, scale))
@@ -171,7 +173,12 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
                 min_variance=cfg.min_variance,
             )
             result = train_module(
-                module, X_t, train_t, X_val, layout, cfg,
+                module,
+                X_t,
+                train_t,
+                X_val,
+                layout,
+                cfg,
                 shuffle_seed=derive_seed(seed, "vae", "shuffle"),
                 monitor_eps=torch.from_numpy(draws[0]),
             )
@@ -182,8 +189,10 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
             self.score_draws_ = draws
             self.n_epochs_ = result.epochs
             self.history_ = result.history
-            diag_rows = X_val if X_val is not None else X_t.index_select(
-                0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS])
+            diag_rows = (
+                X_val
+                if X_val is not None
+                else X_t.index_select(0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS]))
             )
             train_rows = X_t.index_select(0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS]))
             self.diagnostics_ = self._diagnostics(train_rows, X_val, diag_rows)
@@ -201,9 +210,14 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         )
         logger.info(
             "%s fitted on %d x %d in %.1fs (%d epochs): train ELBO %.3f, held-out ELBO %s",
-            cfg.kind.upper(), n_rows, n_features, self.diagnostics_["seconds"], result.epochs,
+            cfg.kind.upper(),
+            n_rows,
+            n_features,
+            self.diagnostics_["seconds"],
+            result.epochs,
             self.diagnostics_["train_elbo"],
-            "n/a" if self.diagnostics_["heldout_elbo"] is None
+            "n/a"
+            if self.diagnostics_["heldout_elbo"] is None
             else f"{self.diagnostics_['heldout_elbo']:.3f}",
         )
         return self
@@ -237,10 +251,16 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
             else None
         )
         with torch.no_grad():
-            mu = torch.cat(
-                [self.module_.encode(diag_rows[s : s + EVAL_CHUNK_ROWS])[0]
-                 for s in range(0, diag_rows.shape[0], EVAL_CHUNK_ROWS)]
-            ) if diag_rows.shape[0] else diag_rows.new_zeros((0, self.latent_dim))
+            mu = (
+                torch.cat(
+                    [
+                        self.module_.encode(diag_rows[s : s + EVAL_CHUNK_ROWS])[0]
+                        for s in range(0, diag_rows.shape[0], EVAL_CHUNK_ROWS)
+                    ]
+                )
+                if diag_rows.shape[0]
+                else diag_rows.new_zeros((0, self.latent_dim))
+            )
             out = self.module_.decode(mu) if mu.shape[0] else None
         recon: dict[str, float] = {}
         if out is not None:
@@ -259,8 +279,8 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
                     for a, b in layout.categorical
                 ]
                 recon["categorical_error_rate"] = float(torch.stack(wrong).mean())
-        unit_var = mu.var(dim=0, unbiased=False) if mu.shape[0] > 1 else torch.zeros(
-            self.latent_dim
+        unit_var = (
+            mu.var(dim=0, unbiased=False) if mu.shape[0] > 1 else torch.zeros(self.latent_dim)
         )
         return {
             "kind": self.kind,
@@ -322,8 +342,10 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         check_is_fitted(self, "module_")
         if self.kind != "vae":
             raise ConfigError("sample() needs kind='vae'; a plain autoencoder has no prior")
-        if isinstance(n_samples, bool) or not isinstance(n_samples, (int, np.integer)) or (
-            n_samples < 1
+        if (
+            isinstance(n_samples, bool)
+            or not isinstance(n_samples, (int, np.integer))
+            or (n_samples < 1)
         ):
             raise ConfigError(f"n_samples={n_samples!r} is not allowed; give an integer >= 1")
         seed = derive_seed(self._seed() if random_state is None else random_state, "sample")
