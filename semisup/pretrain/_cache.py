@@ -221,6 +221,8 @@ def _load_mixture(folder: Path, meta: dict[str, Any]) -> MixtureTransformer:
     est.covariances_ = data["covariances"]
     est.precisions_cholesky_ = data["precisions_cholesky"]
     est.selection_ = meta["selection"]
+    est.n_iter_ = int(meta["diagnostics"]["n_iter"])
+    est.converged_ = bool(meta["diagnostics"]["converged"])
     est.n_features_in_ = int(meta["n_features_in"])
     est.diagnostics_ = _loaded_diagnostics(meta)
     return est

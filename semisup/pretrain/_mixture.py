@@ -114,6 +114,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
     n_components_, covariance_type_ : chosen model
     weights_, means_, covariances_, precisions_cholesky_ : its parameters (GaussianMixture's)
     selection_ : list of dict (n_components, covariance_type, bic) for each candidate scored
+    n_iter_, converged_ : EM steps and convergence of the final fit
     diagnostics_ : dict
     """
 
@@ -245,6 +246,8 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         self.covariances_ = final.covariances_
         self.precisions_cholesky_ = final.precisions_cholesky_
         self.selection_ = selection
+        self.n_iter_ = int(final.n_iter_)
+        self.converged_ = bool(final.converged_)
         self.diagnostics_ = {
             "kind": "mixture",
             "n_components": self.n_components_,
