@@ -31,8 +31,9 @@ def test_kl_matches_torch_distributions_on_random_parameters():
     mu = torch.randn(50, 6, generator=gen, dtype=torch.float64) * 2
     logvar = torch.randn(50, 6, generator=gen, dtype=torch.float64)
     # Reference: torch.distributions.kl_divergence(Normal, Normal), summed over dimensions.
-    torch.testing.assert_close(kl_standard_normal(mu, logvar), _torch_kl(mu, logvar),
-                               atol=1e-5, rtol=0)
+    torch.testing.assert_close(
+        kl_standard_normal(mu, logvar), _torch_kl(mu, logvar), atol=1e-5, rtol=0
+    )
 
 
 def test_kl_of_the_fitted_encoder_matches_torch_distributions():
@@ -43,8 +44,9 @@ def test_kl_of_the_fitted_encoder_matches_torch_distributions():
         mu, logvar = vae.module_.encode(torch.from_numpy(X))
     # Reference: torch.distributions.kl_divergence between the encoder's diagonal Gaussian
     # and N(0, I), to 1e-5 as the issue asks.
-    torch.testing.assert_close(kl_standard_normal(mu, logvar), _torch_kl(mu, logvar),
-                               atol=1e-5, rtol=0)
+    torch.testing.assert_close(
+        kl_standard_normal(mu, logvar), _torch_kl(mu, logvar), atol=1e-5, rtol=0
+    )
 
 
 def test_elementwise_log_likelihoods_match_torch_distributions():

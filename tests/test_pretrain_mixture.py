@@ -13,21 +13,27 @@ from semisup.pretrain import MixtureTransformer, component_log_densities
 
 
 def _blobs(n: int = 600, centers: int = 3, seed: int = 0) -> np.ndarray:
-    X, _ = make_blobs(n_samples=n, centers=centers, n_features=4, cluster_std=1.0,
-                      center_box=(-20, 20), random_state=seed)
+    X, _ = make_blobs(
+        n_samples=n,
+        centers=centers,
+        n_features=4,
+        cluster_std=1.0,
+        center_box=(-20, 20),
+        random_state=seed,
+    )
     return X
 
 
 @pytest.mark.parametrize("covariance_type", ["full", "tied", "diag", "spherical"])
 def test_fixed_mixture_equals_sklearn_gaussian_mixture(covariance_type):
     X = _blobs()
-    ours = MixtureTransformer(n_components=3, covariance_type=covariance_type,
-                              random_state=5).fit(X)
+    ours = MixtureTransformer(n_components=3, covariance_type=covariance_type, random_state=5).fit(
+        X
+    )
     # Reference: scikit-learn's GaussianMixture with the same data, settings and seed.
     ref = GaussianMixture(3, covariance_type=covariance_type, random_state=5).fit(X)
     assert ours.score(X) == pytest.approx(ref.score(X), rel=1e-10, abs=1e-10)
-    np.testing.assert_allclose(ours.score_samples(X), ref.score_samples(X), rtol=1e-9,
-                               atol=1e-9)
+    np.testing.assert_allclose(ours.score_samples(X), ref.score_samples(X), rtol=1e-9, atol=1e-9)
     np.testing.assert_allclose(ours.transform(X), ref.predict_proba(X), atol=1e-9)
 
 
@@ -73,13 +79,19 @@ def test_large_data_selects_on_a_subsample_then_fits_all_rows():
 
 def test_features_and_chunked_transform():
     X = _blobs(n=500)
-    both = MixtureTransformer(n_components=3, covariance_type="full", features="both",
-                              chunk_rows=64).fit(X)
+    both = MixtureTransformer(
+        n_components=3, covariance_type="full", features="both", chunk_rows=64
+    ).fit(X)
     out = both.transform(X)
     assert out.shape == (500, 6)
     np.testing.assert_allclose(out[:, :3].sum(axis=1), 1.0)
-    dens = MixtureTransformer(n_components=3, covariance_type="full", features="logdensity",
-                              chunk_rows=10**6).fit(X).transform(X)
+    dens = (
+        MixtureTransformer(
+            n_components=3, covariance_type="full", features="logdensity", chunk_rows=10**6
+        )
+        .fit(X)
+        .transform(X)
+    )
     np.testing.assert_allclose(out[:, 3:], dens, rtol=1e-12)
     assert list(both.get_feature_names_out()[:2]) == ["mixture_posterior0", "mixture_posterior1"]
 

@@ -19,17 +19,29 @@ def _linear_gaussian(n: int = 1000, d: int = 8, k: int = 2, seed: int = 0) -> np
     rng = np.random.default_rng(seed)
     W = rng.normal(size=(d, k)) * 2
     noise_sd = rng.uniform(0.3, 1.0, size=d)
-    return rng.normal(size=(n, k)) @ W.T + rng.normal(size=d) * 3 + rng.normal(size=(n, d)) * (
-        noise_sd
+    return (
+        rng.normal(size=(n, k)) @ W.T
+        + rng.normal(size=d) * 3
+        + rng.normal(size=(n, d)) * (noise_sd)
     )
 
 
 def _linear_vae(k: int, decoder_variance: str, scale: str) -> VAETransformer:
     # Full-batch Adam on the exact (sampling-free) ELBO of the linear model.
     return VAETransformer(
-        hidden=(), latent_dim=k, validation_fraction=0.0, batch_size=100000, max_epochs=3000,
-        learning_rate=0.1, kl_warmup_epochs=0, patience=100, tol=0.0, grad_clip=None,
-        decoder_variance=decoder_variance, scale=scale, random_state=0,
+        hidden=(),
+        latent_dim=k,
+        validation_fraction=0.0,
+        batch_size=100000,
+        max_epochs=3000,
+        learning_rate=0.1,
+        kl_warmup_epochs=0,
+        patience=100,
+        tol=0.0,
+        grad_clip=None,
+        decoder_variance=decoder_variance,
+        scale=scale,
+        random_state=0,
     )
 
 
@@ -108,7 +120,9 @@ def test_mixed_blocks_fit_sample_and_diagnose():
     np.testing.assert_array_equal(vae.sample(5, random_state=1), vae.sample(5, random_state=1))
     diag = vae.diagnostics_
     assert set(diag["reconstruction"]) == {
-        "numeric_rmse", "missing_error_rate", "categorical_error_rate"
+        "numeric_rmse",
+        "missing_error_rate",
+        "categorical_error_rate",
     }
     assert 0 <= diag["active_units"] <= 2
     assert diag["heldout_elbo"] is not None and diag["epochs"] >= 1
