@@ -29,10 +29,11 @@ __all__ = [
 Representation = Literal["raw", "vae", "mixture"]
 
 
-class MethodUnavailable(SemisupError):
+class MethodUnavailable(SemisupError, ValueError):
     """A method cannot run on this draw (say, too few labels per class); the reason is the text.
 
-    The study records the cell as ``skipped`` with this reason instead of failing.
+    The study records the cell as ``skipped`` with this reason instead of failing. It is also a
+    ``ValueError`` so scikit-learn's checks (and callers) see the usual error for bad targets.
     """
 
 
