@@ -1,4 +1,4 @@
-"""The semi-supervised Gaussian-mixture EM classifier (Nigam et al. 2000, generalised to Gaussians)."""
+"""The semi-supervised Gaussian-mixture EM classifier (Nigam et al. 2000, for Gaussians)."""
 
 from __future__ import annotations
 
