@@ -92,7 +92,8 @@ class PartiallyLabeledClassifier(ClassifierMixin, BaseEstimator):
 
     def predict(self, X: Any) -> np.ndarray:
         """The most probable class of each row (arg-max of :meth:`predict_proba`)."""
-        return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+        proba = self.predict_proba(X)
+        return self.classes_[np.argmax(proba, axis=1)]
 
     # subclasses implement these two
     def _fit_encoded(self, X: np.ndarray, y_code: np.ndarray) -> None:

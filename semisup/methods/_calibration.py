@@ -74,4 +74,5 @@ class FewLabelCalibratedClassifier(ClassifierMixin, BaseEstimator):
         return decision_to_proba(self.model_.decision_function(X))
 
     def predict(self, X):
-        return self.classes_[np.argmax(self.predict_proba(X), axis=1)]
+        proba = self.predict_proba(X)
+        return self.classes_[np.argmax(proba, axis=1)]

@@ -59,6 +59,7 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
                 stacklevel=3,
             )
         self.model_ = model
+        self.n_iter_ = int(model.n_iter_)
 
     def _proba_encoded(self, X):
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -101,6 +102,7 @@ class CalibratedSelfTraining(PartiallyLabeledClassifier):
             warnings.filterwarnings("ignore", category=ConvergenceWarning)
             model.fit(X, y_code)
         self.model_ = model
+        self.n_iter_ = max(1, int(model.n_iter_))
 
     def _proba_encoded(self, X):
         proba = self.model_.predict_proba(X)

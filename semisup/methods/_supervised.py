@@ -6,6 +6,7 @@ the VAE latent means or the mixture features as ``X`` instead of the encoded tab
 
 from __future__ import annotations
 
+import numpy as np
 from sklearn.ensemble import HistGradientBoostingClassifier
 from sklearn.linear_model import LogisticRegression
 from sklearn.neighbors import KNeighborsClassifier
@@ -34,6 +35,7 @@ class LabeledLogReg(PartiallyLabeledClassifier):
 
     def _fit_encoded(self, X, y_code):
         self.model_ = LogisticRegression(C=self.C, max_iter=self.max_iter).fit(X, y_code)
+        self.n_iter_ = int(np.max(self.model_.n_iter_))
 
     def _proba_encoded(self, X):
         return self.model_.predict_proba(X)
@@ -72,6 +74,7 @@ class LabeledGBT(PartiallyLabeledClassifier):
             early_stopping=False,
             random_state=self.random_state,
         ).fit(X, y_code)
+        self.n_iter_ = int(self.model_.n_iter_)
 
     def _proba_encoded(self, X):
         return self.model_.predict_proba(X)
