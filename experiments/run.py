@@ -26,6 +26,7 @@ def plot_curves(curves_csv: Path, out_png: Path, title: str, metric: str = "accu
     import matplotlib
 
     matplotlib.use("Agg")
+    import matplotlib.ticker
     import matplotlib.pyplot as plt
     import pandas as pd
 
@@ -40,6 +41,10 @@ def plot_curves(curves_csv: Path, out_png: Path, title: str, metric: str = "accu
         ax.plot(g["n_labels"], g["mean"], style, marker="o", ms=3, label=method)
         ax.fill_between(g["n_labels"], g["low"], g["high"], alpha=0.12)
     ax.set_xscale("log")
+    budgets = sorted(c["n_labels"].unique())
+    ax.set_xticks(budgets)
+    ax.xaxis.set_major_formatter(matplotlib.ticker.ScalarFormatter())
+    ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
     ax.set_xlabel("label budget (labeled training rows)")
     ax.set_ylabel(f"holdout {metric} (mean, 95% interval over repeats)")
     ax.set_title(title)

@@ -385,7 +385,9 @@ def _write_candidates(out, ds, ctx, methods, cells, features, spec) -> dict[str,
     """Refit the best method at the largest budget on all pool labels; score unlabeled rows."""
     unl = ctx.unlabeled_idx
     rep_kind = "vae" if "vae" in features else "raw"
-    ok = cells[(cells["status"] == "ok") & (cells["strategy"] == "random")]
+    ok = cells[cells["status"] == "ok"]
+    if (ok["strategy"] == "random").any():
+        ok = ok[ok["strategy"] == "random"]
     proba = np.zeros((len(unl), ctx.n_classes), dtype=np.float32)
     best_name, top = None, 0
     note = "no finished cell; probabilities are zero"
