@@ -13,6 +13,7 @@ from scipy.special import logsumexp
 from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.mixture import GaussianMixture
 from sklearn.utils.validation import check_is_fitted
+from threadpoolctl import threadpool_limits
 
 from .._errors import ConfigError
 from .._seeding import derive_seed
@@ -106,6 +107,11 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         ``transform`` output: responsibilities p(k | x), per-component log N(x | k) (without
         the mixing weight), or both side by side.
     max_iter, n_init, tol, reg_covar : passed to GaussianMixture (same defaults).
+    chunk_rows : int
+        Rows per block in ``transform`` / ``score_samples``.
+    n_threads : int or None
+        BLAS / OpenMP threads during fit and transform (threadpoolctl); None leaves them.
+        One thread is much faster than two on a busy 2-core machine (oversubscription).
     random_state : int or None
         Seed of every GaussianMixture fit and of the selection subsample.
 
@@ -131,6 +137,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         tol: float = 1e-3,
         reg_covar: float = 1e-6,
         chunk_rows: int = 65536,
+        n_threads: int | None = 1,
         random_state: int | None = 0,
     ) -> None:
         self.n_components = n_components
@@ -144,6 +151,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         self.tol = tol
         self.reg_covar = reg_covar
         self.chunk_rows = chunk_rows
+        self.n_threads = n_threads
         self.random_state = random_state
 
     def _check_params(self) -> tuple[list[int], list[str]]:
@@ -173,6 +181,12 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
                 f"covariance type {bad[0] if bad else types!r} is not allowed; "
                 f"choose from {', '.join(COVARIANCE_TYPES)}"
             )
+        if self.n_threads is not None and (
+            isinstance(self.n_threads, bool)
+            or not isinstance(self.n_threads, (int, np.integer))
+            or self.n_threads < 1
+        ):
+            raise ConfigError(f"n_threads={self.n_threads!r} is not allowed; give an int >= 1")
         for name in ("max_selection_rows", "chunk_rows", "max_iter", "n_init"):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
@@ -199,8 +213,12 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
 
     def fit(self, X: Any, y: Any = None) -> MixtureTransformer:
         """Select and fit the mixture on the rows of ``X`` (labels are ignored)."""
-        started = time.perf_counter()
         counts, types = self._check_params()
+        with threadpool_limits(limits=self.n_threads):
+            return self._fit(X, counts, types)
+
+    def _fit(self, X: Any, counts: list[int], types: list[str]) -> MixtureTransformer:
+        started = time.perf_counter()
         X = _validate_data(self, X, dtype=[np.float64, np.float32], reset=True)
         n_rows = X.shape[0]
         fitted_counts = [c for c in counts if c <= n_rows]
@@ -284,7 +302,9 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         check_is_fitted(self, "means_")
         X = _validate_data(self, X, dtype=[np.float64, np.float32], reset=False)
         for start in range(0, X.shape[0], self.chunk_rows):
-            yield self._weighted_log_densities(X[start : start + self.chunk_rows])
+            with threadpool_limits(limits=self.n_threads):
+                part = self._weighted_log_densities(X[start : start + self.chunk_rows])
+            yield part
 
     def transform(self, X: Any) -> np.ndarray:
         """Posterior responsibilities and/or per-component log-densities, chunk by chunk."""

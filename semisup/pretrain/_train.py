@@ -129,6 +129,7 @@ def train_module(
     epoch = 0
     try:
         for epoch in range(1, config.max_epochs + 1):
+            epoch_started = time.perf_counter()
             module.train()
             order = torch.randperm(n_rows, generator=generator)
             if train_index is not None:
@@ -170,6 +171,7 @@ def train_module(
                 wait = 0
             elif epoch > config.kl_warmup_epochs:
                 wait += 1
+            record["seconds"] = time.perf_counter() - epoch_started
             _report(bar, record, epoch, config.max_epochs, started)
             if wait >= config.patience:
                 stopped_early = True
