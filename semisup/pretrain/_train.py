@@ -142,13 +142,15 @@ def train_module(
                 else:
                     beta_now = config.beta if variational else 0.0
                 rec, kl, _ = row_terms(module, batch, layout, index)
-                loss = -(rec - beta_now * kl).mean()
+                objective = rec - beta_now * kl  # (batch,)
+                loss = -objective.mean()
                 optimizer.zero_grad(set_to_none=True)
                 loss.backward()
                 if config.grad_clip is not None:
                     torch.nn.utils.clip_grad_norm_(params, config.grad_clip)
                 optimizer.step()
-                running += (rec - kl).detach().sum()
+                # ELBO of the rows seen (beta = 1); equals the objective once warmed up
+                running += (objective if beta_now == 1.0 else rec - kl).detach().sum()
                 step += 1
             train_elbo = float(running) / n_rows
             record = {"epoch": float(epoch), "train_elbo": train_elbo}
