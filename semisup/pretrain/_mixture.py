@@ -17,14 +17,7 @@ from threadpoolctl import threadpool_limits
 
 from .._errors import ConfigError
 from .._seeding import derive_seed
-
-try:  # scikit-learn >= 1.6
-    from sklearn.utils.validation import validate_data as _validate_data
-except ImportError:  # pragma: no cover - older scikit-learn
-
-    def _validate_data(estimator, X, **kwargs):
-        return estimator._validate_data(X, **kwargs)
-
+from ._validation import checked_rows
 
 __all__ = ["MixtureTransformer", "component_log_densities"]
 
@@ -219,7 +212,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
 
     def _fit(self, X: Any, counts: list[int], types: list[str]) -> MixtureTransformer:
         started = time.perf_counter()
-        X = _validate_data(self, X, dtype=[np.float64, np.float32], reset=True)
+        X = checked_rows(self, X, dtype=[np.float64, np.float32], reset=True)
         n_rows = X.shape[0]
         fitted_counts = [c for c in counts if c <= n_rows]
         if not fitted_counts:
@@ -300,7 +293,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
 
     def _chunks(self, X: Any):
         check_is_fitted(self, "means_")
-        X = _validate_data(self, X, dtype=[np.float64, np.float32], reset=False)
+        X = checked_rows(self, X, dtype=[np.float64, np.float32], reset=False)
         for start in range(0, X.shape[0], self.chunk_rows):
             with threadpool_limits(limits=self.n_threads):
                 part = self._weighted_log_densities(X[start : start + self.chunk_rows])

@@ -18,14 +18,7 @@ from ._config import VAEConfig
 from ._likelihood import BlockLayout, layout_from_blocks
 from ._train import EVAL_CHUNK_ROWS, evaluate_rows, torch_state, train_module
 from ._vae import VAEModule
-
-try:  # scikit-learn >= 1.6
-    from sklearn.utils.validation import validate_data as _validate_data
-except ImportError:  # pragma: no cover - older scikit-learn
-
-    def _validate_data(estimator, X, **kwargs):
-        return estimator._validate_data(X, **kwargs)
-
+from ._validation import checked_rows
 
 __all__ = ["VAETransformer"]
 
@@ -142,7 +135,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         started = time.perf_counter()
         seed = self._seed()
         cfg = self.config(seed)
-        X = _validate_data(self, X, dtype=np.float32, reset=True)
+        X = checked_rows(self, X, dtype=np.float32, reset=True)
         n_rows, n_features = X.shape
         layout = layout_from_blocks(self.blocks, n_features)
         _check_block_values(X, layout, self.blocks)
@@ -296,7 +289,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
 
     def _prepare(self, X: Any) -> np.ndarray:
         check_is_fitted(self, "module_")
-        X = _validate_data(self, X, dtype=np.float32, reset=False)
+        X = checked_rows(self, X, dtype=np.float32, reset=False)
         return _scaled(X, self.mean_, self.scale_)
 
     def _elbo_scaled(self, X_t: torch.Tensor) -> torch.Tensor:
