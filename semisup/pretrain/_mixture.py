@@ -239,6 +239,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             if best is None or (bic is not None and bic < best_bic):
                 best, best_bic = gm, bic
         assert best is not None
+        selection_seconds = time.perf_counter() - started
         if subsampled:
             final = self._gm(
                 best.n_components,
@@ -270,6 +271,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             "n_iter": int(final.n_iter_),
             "n_rows": int(n_rows),
             "seconds": time.perf_counter() - started,
+            "selection_seconds": selection_seconds,
             "loaded_from_cache": False,
         }
         logger.info(
