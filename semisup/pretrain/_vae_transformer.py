@@ -182,12 +182,10 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
             self.score_draws_ = draws
             self.n_epochs_ = result.epochs
             self.history_ = result.history
-            diag_rows = (
-                X_val
-                if X_val is not None
-                else X_t.index_select(0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS]))
-            )
-            train_rows = X_t.index_select(0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS]))
+            # a random subset of the training rows (split[n_val:] is in random order)
+            some_train = torch.from_numpy(np.sort(split[n_val:][:DIAGNOSTIC_ROWS]))
+            train_rows = X_t.index_select(0, some_train)
+            diag_rows = X_val if X_val is not None else train_rows
             self.diagnostics_ = self._diagnostics(train_rows, X_val, diag_rows)
             del X_t
         self.diagnostics_.update(
