@@ -130,6 +130,7 @@ def train_module(
     try:
         for epoch in range(1, config.max_epochs + 1):
             epoch_started = time.perf_counter()
+            epoch_cpu = time.process_time()
             module.train()
             order = torch.randperm(n_rows, generator=generator)
             if train_index is not None:
@@ -174,6 +175,7 @@ def train_module(
             elif epoch > config.kl_warmup_epochs:
                 wait += 1
             record["seconds"] = time.perf_counter() - epoch_started
+            record["cpu_seconds"] = time.process_time() - epoch_cpu
             _report(bar, record, epoch, config.max_epochs, started)
             if wait >= config.patience:
                 stopped_early = True
