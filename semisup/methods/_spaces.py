@@ -128,10 +128,13 @@ def build_self_training(params: Params, random_state: int) -> CalibratedSelfTrai
 
 
 # --- semi-supervised mixture EM ------------------------------------------------------------
-EM_DEFAULTS_RAW: Params = {"n_components_per_class": 1, "covariance_type": "diag",
-                           "unlabeled_weight": 1.0, "reg_covar": 1e-2}
+# Defaults chosen on scikit-learn's digits (benchmarks/bench_methods.py, 3 repeats, budgets
+# 20-200): a small lambda keeps the unlabeled rows from dragging components away from their
+# classes; tied covariances suit the wide encoded table, full ones the small latent space.
+EM_DEFAULTS_RAW: Params = {"n_components_per_class": 1, "covariance_type": "tied",
+                           "unlabeled_weight": 0.1, "reg_covar": 1e-1}
 EM_DEFAULTS_LATENT: Params = {"n_components_per_class": 1, "covariance_type": "full",
-                              "unlabeled_weight": 1.0, "reg_covar": 1e-3}
+                              "unlabeled_weight": 0.1, "reg_covar": 1e-3}
 
 
 def em_space_raw(trial) -> Params:
