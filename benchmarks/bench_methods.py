@@ -135,8 +135,8 @@ def main() -> None:
 
     X_all, y_all = load_digits(return_X_y=True)
     n_classes = 10
-    acc = {name: {b: [] for b in budgets} for name in [*names, "ref: sklearn LabelSpreading(kernel=knn)",
-                                                       "ref: sklearn LogisticRegression()"]}
+    refs = ["ref: sklearn LabelSpreading(kernel=knn)", "ref: sklearn LogisticRegression()"]
+    acc = {name: {b: [] for b in budgets} for name in [*names, *refs]}
     seconds = {name: [] for name in names}
     used = ""
     for repeat in range(args.repeats):
