@@ -42,6 +42,11 @@ def test_numeric_matches_sklearn_imputer_and_robust_scaler():
         frame[["x"]])[:, 1]
     np.testing.assert_array_equal(X[:, start + 1], indicator)
     assert X.dtype == np.float32
+    # a column without missing values: no indicator, same as RobustScaler alone
+    z = next(b for b in enc.blocks_ if b.column == "z")
+    assert z.width == 1 and enc.blocks_[enc.blocks_.index(z) + 1].kind != "missing"
+    np.testing.assert_allclose(X[:, z.start], RobustScaler().fit_transform(frame[["z"]])[:, 0],
+                               rtol=1e-5, atol=1e-6)
 
 
 def test_categorical_matches_sklearn_one_hot_with_infrequent_levels():

@@ -41,12 +41,14 @@ def robust_scale_params(values: np.ndarray) -> tuple[float, float, bool]:
     has_missing = bool(missing.any())
     if missing.all():
         return 0.0, 1.0, True
-    median = float(np.nanmedian(values)) if has_missing else float(np.median(values))
-    filled = np.where(missing, median, values) if has_missing else values
-    q25, q75 = np.percentile(filled, [25.0, 75.0])
+    if has_missing:
+        median = float(np.nanmedian(values))
+        q25, q75 = np.percentile(np.where(missing, median, values), [25.0, 75.0])
+    else:  # one partition for all three (the 50th percentile is the median)
+        q25, median, q75 = (float(q) for q in np.percentile(values, [25.0, 50.0, 75.0]))
     scale = float(q75 - q25)
     if not np.isfinite(scale) or scale <= 0.0:
-        scale = float(np.std(filled))
+        scale = float(np.std(np.where(missing, median, values)))
     if not np.isfinite(scale) or scale <= 0.0:
         scale = 1.0
     return median, scale, has_missing
