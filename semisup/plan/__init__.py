@@ -13,6 +13,7 @@ from ._bootstrap import CurveBand, bootstrap_curve, extrapolation_factor, probab
 from ._choose import Option, best_effort, budget_grid, choose, curve_options
 from ._costs import expected_label_price, labeling_rounds, plan_cost
 from ._curves import MAX_EXTRAPOLATION, CurveFit, budget_weights, fit_learning_curve, power_law
+from ._inputs import StudyFacts, data_warnings, read_json, study_facts
 from ._make import CURVE_COLUMNS, Plan, make_plan
 from ._request import METRICS, PlanRequest
 
@@ -26,6 +27,7 @@ __all__ = [
     "Option",
     "Plan",
     "PlanRequest",
+    "StudyFacts",
     "backtest_curve",
     "best_effort",
     "bootstrap_curve",
@@ -33,6 +35,7 @@ __all__ = [
     "budget_weights",
     "choose",
     "curve_options",
+    "data_warnings",
     "expected_label_price",
     "extrapolation_factor",
     "fit_learning_curve",
@@ -41,4 +44,6 @@ __all__ = [
     "plan_cost",
     "power_law",
     "probability_meets",
+    "read_json",
+    "study_facts",
 ]

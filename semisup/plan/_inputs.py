@@ -18,7 +18,14 @@ import pandas as pd
 
 from .._errors import PlanError
 
-__all__ = ["StudyFacts", "read_candidates", "read_cells", "read_json", "study_facts"]
+__all__ = [
+    "StudyFacts",
+    "data_warnings",
+    "read_candidates",
+    "read_cells",
+    "read_json",
+    "study_facts",
+]
 
 _REQUIRED = ("method", "n_labels", "repeat", "status")
 
@@ -157,3 +164,20 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
     if isinstance(warns, list):
         facts.warnings = [str(w) for w in warns]
     return facts
+
+
+def data_warnings(facts: StudyFacts) -> list[str]:
+    """Warnings about the data behind a study: its own, a small holdout, imbalanced classes.
+
+    Thresholds (holdout under 100 rows, class ratio 5 or more) are common practice, no source.
+    """
+    out = list(facts.warnings)
+    if facts.n_holdout is not None and facts.n_holdout < 100:
+        out.append(f"the holdout has only {facts.n_holdout} rows, so every measured metric "
+                   "is noisy (one row moves accuracy by "
+                   f"{1 / max(facts.n_holdout, 1):.3f})")
+    counts = [c for c in facts.class_counts.values() if c > 0]
+    if len(counts) >= 2 and max(counts) / min(counts) >= 5:
+        out.append(f"the labeled classes are imbalanced (largest/smallest = "
+                   f"{max(counts) / min(counts):.1f}); watch balanced accuracy and macro-F1")
+    return out

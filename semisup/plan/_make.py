@@ -25,7 +25,14 @@ from ._bootstrap import CurveBand, bootstrap_curve
 from ._choose import Option, best_effort, budget_grid, choose, curve_options
 from ._costs import expected_label_price
 from ._curves import MAX_EXTRAPOLATION, fit_learning_curve
-from ._inputs import StudyFacts, read_candidates, read_cells, read_json, study_facts
+from ._inputs import (
+    StudyFacts,
+    data_warnings,
+    read_candidates,
+    read_cells,
+    read_json,
+    study_facts,
+)
 from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
 from ._request import METRICS, PlanRequest
 
@@ -178,19 +185,6 @@ def _owned(request: PlanRequest, facts: StudyFacts, warnings: list[str]) -> int:
     return 0
 
 
-def _data_warnings(facts: StudyFacts) -> list[str]:
-    out = list(facts.warnings)
-    if facts.n_holdout is not None and facts.n_holdout < 100:
-        out.append(f"the holdout has only {facts.n_holdout} rows, so every measured metric "
-                   "is noisy (one row moves accuracy by "
-                   f"{1 / max(facts.n_holdout, 1):.3f})")
-    counts = [c for c in facts.class_counts.values() if c > 0]
-    if len(counts) >= 2 and max(counts) / min(counts) >= 5:
-        out.append(f"the labeled classes are imbalanced (largest/smallest = "
-                   f"{max(counts) / min(counts):.1f}); watch balanced accuracy and macro-F1")
-    return out
-
-
 def make_plan(
     study_dir: str | os.PathLike[str],
     request: PlanRequest,
@@ -240,7 +234,7 @@ def make_plan(
     labels_owned = _owned(request, facts, warnings)
     label_price = expected_label_price(request.cost_per_label, request.class_costs,
                                        facts.class_counts if request.class_costs else None)
-    warnings.extend(_data_warnings(facts))
+    warnings.extend(data_warnings(facts))
 
     metrics_present = [m for m in METRICS if m in cells.columns and cells[m].notna().any()]
     curve_rows: list[dict] = []
