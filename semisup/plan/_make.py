@@ -118,10 +118,11 @@ class Plan:
                 lines.append("Runner-up: none (no other method and strategy meets the target "
                              "with this confidence).")
         else:
-            lines.append("Decision: not reachable with these data and methods within "
-                         f"{MAX_EXTRAPOLATION:g}x the largest measured budget.")
-            if self.best is not None:
-                lines.append(f"  The best is {self._describe(self.best)}.")
+            tail = (f"; the best is {self._describe(self.best)}" if self.best is not None
+                    else "")
+            lines.append(f"Decision: not reachable with these data and methods{tail}.")
+            lines.append(f"  (Budgets up to {MAX_EXTRAPOLATION:g}x the largest measured one were "
+                         "considered; measure larger budgets to look further.)")
         for b in self.backtest:
             if b.get("covered") is None:
                 lines.append(f"Backtest {b['method']} ({b['strategy']}): not possible, "

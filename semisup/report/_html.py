@@ -27,6 +27,7 @@ h1{font-size:1.6em;margin:0 0 4px}h2{font-size:1.25em;margin:32px 0 8px;
 .decision p{margin:4px 0}
 .note{color:#5b6570;font-size:.92em}
 table{border-collapse:collapse;margin:8px 0 14px;font-size:.9em}
+caption{caption-side:top;text-align:left;padding:2px 0}
 th,td{border:1px solid #dde1e5;padding:4px 8px;text-align:left;vertical-align:top}
 th{background:#f1f3f5}td.num{text-align:right;font-variant-numeric:tabular-nums}
 tr.hl td{background:#fff7dc;font-weight:600}
@@ -64,6 +65,8 @@ class Table:
     rows: Sequence[Sequence[object]]
     highlight: set[int] = field(default_factory=set)
     caption: str = ""
+    #: format spec per column index, e.g. {3: ",.2f"}; other numbers use :func:`fmt`
+    formats: dict[int, str] = field(default_factory=dict)
 
 
 @dataclass
@@ -122,10 +125,14 @@ def _table_html(t: Table) -> str:
     for i, row in enumerate(t.rows):
         cls = " class=\"hl\"" if i in t.highlight else ""
         cells = []
-        for v in row:
+        for j, v in enumerate(row):
             num = isinstance(v, (int, float)) and not isinstance(v, bool)
-            cells.append(f"<td class=\"num\">{esc(fmt(v))}</td>" if num
-                         else f"<td>{esc(fmt(v))}</td>")
+            if num and j in t.formats and not (isinstance(v, float) and math.isnan(v)):
+                text = format(v, t.formats[j])
+            else:
+                text = fmt(v)
+            cells.append(f"<td class=\"num\">{esc(text)}</td>" if num
+                         else f"<td>{esc(text)}</td>")
         out.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
     out.append("</tbody></table>")
     return "".join(out)

@@ -154,11 +154,9 @@ def _decision_lines(plan: Mapping) -> list[str]:
         lines.append(f"Runner-up: {describe(runner)}." if runner else
                      "Runner-up: none meets the target with this confidence.")
     else:
-        lines = [head, "Decision: not reachable with these data and methods within the "
-                       "measurable range."]
         best = plan.get("best")
-        if best:
-            lines.append(f"The best is {describe(best)}.")
+        tail = f"; the best is {describe(best)}." if best else "."
+        lines = [head, f"Decision: not reachable with these data and methods{tail}"]
     return lines
 
 
@@ -309,7 +307,8 @@ def _plan_section(plan: Mapping | None, study_dir: Path) -> Section:
         s.table(Table(["method", "strategy", "labels", "predicted", "low", "high",
                        "probability", "cost", "extrapolated"], rows, hl,
                       caption="Options, cheapest first (the plan's choice highlighted)"
-                      + (f"; {more} more in plan.json" if more > 0 else "")))
+                      + (f"; {more} more in plan.json" if more > 0 else ""),
+                      formats={6: ".2f", 7: ",.2f"}))
     bt = plan.get("backtest") or []
     if bt:
         s.heading("Backtest: refit without the largest budget, predict it")
