@@ -10,7 +10,13 @@ from scipy.optimize import curve_fit
 from sklearn.isotonic import IsotonicRegression
 
 from semisup import PlanError
-from semisup.plan import MAX_EXTRAPOLATION, budget_weights, fit_learning_curve, power_law
+from semisup.plan import (
+    MAX_EXTRAPOLATION,
+    budget_weights,
+    fit_learning_curve,
+    fit_power_law_batch,
+    power_law,
+)
 
 BUDGETS = np.array([20, 40, 80, 160, 320, 640], dtype=float)
 
@@ -124,3 +130,23 @@ def test_fit_is_monotone_and_inside_unit_interval(a, b, c, noise, seed):
     pred = fit.predict(grid)
     assert np.all((pred >= 0) & (pred <= 1))
     assert np.all(np.diff(pred) <= 1e-9)
+
+
+def test_batch_fit_matches_the_least_squares_fit():
+    # The profiled batch fit used by the bootstrap must reach the same weighted objective as
+    # the scipy least-squares fit (equal per-point and per-budget objectives up to a constant).
+    rng = np.random.default_rng(11)
+    n = np.repeat(BUDGETS, 4)
+    w = budget_weights(n)
+    means, wts, refs = [], [], []
+    for _ in range(6):
+        err = np.clip(power_law(n, 0.04, 1.5, 0.5) + rng.normal(0, 0.02, n.size), 0, 1)
+        refs.append((err, fit_learning_curve(n, err, poor_rmse=1.0)))
+        means.append([err[n == v].mean() for v in BUDGETS])
+        wts.append([w[n == v].sum() for v in BUDGETS])
+    params = fit_power_law_batch(BUDGETS, np.array(means), np.array(wts))
+    for p, (err, fit) in zip(params, refs, strict=True):
+        def sse(q, err=err):
+            return float(np.sum(w * (power_law(n, *q) - err) ** 2))
+        assert sse(p) == pytest.approx(sse(fit.params), rel=1e-7)
+        np.testing.assert_allclose(p, fit.params, atol=1e-4)

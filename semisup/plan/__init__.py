@@ -12,7 +12,14 @@ from ._backtest import Backtest, backtest_curve
 from ._bootstrap import CurveBand, bootstrap_curve, extrapolation_factor, probability_meets
 from ._choose import Option, best_effort, budget_grid, choose, curve_options
 from ._costs import expected_label_price, labeling_rounds, plan_cost
-from ._curves import MAX_EXTRAPOLATION, CurveFit, budget_weights, fit_learning_curve, power_law
+from ._curves import (
+    MAX_EXTRAPOLATION,
+    CurveFit,
+    budget_weights,
+    fit_learning_curve,
+    fit_power_law_batch,
+    power_law,
+)
 from ._inputs import StudyFacts, data_warnings, read_json, study_facts
 from ._make import CURVE_COLUMNS, Plan, make_plan
 from ._request import METRICS, PlanRequest
@@ -39,6 +46,7 @@ __all__ = [
     "expected_label_price",
     "extrapolation_factor",
     "fit_learning_curve",
+    "fit_power_law_batch",
     "labeling_rounds",
     "make_plan",
     "plan_cost",

@@ -88,5 +88,6 @@ def backtest_curve(
         return Backtest(int(largest), nan, nan, nan, measured, None, nan, reason=str(exc))
     mean = float(1.0 - band.point[0])
     low, high = float(1.0 - band.high[0]), float(1.0 - band.low[0])
-    return Backtest(int(largest), mean, low, high, measured, bool(low - 1e-9 <= measured <= high + 1e-9),
-                    mean - measured, fit=band.fit.kind)
+    covered = bool(low - 1e-9 <= measured <= high + 1e-9)
+    return Backtest(int(largest), mean, low, high, measured, covered, mean - measured,
+                    fit=band.fit.kind)

@@ -2,10 +2,10 @@
 
 Resampling unit: the repeat. A study's draws are nested within a repeat (the budget-100 draw
 contains the budget-50 draw), so whole repeats are drawn with replacement and every resample
-is refitted in the form of the full fit (power law warm-started at the full fit's
-parameters, or the monotone fallback). With a single repeat there is nothing to resample, so
-the residuals of the full fit at each point are resampled instead (residual bootstrap;
-Efron & Tibshirani 1993, section 9.5).
+is refitted in the form of the full fit (the power law for all resamples at once with
+:func:`fit_power_law_batch`, or the monotone fallback). With a single repeat there is nothing
+to resample, so the residuals of the full fit at each point are resampled instead (residual
+bootstrap; Efron & Tibshirani 1993, section 9.5).
 
 Beyond the largest measured budget the spread of the resampled curves around the point
 estimate is multiplied by ``1 + log2(n / n_max)`` (2 at twice the largest budget, 3 at four
@@ -22,7 +22,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from .._errors import PlanError
-from ._curves import CurveFit, fit_learning_curve
+from ._curves import (
+    CurveFit,
+    budget_weights,
+    fit_learning_curve,
+    fit_power_law_batch,
+    power_law,
+)
 
 __all__ = ["CurveBand", "bootstrap_curve", "extrapolation_factor", "probability_meets"]
 
@@ -103,24 +109,40 @@ def bootstrap_curve(
     point = full.predict(grid)
     rng = np.random.default_rng(seed)
     reps = np.unique(repeat)
-    samples = np.empty((n_boot, grid.size))
+    if reps.size >= 2:
+        picks = rng.choice(reps.size, size=(n_boot, reps.size), replace=True)
+        # multiplicity of each repeat in each resample: (n_boot, n_repeats)
+        mult = np.zeros((n_boot, reps.size))
+        np.add.at(mult, (np.repeat(np.arange(n_boot), reps.size), picks.ravel()), 1.0)
+        cell_mult = mult[:, np.searchsorted(reps, repeat)]          # (n_boot, n_points)
+        err_b = np.broadcast_to(err, cell_mult.shape)
+    else:
+        resid = err - full.predict(n)
+        noise = rng.choice(resid, size=(n_boot, n.size), replace=True)
+        err_b = np.clip(full.predict(n)[None, :] + noise, 0.0, 1.0)
+        cell_mult = np.ones((n_boot, n.size))
     n_failed = 0
-    start = full.params if full.kind == "power_law" else None
-    resid = err - full.predict(n)
-    for i in range(n_boot):
-        if reps.size >= 2:
-            pick = rng.choice(reps, size=reps.size, replace=True)
-            idx = np.concatenate([np.flatnonzero(repeat == r) for r in pick])
-            nb, eb = n[idx], err[idx]
-        else:
-            nb = n
-            eb = np.clip(full.predict(n) + rng.choice(resid, size=resid.size), 0.0, 1.0)
-        try:
-            refit = fit_learning_curve(nb, eb, start=start, kind=full.kind, tol=1e-8)
-            samples[i] = refit.predict(grid)
-        except PlanError:
-            samples[i] = point
-            n_failed += 1
+    if full.kind == "power_law":
+        levels = np.unique(n)
+        onehot = (n[:, None] == levels[None, :]).astype(float)       # (n_points, n_levels)
+        w = budget_weights(n)
+        wb = cell_mult * w[None, :]
+        w_lv = wb @ onehot
+        mean_lv = (wb * err_b) @ onehot / np.where(w_lv > 0, w_lv, 1.0)
+        params = fit_power_law_batch(levels, mean_lv, w_lv)
+        samples = np.clip(power_law(grid[None, :], params[:, :1], params[:, 1:2],
+                                    params[:, 2:3]), 0.0, 1.0)
+    else:
+        samples = np.empty((n_boot, grid.size))
+        for i in range(n_boot):
+            keep = cell_mult[i] > 0
+            idx = np.repeat(np.flatnonzero(keep), cell_mult[i][keep].astype(int))
+            try:
+                samples[i] = fit_learning_curve(n[idx], err_b[i][idx], kind="monotone"
+                                                ).predict(grid)
+            except PlanError:
+                samples[i] = point
+                n_failed += 1
     factor = extrapolation_factor(grid, full.n_max)
     samples = np.clip(point + factor * (samples - point), 0.0, 1.0)
     tail = (1.0 - interval) / 2.0 * 100.0

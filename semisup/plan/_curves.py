@@ -30,6 +30,7 @@ __all__ = [
     "CurveFit",
     "budget_weights",
     "fit_learning_curve",
+    "fit_power_law_batch",
     "power_law",
 ]
 
@@ -255,3 +256,94 @@ def fit_learning_curve(
     if rmse > tol and kind is None:
         return fallback(f"the power law fits poorly (RMS residual {rmse:.3f} > {tol:.3f})")
     return CurveFit("power_law", (a, b, c), False, "", n_min, n_max, rmse)
+
+
+def _ab_given_c(x: np.ndarray, y: np.ndarray, w: np.ndarray):
+    """Best (a, b) for fixed exponents: weighted least squares of ``y`` on ``[1, x]`` with
+    0 <= a <= 1 and b >= 0, along the last axis.
+
+    The problem is a convex quadratic in two variables: the optimum is the unconstrained one
+    when feasible, otherwise the best of the one-dimensional optima on the active bounds.
+    """
+    sw = w.sum(-1)
+    safe = np.where(sw > 0, sw, 1.0)
+    mx = (w * x).sum(-1) / safe
+    my = (w * y).sum(-1) / safe
+    sxx = (w * (x - mx[..., None]) ** 2).sum(-1)
+    sxy = (w * (x - mx[..., None]) * (y - my[..., None])).sum(-1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        b_free = np.where(sxx > 1e-300, sxy / sxx, 0.0)
+    a_free = my - b_free * mx
+    wxx = (w * x * x).sum(-1)
+    wxx = np.where(wxx > 0, wxx, 1.0)
+    cands = [
+        (a_free, b_free),
+        (np.clip(my, 0.0, 1.0), np.zeros_like(my)),
+        (np.zeros_like(my), np.maximum((w * x * y).sum(-1) / wxx, 0.0)),
+        (np.ones_like(my), np.maximum((w * x * (y - 1.0)).sum(-1) / wxx, 0.0)),
+    ]
+    best_a, best_b, best_sse = None, None, None
+    for k, (a, b) in enumerate(cands):
+        sse = (w * (y - a[..., None] - b[..., None] * x) ** 2).sum(-1)
+        if k == 0:
+            sse = np.where((b >= 0) & (a >= 0) & (a <= 1), sse, np.inf)
+            best_a, best_b, best_sse = a, b, sse
+            continue
+        better = sse < best_sse
+        best_a = np.where(better, a, best_a)
+        best_b = np.where(better, b, best_b)
+        best_sse = np.where(better, sse, best_sse)
+    return best_a, best_b, best_sse
+
+
+def fit_power_law_batch(
+    levels: np.ndarray, means: np.ndarray, weights: np.ndarray, *, grid_points: int = 251,
+    refine_steps: int = 40,
+) -> np.ndarray:
+    """Fit many power laws at once by profiling out (a, b) for each exponent c.
+
+    Parameters
+    ----------
+    levels : array of shape (n_levels,), the distinct budgets.
+    means : array of shape (n_fits, n_levels), weighted mean error at each budget.
+    weights : array of shape (n_fits, n_levels), total weight at each budget (0 = absent).
+
+    Returns
+    -------
+    array of shape (n_fits, 3): (a, b, c) minimising the same weighted least-squares objective
+    as :func:`fit_learning_curve` (the per-point objective equals the per-budget one on the
+    weighted means plus a constant) within the same bounds. c is found on a grid over
+    [0, 5] and refined by golden-section search in the bracket around the best grid point.
+    """
+    logn = np.log(np.asarray(levels, dtype=float))
+    y = np.asarray(means, dtype=float)
+    w = np.asarray(weights, dtype=float)
+    c_grid = np.linspace(_LOWER[2], _UPPER[2], grid_points)
+    x = np.exp(-c_grid[None, :, None] * logn[None, None, :])           # (1, C, L)
+    _, _, sse = _ab_given_c(x, y[:, None, :], w[:, None, :])            # (B, C)
+    k = np.argmin(sse, axis=1)
+    step = c_grid[1] - c_grid[0]
+    lo = np.clip(c_grid[k] - step, _LOWER[2], _UPPER[2])
+    hi = np.clip(c_grid[k] + step, _LOWER[2], _UPPER[2])
+
+    def profile(c: np.ndarray) -> np.ndarray:
+        xc = np.exp(-c[:, None] * logn[None, :])
+        return _ab_given_c(xc, y, w)[2]
+
+    ratio = (np.sqrt(5.0) - 1.0) / 2.0
+    c1 = hi - ratio * (hi - lo)
+    c2 = lo + ratio * (hi - lo)
+    f1, f2 = profile(c1), profile(c2)
+    for _ in range(refine_steps):
+        left = f1 <= f2  # the minimum lies in [lo, c2]
+        hi = np.where(left, c2, hi)
+        lo = np.where(left, lo, c1)
+        new_c1 = np.where(left, hi - ratio * (hi - lo), c2)
+        new_c2 = np.where(left, c1, lo + ratio * (hi - lo))
+        f_new = profile(np.where(left, new_c1, new_c2))
+        f1, f2 = np.where(left, f_new, f2), np.where(left, f1, f_new)
+        c1, c2 = new_c1, new_c2
+    c = (lo + hi) / 2.0
+    xc = np.exp(-c[:, None] * logn[None, :])
+    a, b, _ = _ab_given_c(xc, y, w)
+    return np.column_stack([a, b, c])
