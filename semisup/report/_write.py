@@ -277,7 +277,8 @@ def _methods_section(cells, curves, plan) -> Section:
     if not bad.empty:
         s.heading("Cells that did not finish")
         cols = [c for c in ("method", "strategy", "status", "error") if c in bad.columns]
-        grouped = bad.fillna("").groupby(cols).size().reset_index(name="cells")
+        text = bad[cols].astype(object).where(bad[cols].notna(), "").astype(str)
+        grouped = text.groupby(cols).size().reset_index(name="cells")
         s.table(Table([*cols, "cells"], grouped.values.tolist()))
     return s
 
