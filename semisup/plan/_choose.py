@@ -111,10 +111,10 @@ def choose(options: Sequence[Option], confidence: float) -> tuple[Option | None,
 
 
 def best_effort(options: Sequence[Option]) -> Option | None:
-    """The option most likely to meet the target (then the highest predicted metric)."""
+    """The option with the highest predicted metric (then the highest probability)."""
     if not options:
         return None
-    return max(options, key=lambda o: (o.probability, o.mean, -o.cost, -o.n_labels))
+    return max(options, key=lambda o: (o.mean, o.probability, -o.cost, -o.n_labels))
 
 
 def budget_grid(n_measured: np.ndarray, limit: float, *, points: int = 80,

@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
-from matplotlib.ticker import FuncFormatter
+from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter
 
 __all__ = ["METRIC_LABELS", "curve_figure"]
 
@@ -107,7 +107,16 @@ def curve_figure(
             ax.plot([chosen["n_labels"]], [pred["mean"]], marker="*", markersize=14,
                     color="#111111", linestyle="none", label="plan", zorder=5)
     ax.set_xscale("log")
+    ticks = sorted(set(int(v) for v in data.loc[data["measured"], "n_labels"]))
+    if data["extrapolated"].any():
+        ticks.append(int(data["n_labels"].max()))
+    if len(ticks) > 10:  # thin out, keeping the ends
+        keep = np.unique(np.round(np.linspace(0, len(ticks) - 1, 10)).astype(int))
+        ticks = [ticks[i] for i in keep]
+    if ticks:
+        ax.xaxis.set_major_locator(FixedLocator(ticks))
     ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel("label budget (labeled training rows, log scale)")
     ax.set_ylabel(METRIC_LABELS.get(metric, metric) + " on the holdout")
     title = f"Learning curves: {METRIC_LABELS.get(metric, metric)}"
