@@ -229,8 +229,9 @@ def make_plan(
         warnings.append(f"{n_bad} of {n_total} cells did not finish (failed or skipped) and "
                         "are left out of the curves")
     if cells.empty or cells[metric].notna().sum() == 0:
-        raise PlanError(f"{study_dir / 'cells.csv'} has no finished cell with a {metric} value; "
-                        "run or repair the study first ('semisup study ... --rerun-failed')")
+        raise PlanError(f"{study_dir / 'cells.csv'} has no finished cell with a value of "
+                        f"{metric!r}; run or repair the study first "
+                        "('semisup study ... --rerun-failed')")
 
     labels_owned = _owned(request, facts, warnings)
     label_price = expected_label_price(request.cost_per_label, request.class_costs,

@@ -227,10 +227,15 @@ def _curves_section(curves, plan, figures_dir: Path, written: list[Path]) -> Sec
         metrics.remove(plan_metric)
         metrics.insert(0, plan_metric)
     interval = plan.get("interval") if plan else None
-    s.para("Points are measured means over repeats with their intervals; lines are the fitted "
-           "inverse power law error(n) = a + b n^(-c) with shaded bootstrap bands; the thin "
-           "part past the shaded grey area's left edge is extrapolated and its band widened. "
-           "Without a plan only measured points are shown.", "note")
+    measured = curves["measured"].astype(str).str.strip().str.lower().isin(("true", "1"))
+    if (~measured).any():
+        s.para("Points are measured means over repeats with their intervals; lines are the "
+               "fitted inverse power law error(n) = a + b n^(-c) with shaded bootstrap bands. "
+               "In the grey area the curve is extrapolated beyond the largest measured budget "
+               "(thin line) and its band is widened.", "note")
+    else:
+        s.para("Points are measured means over repeats with their spread; no curves are "
+               "fitted until a plan is made ('semisup plan').", "note")
     for m in metrics:
         is_plan = m == plan_metric
         png = curve_figure(curves, m, target=target.get("value") if is_plan else None,
