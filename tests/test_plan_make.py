@@ -174,3 +174,20 @@ def test_label_next_never_exceeds_candidates(tmp_path):
     assert plan.label_next["row_id"].is_unique
     assert any("only 60 unlabeled rows" in w for w in plan.warnings)
     assert np.all(plan.label_next["rank"].to_numpy() == np.arange(1, 61))
+
+
+def test_reads_the_study_runner_layout(tmp_path):
+    # study.json nests facts under data/holdout and candidates.npz may name the
+    # representation 'representation' instead of 'Z'.
+    folder = write_study(tmp_path / "s", candidates=False)
+    study = json.loads((folder / "study.json").read_text())
+    study["holdout"] = {"n_rows": 30, "class_counts": {"cat": 15, "dog": 15}}
+    study["spec"]["holdout"] = 0.3
+    study["data"].pop("n_holdout")
+    (folder / "study.json").write_text(json.dumps(study))
+    rng = np.random.default_rng(0)
+    np.savez(folder / "candidates.npz", row_ids=np.array(["a", "b", "c", "d"]),
+             representation=rng.normal(size=(4, 2)), proba=np.full((4, 2), 0.5))
+    plan = _plan(folder, n_next=3, labels_owned=0)
+    assert len(plan.label_next) == 3 and set(plan.label_next["row_id"]) <= {"a", "b", "c", "d"}
+    assert any("holdout has only 30 rows" in w for w in plan.warnings)

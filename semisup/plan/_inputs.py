@@ -81,7 +81,7 @@ def read_json(path: Path) -> dict:
 
 
 def read_candidates(study_dir: Path) -> dict[str, np.ndarray] | None:
-    """Arrays of candidates.npz (row_ids, Z, proba), or None when the file is absent."""
+    """Arrays of candidates.npz (row_ids, Z or representation, proba), or None when absent."""
     path = Path(study_dir) / "candidates.npz"
     if not path.is_file():
         return None
@@ -92,6 +92,8 @@ def read_candidates(study_dir: Path) -> dict[str, np.ndarray] | None:
         raise PlanError(f"{path} cannot be read ({exc}); rerun the study") from None
     if "row_ids" not in arrays:
         raise PlanError(f"{path} has no array 'row_ids'; rerun the study")
+    if "Z" not in arrays and "representation" in arrays:
+        arrays["Z"] = arrays["representation"]
     n = len(arrays["row_ids"])
     for key in ("Z", "proba"):
         if key in arrays and len(arrays[key]) != n:
@@ -149,17 +151,18 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
     holdout = _lookup(sources, "n_holdout", "holdout_size", "holdout_rows")
     if holdout is None:
         raw = _lookup(sources, "holdout")
-        holdout = raw if not isinstance(raw, Mapping) else _lookup([raw], "n", "size", "rows")
+        holdout = raw if not isinstance(raw, Mapping) else _lookup([raw], "n_rows", "n", "size",
+                                                                    "rows")
         if isinstance(holdout, float) and 0 < holdout < 1:
             holdout = None  # a fraction, not a size
     facts.n_holdout = _as_int(holdout)
-    counts = _lookup(sources, "class_counts", "labeled_class_counts")
+    data = study.get("data") if isinstance(study, Mapping) else None
+    counts = _lookup([data or {}, *sources], "labeled_class_counts", "class_counts")
     if isinstance(counts, Mapping):
         parsed = {str(k): float(v) for k, v in counts.items()
                   if _as_int(v) is not None and float(v) >= 0}
         facts.class_counts = parsed
-    facts.batch_size = _as_int(_lookup(sources, "batch_size", "uncertainty_batch",
-                                       "selection_batch"))
+    facts.batch_size = _as_int(_lookup(sources, "uncertainty_batch", "selection_batch"))
     warns = study.get("warnings") if isinstance(study, Mapping) else None
     if isinstance(warns, list):
         facts.warnings = [str(w) for w in warns]

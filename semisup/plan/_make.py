@@ -159,7 +159,9 @@ def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str) ->
                      "n_labels": int(n_labels), "mean": mean,
                      "low": max(0.0, mean - half), "high": min(1.0, mean + half),
                      "measured": True, "extrapolated": False, "fit": "",
-                     "flagged": False, "n_repeats": int(vals.size)})
+                     "flagged": False, "n_repeats": int(vals.size), "interval": INTERVAL,
+                     "sd": float(vals.std(ddof=1)) if vals.size > 1 else 0.0,
+                     "min": float(vals.min()), "max": float(vals.max())})
     return rows
 
 
@@ -172,7 +174,8 @@ def _fitted_rows(band: CurveBand, display: np.ndarray, method: str, strategy: st
                      "n_labels": int(band.grid[i]), "mean": float(1 - band.point[i]),
                      "low": float(1 - band.high[i]), "high": float(1 - band.low[i]),
                      "measured": False, "extrapolated": bool(band.extrapolated[i]),
-                     "fit": band.fit.kind, "flagged": band.fit.flagged, "n_repeats": 0})
+                     "fit": band.fit.kind, "flagged": band.fit.flagged, "n_repeats": 0,
+                     "interval": band.interval, "sd": None, "min": None, "max": None})
     return rows
 
 

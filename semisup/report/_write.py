@@ -6,6 +6,7 @@ plan.json, label_next.csv); computes nothing new beyond grouping and averaging f
 
 from __future__ import annotations
 
+import json
 import logging
 import os
 from collections.abc import Mapping
@@ -62,22 +63,28 @@ def _scalar(v: object) -> bool:
     return isinstance(v, (str, int, float, bool)) or v is None
 
 
-def _pairs(d: Mapping, limit: int = 30) -> list[list[object]]:
-    """Key/value rows of a mapping; nested values shortened to readable text."""
-    rows = []
-    for key, value in list(d.items())[:limit]:
-        if _scalar(value):
-            text = value
-        elif isinstance(value, (list, tuple)) and all(_scalar(x) for x in value):
-            text = ", ".join(str(x) for x in value[:30]) + (" ..." if len(value) > 30 else "")
-        elif isinstance(value, Mapping) and all(_scalar(x) for x in value.values()):
-            items = list(value.items())[:30]
-            text = "; ".join(f"{k}: {v}" for k, v in items) + (" ..." if len(value) > 30
-                                                                 else "")
+def _text(value: object) -> object:
+    if _scalar(value):
+        return value
+    if isinstance(value, (list, tuple)) and all(_scalar(x) for x in value):
+        return ", ".join(str(x) for x in value[:30]) + (" ..." if len(value) > 30 else "")
+    return _short(json.dumps(value, default=str))
+
+
+def _pairs(d: Mapping, limit: int = 30, prefix: str = "", depth: int = 0) -> list[list[object]]:
+    """Key/value rows of a mapping; nested mappings flattened to dotted keys (two levels),
+    anything deeper shortened to readable text."""
+    rows: list[list[object]] = []
+    for key, value in d.items():
+        if len(rows) >= limit:
+            rows.append(["...", "more in the JSON file"])
+            break
+        name = f"{prefix}{key}"
+        if isinstance(value, Mapping) and value and depth < 2:
+            rows.extend(_pairs(value, limit - len(rows), f"{name}.", depth + 1))
         else:
-            text = f"({type(value).__name__}, see the JSON file)"
-        rows.append([str(key), text])
-    return rows
+            rows.append([name, _text(value)])
+    return rows[: limit + 1]
 
 
 def _curves_table(study_dir: Path, cells: pd.DataFrame | None) -> pd.DataFrame | None:
