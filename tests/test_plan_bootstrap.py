@@ -109,3 +109,18 @@ def test_full_fit_is_reused_when_given():
     fit = fit_learning_curve(n, err)
     band = bootstrap_curve(n, err, rep, np.array([100.0]), n_boot=5, seed=0, fit=fit)
     assert band.fit is fit
+
+
+def test_holdout_sampling_error_is_added():
+    # Noise-free repeats leave only the holdout's binomial error: at error rate p the 90%
+    # interval is about p +- z_0.95 * sqrt(p (1 - p) / n_holdout) (binomial standard error of a
+    # proportion; normal quantile from scipy.stats).
+    from scipy.stats import norm
+
+    n, err, rep = _cells(noise=0.0)
+    band = bootstrap_curve(n, err, rep, np.array([160.0]), n_boot=4000, seed=0,
+                           holdout_rows=100)
+    p = power_law(160.0, 0.05, 2.0, 0.6)
+    half = norm.ppf(0.95) * np.sqrt(p * (1 - p) / 100)
+    assert band.high[0] - band.point[0] == pytest.approx(half, rel=0.1)
+    assert band.point[0] - band.low[0] == pytest.approx(half, rel=0.1)

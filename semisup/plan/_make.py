@@ -270,7 +270,7 @@ def make_plan(
             seed = derive_seed(facts.seed, "plan", "bootstrap", method, strategy, m)
             band = bootstrap_curve(n, 1.0 - vals, rep, grid, fit=fit, seed=seed,
                                    n_boot=n_boot if m == metric else max(n_boot // 2, 1),
-                                   interval=INTERVAL)
+                                   interval=INTERVAL, holdout_rows=facts.n_holdout)
             curve_rows.extend(_fitted_rows(band, display, method, strategy, m))
             if m != metric:
                 continue

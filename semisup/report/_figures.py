@@ -98,6 +98,15 @@ def curve_figure(
                        alpha=0.08, linewidth=0)
             ax.text(float(n_meas.max()), 0.02, " extrapolated", transform=ax.get_xaxis_transform(),
                     fontsize=8, color="#555555", va="bottom")
+    if not data.empty:
+        # y range from the means and fitted bands (not from very wide measured intervals,
+        # which are clipped), so the curves stay readable.
+        core = pd.concat([data["mean"], data.loc[~data["measured"], ["low", "high"]].stack()])
+        if target is not None:
+            core = pd.concat([core, pd.Series([float(target)])])
+        lo, hi = float(core.min()), float(core.max())
+        pad = max(0.02, 0.08 * (hi - lo))
+        ax.set_ylim(max(0.0, lo - pad), min(1.0, hi + pad) + 0.005)
     if target is not None:
         ax.axhline(target, color="#222222", linestyle=(0, (4, 3)), linewidth=1.0,
                    label=f"target {target:g}")

@@ -67,7 +67,8 @@ def _text(value: object) -> object:
     if _scalar(value):
         return value
     if isinstance(value, (list, tuple)) and all(_scalar(x) for x in value):
-        return ", ".join(str(x) for x in value[:30]) + (" ..." if len(value) > 30 else "")
+        shown = [f"{x:.4g}" if isinstance(x, float) else str(x) for x in value[:30]]
+        return ", ".join(shown) + (" ..." if len(value) > 30 else "")
     return _short(json.dumps(value, default=str))
 
 
