@@ -240,7 +240,7 @@ def _curves_section(curves, plan, figures_dir: Path, written: list[Path]) -> Sec
         s.para("Points are measured means over repeats with their intervals; lines are the "
                "fitted inverse power law error(n) = a + b n^(-c) with shaded bootstrap bands. "
                "In the grey area the curve is extrapolated beyond the largest measured budget "
-               "(thin line) and its band is widened.", "note")
+               "(dashed line) and its band is widened; one panel per selection strategy.", "note")
     else:
         s.para("Points are measured means over repeats with their spread; no curves are "
                "fitted until a plan is made ('semisup plan').", "note")
@@ -304,6 +304,11 @@ def _plan_section(plan: Mapping | None, study_dir: Path) -> Section:
                "method and selection strategy, then run 'semisup report' again.", "note")
         return s
     s.decision(_decision_lines(plan), plan.get("chosen") is not None)
+    s.para("Predicted: the fitted curve at that budget, with its bootstrap interval. Probability: "
+           "the share of bootstrap curves (repeats resampled, the holdout's sampling error "
+           "added when its size is known) whose predicted metric meets the target. Cost: "
+           "labels still to buy times the expected price per label, plus the price of each "
+           "labeling round.", "note")
     options = list(plan.get("options") or [])
     chosen = plan.get("chosen") or {}
     key = (chosen.get("method"), chosen.get("strategy"), chosen.get("n_labels"))
