@@ -166,3 +166,15 @@ def test_report_renders_in_headless_chromium(evil_report, tmp_path):
     pixels = imread(io.BytesIO(png), format="png")
     assert pixels.shape[1] == 1200
     assert len(np.unique(pixels.reshape(-1, pixels.shape[-1])[::97], axis=0)) > 20
+
+
+def test_render_html_escapes_every_piece():
+    # Pure renderer: headers, cells, captions, bullets, headings and titles all go through
+    # the standard library's html.escape.
+    from semisup.report import ReportContent, Section, Table, render_html
+
+    sec = Section(EVIL, EVIL).para(EVIL).bullets([EVIL]).heading(EVIL)
+    sec.table(Table([EVIL], [[EVIL], [1.5]], caption=EVIL))
+    text = render_html(ReportContent(EVIL, EVIL, [sec]))
+    assert EVIL not in text and text.count("&lt;script&gt;") >= 8
+    assert '"&lt;' not in text.replace('id="&lt;', "").replace('href="#&lt;', "")
