@@ -177,4 +177,3 @@ def test_render_html_escapes_every_piece():
     sec.table(Table([EVIL], [[EVIL], [1.5]], caption=EVIL))
     text = render_html(ReportContent(EVIL, EVIL, [sec]))
     assert EVIL not in text and text.count("&lt;script&gt;") >= 8
-    assert '"&lt;' not in text.replace('id="&lt;', "").replace('href="#&lt;', "")
