@@ -1,0 +1,105 @@
+"""fit_representation: fit (or load from the cache) the study's unsupervised stage."""
+
+from __future__ import annotations
+
+import logging
+import os
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .._errors import ConfigError, DataError
+from .._seeding import derive_seed
+from ._cache import cache_key, entry_dir, load_entry, save_entry
+from ._mixture import MixtureTransformer
+from ._vae_transformer import VAETransformer
+
+__all__ = ["REPRESENTATION_KINDS", "fit_representation"]
+
+logger = logging.getLogger(__name__)
+
+REPRESENTATION_KINDS = ("vae", "mixture")
+
+
+def _estimator(kind: str, params: dict[str, Any], blocks: Sequence | None, seed: int):
+    cls = VAETransformer if kind == "vae" else MixtureTransformer
+    allowed = set(cls().get_params(deep=False)) - {"random_state", "blocks"}
+    for name in params:
+        if name in ("random_state", "blocks"):
+            raise ConfigError(
+                f"{kind} parameter {name!r} is set by fit_representation; pass seed= / blocks= "
+                "instead"
+            )
+        if name not in allowed:
+            raise ConfigError(
+                f"unknown {kind} parameter {name!r}; allowed: {', '.join(sorted(allowed))}"
+            )
+    random_state = derive_seed(seed, "pretrain", kind)
+    if kind == "vae":
+        return VAETransformer(
+            **params, blocks=None if blocks is None else tuple(blocks), random_state=random_state
+        )
+    return MixtureTransformer(**params, random_state=random_state)
+
+
+def fit_representation(
+    kind: str,
+    X: Any,
+    *,
+    blocks: Sequence | None = None,
+    params: dict[str, Any] | None = None,
+    seed: int = 0,
+    cache_dir: str | os.PathLike[str] | None = None,
+) -> tuple[VAETransformer | MixtureTransformer, dict[str, Any]]:
+    """Fit the unsupervised representation ``kind`` ("vae" or "mixture") on the rows of X.
+
+    With ``cache_dir``, the fitted model is stored under a key hashed from the data bytes,
+    kind, params, blocks, seed and semisup version; a later call with the same inputs loads it
+    (``diagnostics["loaded_from_cache"]`` is True) and gives identical ``transform`` output.
+    The estimator's seed is ``derive_seed(seed, "pretrain", kind)``. ``blocks`` (the
+    Dataset's) set the VAE's per-column likelihood; the mixture models all columns jointly.
+
+    Returns
+    -------
+    transformer : VAETransformer or MixtureTransformer (fitted)
+    diagnostics : dict
+        The transformer's ``diagnostics_`` plus ``cache_key`` and ``cache_path``.
+    """
+    if kind not in REPRESENTATION_KINDS:
+        raise ConfigError(
+            f"representation kind {kind!r} is not known; use one of "
+            f"{', '.join(REPRESENTATION_KINDS)}"
+        )
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise ConfigError(f"seed={seed!r} is not allowed; give a non-negative integer")
+    params = dict(params or {})
+    estimator = _estimator(kind, params, blocks, int(seed))
+    X = np.asarray(X)
+    if X.ndim != 2 or X.shape[0] == 0:
+        raise DataError(
+            f"X has shape {X.shape}; the {kind} stage needs a 2-D array with at least one row"
+        )
+    key = folder = None
+    if cache_dir is not None:
+        key = cache_key(
+            kind, X, blocks=blocks if kind == "vae" else None, params=params, seed=int(seed)
+        )
+        folder = entry_dir(cache_dir, kind, key)
+        loaded = load_entry(folder, key)
+        if loaded is not None:
+            logger.info("%s representation loaded from cache %s", kind, folder)
+            return loaded, _with_cache(loaded.diagnostics_, key, folder)
+    estimator.fit(X)
+    if folder is not None:
+        save_entry(folder, key, estimator)
+        logger.info("%s representation saved to cache %s", kind, folder)
+    return estimator, _with_cache(estimator.diagnostics_, key, folder)
+
+
+def _with_cache(diagnostics: dict[str, Any], key: str | None, folder: Path | None) -> dict:
+    out = dict(diagnostics)
+    out["cache_key"] = key
+    out["cache_path"] = None if folder is None else str(folder)
+    return out
