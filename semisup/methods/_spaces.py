@@ -159,11 +159,14 @@ def em_space_latent(trial) -> Params:
     }
 
 
+# One start: with 2 components per class a second restart gained 0.005-0.03 accuracy on digits
+# (3 repeats, VAE latent) at twice the fit time, and EM is already the default study's slowest
+# method; pass {"n_init": 2} in the params to trade time for it.
 def build_em_raw(params: Params, random_state: int) -> MixtureEMClassifier:
-    return MixtureEMClassifier(**{"n_init": 2, **EM_DEFAULTS_RAW, **params},
+    return MixtureEMClassifier(**{"n_init": 1, **EM_DEFAULTS_RAW, **params},
                                random_state=random_state)
 
 
 def build_em_latent(params: Params, random_state: int) -> MixtureEMClassifier:
-    return MixtureEMClassifier(**{"n_init": 2, **EM_DEFAULTS_LATENT, **params},
+    return MixtureEMClassifier(**{"n_init": 1, **EM_DEFAULTS_LATENT, **params},
                                random_state=random_state)
