@@ -235,6 +235,7 @@ def part_mixture_scale(n_rows: int) -> dict:
         "final_em_iterations": mix.n_iter_,
         "fit_seconds": fit_seconds,
         "fit_rows_per_second": n_rows / fit_seconds,
+        "selection_seconds": mix.diagnostics_["selection_seconds"],
         "transform_rows_per_second": n_rows / transform_seconds,
         "peak_rss_mb_after_data": rss_data,
         "peak_rss_mb_after_fit": rss_fit,
