@@ -162,7 +162,8 @@ def _progress(total: int, enabled: bool | None):
     except ImportError:  # pragma: no cover
         return None
     disable = (not enabled) if enabled is not None else (log.getEffectiveLevel() > logging.INFO)
-    return tqdm(total=total, desc="cells", unit="cell", disable=disable, leave=False)
+    return tqdm(total=total, desc="cells", unit="cell", disable=disable, leave=False,
+                mininterval=1.0)
 
 
 def run_study(
@@ -229,8 +230,10 @@ def run_study(
             f"labeled rows outside the holdout); use budgets up to {len(pool_idx)}"
         )
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
+    # The table's path is left out (its content hash is in): moving the file keeps the study.
+    facts = {k: v for k, v in resolved.to_dict().items() if k != "data"}
     fingerprint = hashlib.sha256(
-        (resolved.fingerprint() + _data_digest(ds)).encode("utf-8")
+        (json.dumps(facts, sort_keys=True, default=str) + _data_digest(ds)).encode("utf-8")
     ).hexdigest()
 
     store = Store(out / "study.sqlite", fingerprint, restart=restart)
@@ -385,7 +388,9 @@ def _write_candidates(out, ds, ctx, methods, cells, features, spec) -> dict[str,
     """Refit the best method at the largest budget on all pool labels; score unlabeled rows."""
     unl = ctx.unlabeled_idx
     rep_kind = "vae" if "vae" in features else "raw"
-    ok = cells[(cells["status"] == "ok") & (cells["strategy"] == "random")]
+    ok = cells[cells["status"] == "ok"]
+    if (ok["strategy"] == "random").any():
+        ok = ok[ok["strategy"] == "random"]
     proba = np.zeros((len(unl), ctx.n_classes), dtype=np.float32)
     best_name, top = None, 0
     note = "no finished cell; probabilities are zero"
