@@ -145,6 +145,13 @@ def _parse_pairs(items: Sequence[str] | None, what: str) -> dict[str, str]:
     return out
 
 
+def _number(text: str, what: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise SemisupError(f"{what} {text!r} is not a number, e.g. 0.95") from None
+
+
 def _table_kwargs(args: argparse.Namespace) -> dict:
     from .data import read_kind_overrides
 
@@ -185,7 +192,8 @@ def _cmd_study(args: argparse.Namespace) -> int:
         "data": args.data,
         **_table_kwargs(args),
         "methods": args.methods.split(",") if args.methods else None,
-        "budgets": [int(b) for b in args.budgets.split(",")] if args.budgets else None,
+        "budgets": [int(_number(b, "--budgets entry")) for b in args.budgets.split(",")]
+        if args.budgets else None,
         "repeats": args.repeats,
         "trials": args.trials,
         "strategies": args.strategies.split(",") if args.strategies else None,
@@ -202,17 +210,15 @@ def _cmd_study(args: argparse.Namespace) -> int:
 
 
 def _cmd_plan(args: argparse.Namespace) -> int:
-    from .plan import PlanRequest, make_plan
-
     metric, sep, value = args.target.partition("=")
     if not sep:
         raise SemisupError(f"--target {args.target!r} is not of the form METRIC=VALUE, "
                            "e.g. accuracy=0.95")
-    try:
-        target_value = float(value)
-    except ValueError:
-        raise SemisupError(f"--target value {value!r} is not a number, e.g. accuracy=0.95") from None
-    class_costs = {k: float(v) for k, v in _parse_pairs(args.class_cost, "--class-cost").items()}
+    target_value = _number(value, "--target value")
+    class_costs = {k: _number(v, f"--class-cost {k}") for k, v in
+                   _parse_pairs(args.class_cost, "--class-cost").items()}
+    from .plan import PlanRequest, make_plan
+
     request = PlanRequest(
         metric=metric.strip(),
         target=target_value,

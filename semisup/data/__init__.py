@@ -1,7 +1,40 @@
-"""Reading, validating and encoding tables; data cards."""
+"""Reading, validating and encoding tables; data cards; the bundled demo table."""
 
 from __future__ import annotations
 
+from ._card import DataCard, make_card, write_card
+from ._columns import infer_column_kinds
 from ._dataset import UNLABELED, Dataset, FeatureBlock
+from ._demo import DEMO_ID_COLUMN, DEMO_LABEL_COLUMN, demo_table, write_demo_table
+from ._load import dataset_from_frame, load_dataset
+from ._read import read_kind_overrides, read_table
 
-__all__ = ["UNLABELED", "Dataset", "FeatureBlock"]
+
+def __getattr__(name: str):
+    # TableEncoder imports scikit-learn (slow); load it on first use so that bad input is
+    # reported without waiting for that import.
+    if name == "TableEncoder":
+        from ._encoder import TableEncoder
+
+        return TableEncoder
+    raise AttributeError(f"module 'semisup.data' has no attribute {name!r}")
+
+
+__all__ = [
+    "DEMO_ID_COLUMN",
+    "DEMO_LABEL_COLUMN",
+    "UNLABELED",
+    "DataCard",
+    "Dataset",
+    "FeatureBlock",
+    "TableEncoder",
+    "dataset_from_frame",
+    "demo_table",
+    "infer_column_kinds",
+    "load_dataset",
+    "make_card",
+    "read_kind_overrides",
+    "read_table",
+    "write_card",
+    "write_demo_table",
+]

@@ -1,7 +1,43 @@
-"""Classifiers behind one contract (fit with y == -1 for unlabeled rows) and their registry."""
+"""Classifiers behind one contract (fit with y == -1 for unlabeled rows) and their registry.
+
+Every method is a scikit-learn classifier; ``predict_proba`` columns follow ``classes_`` (the
+labeled classes the draw contained). :func:`align_proba` spreads them over all the study's
+classes.
+"""
 
 from __future__ import annotations
 
-from ._registry import MethodSpec, MethodUnavailable, get_method, list_methods, register
+from ._base import PartiallyLabeledClassifier, labeled_mask
+from ._calibration import FewLabelCalibratedClassifier
+from ._classic import CalibratedSelfTraining, KNNLabelSpreading
+from ._mixture_em import MixtureEMClassifier
+from ._proba import align_proba
+from ._registry import (
+    MethodSpec,
+    MethodUnavailable,
+    default_methods,
+    get_method,
+    list_methods,
+    register,
+)
+from ._supervised import LabeledGBT, LabeledKNN, LabeledLogReg, LabeledSVM
 
-__all__ = ["MethodSpec", "MethodUnavailable", "get_method", "list_methods", "register"]
+__all__ = [
+    "CalibratedSelfTraining",
+    "FewLabelCalibratedClassifier",
+    "KNNLabelSpreading",
+    "LabeledGBT",
+    "LabeledKNN",
+    "LabeledLogReg",
+    "LabeledSVM",
+    "MethodSpec",
+    "MethodUnavailable",
+    "MixtureEMClassifier",
+    "PartiallyLabeledClassifier",
+    "align_proba",
+    "default_methods",
+    "get_method",
+    "labeled_mask",
+    "list_methods",
+    "register",
+]

@@ -21,6 +21,7 @@ from .._errors import ConfigError, SemisupError
 __all__ = [
     "MethodSpec",
     "MethodUnavailable",
+    "default_methods",
     "get_method",
     "list_methods",
     "register",
@@ -29,10 +30,11 @@ __all__ = [
 Representation = Literal["raw", "vae", "mixture"]
 
 
-class MethodUnavailable(SemisupError):
+class MethodUnavailable(SemisupError, ValueError):
     """A method cannot run on this draw (say, too few labels per class); the reason is the text.
 
-    The study records the cell as ``skipped`` with this reason instead of failing.
+    The study records the cell as ``skipped`` with this reason instead of failing. It is also a
+    ``ValueError`` so scikit-learn's checks (and callers) see the usual error for bad targets.
     """
 
 
@@ -53,7 +55,8 @@ class MethodSpec:
         True when the method learns from unlabeled rows (directly or through its
         representation); False for supervised-only baselines.
     search_space : callable
-        ``search_space(trial) -> dict`` of hyperparameters, drawn with optuna's ``trial.suggest_*``.
+        ``search_space(trial) -> dict`` of hyperparameters, drawn with optuna's
+        ``trial.suggest_*``.
     build : callable
         ``build(params, random_state) -> estimator`` (an unfitted scikit-learn classifier).
     default_params : dict
@@ -82,7 +85,9 @@ _REGISTRY: dict[str, MethodSpec] = {}
 def register(spec: MethodSpec) -> MethodSpec:
     """Add ``spec`` to the registry (a second method of the same name is an error)."""
     if spec.name in _REGISTRY:
-        raise ConfigError(f"method {spec.name!r} is registered twice; give the new one its own name")
+        raise ConfigError(
+            f"method {spec.name!r} is registered twice; give the new one its own name"
+        )
     if spec.name != spec.name.lower() or " " in spec.name or "_" in spec.name:
         raise ConfigError(f"method name {spec.name!r} must be lowercase with dashes")
     _REGISTRY[spec.name] = spec
@@ -107,3 +112,11 @@ def get_method(name: str) -> MethodSpec:
     except KeyError:
         known = ", ".join(sorted(_REGISTRY))
         raise ConfigError(f"unknown method {name!r}; known methods: {known}") from None
+
+
+def default_methods() -> list[str]:
+    """Names of the methods the default study runs (quick on a few thousand rows)."""
+    _load_builtin()
+    from ._builtin import DEFAULT_METHODS
+
+    return [name for name in DEFAULT_METHODS if name in _REGISTRY]

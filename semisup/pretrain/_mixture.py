@@ -15,7 +15,7 @@ from sklearn.mixture import GaussianMixture
 from sklearn.utils.validation import check_is_fitted
 from threadpoolctl import threadpool_limits
 
-from .._errors import ConfigError
+from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
 from ._validation import checked_rows
 
@@ -233,12 +233,28 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         best: GaussianMixture | None = None
         best_bic = math.inf
         for k, cov in grid:
-            gm = self._gm(k, cov).fit(X_sel)
+            try:
+                gm = self._gm(k, cov).fit(X_sel)
+            except ValueError as exc:
+                # A collapsed component (singular covariance) rules this candidate out;
+                # the others can still be scored.
+                if len(grid) == 1:
+                    raise DataError(
+                        f"the {k}-component {cov} mixture cannot be fitted ({exc}); "
+                        "raise reg_covar, use fewer components or covariance_type='diag'"
+                    ) from None
+                selection.append({"n_components": k, "covariance_type": cov, "bic": None,
+                                  "error": str(exc).split(".")[0]})
+                continue
             bic = float(gm.bic(X_sel)) if len(grid) > 1 else None
             selection.append({"n_components": k, "covariance_type": cov, "bic": bic})
             if best is None or (bic is not None and bic < best_bic):
                 best, best_bic = gm, bic
-        assert best is not None
+        if best is None:
+            raise DataError(
+                "no mixture in the grid could be fitted (every candidate had a collapsed "
+                "component); raise reg_covar or choose covariance_types=('diag',)"
+            )
         selection_seconds = time.perf_counter() - started
         if subsampled:
             final = self._gm(

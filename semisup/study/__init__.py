@@ -1,1 +1,21 @@
-"""(being built)"""
+"""Label-budget studies: spec, holdout and nested draws, tuning, metrics, store, backends."""
+
+from __future__ import annotations
+
+from ._draws import default_budgets, nested_draws, split_holdout
+from ._metrics import METRICS, holdout_metrics, summarize_curves, wilson_interval
+from ._runner import StudyResult, run_study
+from ._spec import StudySpec
+
+__all__ = [
+    "METRICS",
+    "StudyResult",
+    "StudySpec",
+    "default_budgets",
+    "holdout_metrics",
+    "nested_draws",
+    "run_study",
+    "split_holdout",
+    "summarize_curves",
+    "wilson_interval",
+]

@@ -1,0 +1,111 @@
+"""Classic semi-supervised baselines from scikit-learn behind our contract.
+
+- :class:`KNNLabelSpreading`: label spreading (Zhou et al. 2004) on a k-nearest-neighbour
+  graph, so memory stays linear in rows; used on the encoded table and on the VAE latent.
+- :class:`CalibratedSelfTraining`: scikit-learn's ``SelfTrainingClassifier`` around a logistic
+  regression calibrated with :class:`FewLabelCalibratedClassifier`.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+from sklearn.exceptions import ConvergenceWarning
+from sklearn.linear_model import LogisticRegression
+from sklearn.semi_supervised import LabelSpreading, SelfTrainingClassifier
+
+from .._errors import FitWarning
+from ._base import PartiallyLabeledClassifier
+from ._calibration import FewLabelCalibratedClassifier
+
+__all__ = ["CalibratedSelfTraining", "KNNLabelSpreading"]
+
+
+class KNNLabelSpreading(PartiallyLabeledClassifier):
+    """Label spreading on a symmetric k-nearest-neighbour graph over all rows.
+
+    Parameters
+    ----------
+    n_neighbors : int
+        Graph degree; capped at ``n_samples - 1``.
+    alpha : float in (0, 1)
+        How far labels may move from their given values per iteration (clamping factor).
+    max_iter : int
+    tol : float
+    """
+
+    uses_unlabeled = True
+
+    def __init__(self, n_neighbors: int = 7, alpha: float = 0.2, max_iter: int = 30,
+                 tol: float = 1e-3):
+        self.n_neighbors = n_neighbors
+        self.alpha = alpha
+        self.max_iter = max_iter
+        self.tol = tol
+
+    def _fit_encoded(self, X, y_code):
+        k = int(max(1, min(self.n_neighbors, X.shape[0] - 1)))
+        model = LabelSpreading(kernel="knn", n_neighbors=k, alpha=self.alpha,
+                               max_iter=self.max_iter, tol=self.tol)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", ConvergenceWarning)
+            model.fit(X, y_code)
+        if any(issubclass(w.category, ConvergenceWarning) for w in caught):
+            warnings.warn(
+                f"KNNLabelSpreading: spreading did not converge in max_iter={self.max_iter}; "
+                "raise max_iter",
+                FitWarning,
+                stacklevel=3,
+            )
+        self.model_ = model
+        self.n_iter_ = int(model.n_iter_)
+
+    def _proba_encoded(self, X):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return self.model_.predict_proba(X)  # columns are codes 0..n_classes-1
+
+
+class CalibratedSelfTraining(PartiallyLabeledClassifier):
+    """Self-training (pseudo-labels above a confidence threshold) around a calibrated
+    logistic regression.
+
+    Parameters
+    ----------
+    C : float
+        Inverse regularisation of the logistic regression.
+    threshold : float
+        Predicted probability needed to adopt a pseudo-label.
+    max_iter : int
+        Self-training rounds.
+    max_folds : int
+        Most folds of the Platt calibration (fewer when a class has fewer labels; none with a
+        single label, see :class:`FewLabelCalibratedClassifier`).
+    """
+
+    uses_unlabeled = True
+
+    def __init__(self, C: float = 1.0, threshold: float = 0.75, max_iter: int = 10,
+                 max_folds: int = 3):
+        self.C = C
+        self.threshold = threshold
+        self.max_iter = max_iter
+        self.max_folds = max_folds
+
+    def _fit_encoded(self, X, y_code):
+        base = FewLabelCalibratedClassifier(
+            LogisticRegression(C=self.C, max_iter=300), max_folds=self.max_folds
+        )
+        model = SelfTrainingClassifier(base, threshold=self.threshold, max_iter=self.max_iter)
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message=".*no unlabeled samples.*")
+            warnings.filterwarnings("ignore", category=ConvergenceWarning)
+            model.fit(X, y_code)
+        self.model_ = model
+        self.n_iter_ = max(1, int(model.n_iter_))
+
+    def _proba_encoded(self, X):
+        proba = self.model_.predict_proba(X)
+        out = np.zeros((X.shape[0], self.classes_.size))
+        out[:, self.model_.classes_.astype(int)] = proba
+        return out

@@ -1,0 +1,127 @@
+"""Supervised-only classifiers: fitted on the labeled rows, unlabeled rows (``y == -1``) dropped.
+
+The same classes serve the M1-style latent methods (Kingma et al. 2014): the study hands them
+the VAE latent means or the mixture features as ``X`` instead of the encoded table.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from sklearn.ensemble import HistGradientBoostingClassifier
+from sklearn.linear_model import LogisticRegression
+from sklearn.neighbors import KNeighborsClassifier
+from sklearn.svm import SVC
+
+from ._base import PartiallyLabeledClassifier
+from ._calibration import FewLabelCalibratedClassifier
+
+__all__ = ["LabeledGBT", "LabeledKNN", "LabeledLogReg", "LabeledSVM"]
+
+
+class LabeledLogReg(PartiallyLabeledClassifier):
+    """Multinomial logistic regression (L2) on the labeled rows.
+
+    Parameters
+    ----------
+    C : float
+        Inverse regularisation strength.
+    max_iter : int
+        lbfgs iterations.
+    """
+
+    def __init__(self, C: float = 1.0, max_iter: int = 500):
+        self.C = C
+        self.max_iter = max_iter
+
+    def _fit_encoded(self, X, y_code):
+        self.model_ = LogisticRegression(C=self.C, max_iter=self.max_iter).fit(X, y_code)
+        self.n_iter_ = int(np.max(self.model_.n_iter_))
+
+    def _proba_encoded(self, X):
+        return self.model_.predict_proba(X)
+
+
+class LabeledGBT(PartiallyLabeledClassifier):
+    """Histogram gradient-boosted trees on the labeled rows.
+
+    ``min_samples_leaf`` is capped at half the labeled rows so tiny budgets still split.
+    """
+
+    def __init__(
+        self,
+        learning_rate: float = 0.1,
+        max_iter: int = 100,
+        max_leaf_nodes: int = 15,
+        min_samples_leaf: int = 5,
+        l2_regularization: float = 0.0,
+        random_state=None,
+    ):
+        self.learning_rate = learning_rate
+        self.max_iter = max_iter
+        self.max_leaf_nodes = max_leaf_nodes
+        self.min_samples_leaf = min_samples_leaf
+        self.l2_regularization = l2_regularization
+        self.random_state = random_state
+
+    def _fit_encoded(self, X, y_code):
+        leaf = int(max(1, min(self.min_samples_leaf, X.shape[0] // 2)))
+        self.model_ = HistGradientBoostingClassifier(
+            learning_rate=self.learning_rate,
+            max_iter=self.max_iter,
+            max_leaf_nodes=self.max_leaf_nodes,
+            min_samples_leaf=leaf,
+            l2_regularization=self.l2_regularization,
+            early_stopping=False,
+            random_state=self.random_state,
+        ).fit(X, y_code)
+        self.n_iter_ = int(self.model_.n_iter_)
+
+    def _proba_encoded(self, X):
+        return self.model_.predict_proba(X)
+
+
+class LabeledKNN(PartiallyLabeledClassifier):
+    """k-nearest neighbours on the labeled rows; k is capped at the number of labeled rows."""
+
+    def __init__(self, n_neighbors: int = 5, weights: str = "distance"):
+        self.n_neighbors = n_neighbors
+        self.weights = weights
+
+    def _fit_encoded(self, X, y_code):
+        k = int(max(1, min(self.n_neighbors, X.shape[0])))
+        self.model_ = KNeighborsClassifier(n_neighbors=k, weights=self.weights).fit(X, y_code)
+
+    def _proba_encoded(self, X):
+        return self.model_.predict_proba(X)
+
+
+class LabeledSVM(PartiallyLabeledClassifier):
+    """RBF support-vector machine on the labeled rows with few-label Platt calibration.
+
+    Probabilities come from :class:`FewLabelCalibratedClassifier` (sigmoid calibration with as
+    many stratified folds as the smallest class allows, at most ``max_folds``); with a class of
+    one label they are a softmax of the one-vs-rest decision values.
+
+    Parameters
+    ----------
+    C : float
+        Margin penalty.
+    gamma_factor : float
+        RBF width as a multiple of scikit-learn's ``"scale"`` value ``1 / (n_features * X.var())``.
+    max_folds : int
+        Most calibration folds.
+    """
+
+    def __init__(self, C: float = 1.0, gamma_factor: float = 1.0, max_folds: int = 3):
+        self.C = C
+        self.gamma_factor = gamma_factor
+        self.max_folds = max_folds
+
+    def _fit_encoded(self, X, y_code):
+        var = float(X.var())
+        gamma = self.gamma_factor / (X.shape[1] * var) if var > 0 else self.gamma_factor
+        svc = SVC(C=self.C, kernel="rbf", gamma=gamma)
+        self.model_ = FewLabelCalibratedClassifier(svc, max_folds=self.max_folds).fit(X, y_code)
+
+    def _proba_encoded(self, X):
+        return self.model_.predict_proba(X)

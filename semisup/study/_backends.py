@@ -1,0 +1,154 @@
+"""Where cells run: in this process, a local process pool, or a Dask distributed cluster.
+
+Every backend takes the shared :class:`CellContext` once (process-pool initializer / Dask
+scatter), runs :func:`run_cell` on each cell, and hands each finished row back to the
+coordinator's ``on_result`` as it arrives; only the coordinator writes the store.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import sys
+from collections.abc import Callable, Iterable
+from typing import Any
+
+from .._errors import ConfigError
+from ._cell import Cell, CellContext, run_cell
+
+__all__ = ["run_cells"]
+
+log = logging.getLogger(__name__)
+
+_WORKER_CTX: CellContext | None = None
+
+
+def _one_thread() -> None:
+    """One BLAS / torch thread per worker: parallelism comes from running cells side by side."""
+    for var in ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
+        os.environ[var] = "1"  # read by torch and BLAS when they load in this worker
+    torch = sys.modules.get("torch")
+    if torch is not None:
+        torch.set_num_threads(1)
+
+
+def _dumps(obj: Any) -> bytes:
+    try:
+        import cloudpickle
+
+        return cloudpickle.dumps(obj)
+    except ImportError:  # pragma: no cover
+        import pickle
+
+        return pickle.dumps(obj)
+
+
+def _init_worker(payload: bytes) -> None:
+    import pickle
+
+    global _WORKER_CTX
+    _one_thread()
+    _WORKER_CTX = pickle.loads(payload)
+
+
+def _run_in_worker(cell: Cell) -> dict[str, Any]:
+    assert _WORKER_CTX is not None, "worker started without its context"
+    return run_cell(_WORKER_CTX, cell)
+
+
+def _run_serial(ctx: CellContext, cells: list[Cell], on_result: Callable[[dict], None]) -> None:
+    """In this process, with the same one-thread limits as a worker (same numbers, and tiny
+    fits are faster without BLAS threads)."""
+    torch = sys.modules.get("torch")
+    before = torch.get_num_threads() if torch is not None else None
+    if torch is not None:
+        torch.set_num_threads(1)
+    try:
+        for cell in cells:
+            on_result(run_cell(ctx, cell))
+    finally:
+        if torch is not None:
+            torch.set_num_threads(before)
+
+
+def _run_pool(
+    ctx: CellContext, cells: list[Cell], jobs: int, on_result: Callable[[dict], None]
+) -> None:
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+
+    # spawn: clean workers (no inherited OpenMP / torch thread state from the coordinator).
+    with ProcessPoolExecutor(
+        max_workers=jobs, mp_context=mp.get_context("spawn"),
+        initializer=_init_worker, initargs=(_dumps(ctx),),
+    ) as pool:
+        futures = [pool.submit(_run_in_worker, cell) for cell in cells]
+        try:
+            for fut in as_completed(futures):
+                on_result(fut.result())
+        except BaseException:
+            for fut in futures:
+                fut.cancel()
+            raise
+
+
+def _run_dask(
+    ctx: CellContext, cells: list[Cell], cluster: Any, jobs: int,
+    on_result: Callable[[dict], None],
+) -> None:
+    try:
+        from distributed import Client, LocalCluster, as_completed
+    except ImportError:
+        raise ConfigError(
+            "--cluster needs dask.distributed; install it with pip install 'semisup[cluster]'"
+        ) from None
+    own_cluster = own_client = None
+    if isinstance(cluster, Client):
+        client = cluster
+    elif cluster == "local-cluster":
+        own_cluster = LocalCluster(n_workers=jobs, threads_per_worker=1, processes=True,
+                                   dashboard_address=None)
+        client = own_client = Client(own_cluster)
+    elif isinstance(cluster, str):
+        try:
+            client = own_client = Client(cluster, timeout="20s")
+        except OSError as exc:
+            raise ConfigError(
+                f"cannot reach the Dask scheduler at {cluster!r} ({exc}); check the address "
+                "or use --cluster local-cluster"
+            ) from None
+    else:
+        raise ConfigError(
+            f"cluster must be an address, 'local-cluster' or a Client; got {cluster!r}"
+        )
+    try:
+        client.run(_one_thread)
+        ctx_future = client.scatter(ctx, broadcast=True)  # shipped once to every worker
+        futures = [client.submit(run_cell, ctx_future, cell, pure=False) for cell in cells]
+        for fut in as_completed(futures):
+            on_result(fut.result())
+    finally:
+        if own_client is not None:
+            own_client.close()
+        if own_cluster is not None:
+            own_cluster.close()
+
+
+def run_cells(
+    ctx: CellContext,
+    cells: Iterable[Cell],
+    on_result: Callable[[dict], None],
+    *,
+    jobs: int = 1,
+    cluster: Any = None,
+) -> None:
+    """Run ``cells`` and call ``on_result(row)`` in this process as each one finishes."""
+    cells = list(cells)
+    if not cells:
+        return
+    if cluster is not None:
+        _run_dask(ctx, cells, cluster, jobs, on_result)
+    elif jobs <= 1 or len(cells) == 1:
+        _run_serial(ctx, cells, on_result)
+    else:
+        _run_pool(ctx, cells, min(jobs, len(cells)), on_result)

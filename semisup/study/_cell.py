@@ -1,0 +1,145 @@
+"""One cell: tune, fit and evaluate one method at one budget, repeat and strategy.
+
+``run_cell`` is a pure function of the shared :class:`CellContext` and the cell key, so the
+same cell gives the same numbers on any worker of any backend.
+"""
+
+from __future__ import annotations
+
+import logging
+import sys
+import time
+import traceback
+import warnings
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .._seeding import derive_seed
+from ._metrics import align_proba, holdout_metrics
+from ._tuning import fit_method, tune_params
+
+__all__ = ["Cell", "CellContext", "cell_seed", "run_cell"]
+
+log = logging.getLogger(__name__)
+
+
+@dataclass(frozen=True, order=True)
+class Cell:
+    """Key of one cell."""
+
+    method: str
+    n_labels: int
+    repeat: int
+    strategy: str
+
+
+def cell_seed(study_seed: int, cell: Cell) -> int:
+    return derive_seed(study_seed, cell.method, cell.n_labels, cell.repeat, cell.strategy)
+
+
+@dataclass
+class CellContext:
+    """Everything a worker needs; shipped once per worker (or scattered once on Dask).
+
+    ``features[kind]`` holds every row of the table in representation ``kind`` (raw / vae /
+    mixture); ``orders[(strategy, repeat)]`` is the acquisition order into ``pool_idx``.
+    """
+
+    features: dict[str, np.ndarray]
+    y: np.ndarray
+    pool_idx: np.ndarray
+    holdout_idx: np.ndarray
+    unlabeled_idx: np.ndarray
+    orders: dict[tuple[str, int], np.ndarray]
+    methods: dict[str, Any]
+    n_classes: int
+    seed: int
+    trials: int
+    cv_folds: int
+    max_unlabeled: int
+    transductive: bool
+    extra: dict[str, Any] = field(default_factory=dict)
+
+
+def _unlabeled_rows(ctx: CellContext, draw: np.ndarray, seed: int) -> np.ndarray:
+    """Rows a semi-supervised method sees without labels: the unlabeled rows, the pool rows not
+    in the draw (labels not yet bought) and, when transductive, the holdout; capped and seeded."""
+    not_drawn = np.setdiff1d(ctx.pool_idx, draw, assume_unique=True)
+    parts = [ctx.unlabeled_idx, not_drawn]
+    if ctx.transductive:
+        parts.append(ctx.holdout_idx)
+    rows = np.sort(np.concatenate(parts))
+    if len(rows) > ctx.max_unlabeled:
+        rng = np.random.default_rng(derive_seed(seed, "unlabeled-sample"))
+        rows = np.sort(rng.choice(rows, size=ctx.max_unlabeled, replace=False))
+    return rows
+
+
+def run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
+    """Run one cell and return its store row; exceptions become ``failed`` rows.
+
+    BLAS / OpenMP pools are limited to one thread while the cell runs, so a cell gives the same
+    numbers in this process, a pool worker or a Dask worker.
+    """
+    from threadpoolctl import threadpool_limits
+
+    torch = sys.modules.get("torch")  # loaded when a method or the coordinator needed it
+    if torch is not None and torch.get_num_threads() != 1:
+        torch.set_num_threads(1)
+    with threadpool_limits(limits=1):
+        return _run_cell(ctx, cell)
+
+
+def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
+    from ..methods import MethodUnavailable
+
+    start = time.perf_counter()
+    seed = cell_seed(ctx.seed, cell)
+    row: dict[str, Any] = {
+        "method": cell.method, "n_labels": cell.n_labels, "repeat": cell.repeat,
+        "strategy": cell.strategy, "seed": seed, "status": "ok", "error": None,
+        "tune_seconds": 0.0, "fit_seconds": 0.0,
+    }
+    try:
+        method = ctx.methods[cell.method]
+        X = ctx.features[method.representation]
+        order = ctx.orders[(cell.strategy, cell.repeat)]
+        draw = ctx.pool_idx[order[: cell.n_labels]]
+        X_lab, y_lab = X[draw], ctx.y[draw]
+        if method.semi_supervised:
+            unl = _unlabeled_rows(ctx, draw, seed)
+            X_unl = X[unl]
+        else:
+            X_unl = None
+        row["n_unlabeled_used"] = 0 if X_unl is None else int(len(X_unl))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            t0 = time.perf_counter()
+            params, info = tune_params(
+                method, X_lab, y_lab, X_unl, trials=ctx.trials,
+                seed=derive_seed(seed, "tuning"), max_folds=ctx.cv_folds,
+                n_classes=ctx.n_classes,
+            )
+            t1 = time.perf_counter()
+            est = fit_method(method, params, seed, X_lab, y_lab, X_unl)
+            proba = align_proba(
+                est.predict_proba(X[ctx.holdout_idx]), est.classes_, ctx.n_classes
+            )
+            t2 = time.perf_counter()
+        row["params"] = params
+        row["tuning"] = info
+        row["tune_seconds"] = t1 - t0
+        row["fit_seconds"] = t2 - t1
+        row.update(holdout_metrics(ctx.y[ctx.holdout_idx], proba, ctx.n_classes))
+        row.pop("n_holdout", None)
+    except MethodUnavailable as exc:
+        row["status"] = "skipped"
+        row["error"] = str(exc) or type(exc).__name__
+    except Exception as exc:  # noqa: BLE001  (a failing cell is recorded; the study goes on)
+        row["status"] = "failed"
+        row["error"] = f"{type(exc).__name__}: {exc}"
+        log.debug("cell %s failed:\n%s", cell, traceback.format_exc())
+    row["seconds"] = time.perf_counter() - start
+    return row

@@ -1,0 +1,100 @@
+"""Holdout carving and nested stratified label draws (pure functions, seeded).
+
+Oliver et al. (2018) ask that the evaluation rows are fixed once and never used for training
+or tuning, and that the labeled sets of one repeat grow by adding rows, so a curve shows what
+more labels buy rather than the luck of a new draw.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from .._errors import ConfigError
+from ..selection import stratified_order
+
+__all__ = ["default_budgets", "nested_draws", "split_holdout"]
+
+
+def split_holdout(y: np.ndarray, holdout: float | int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    """Split labeled rows into (holdout, pool) positions, stratified by class.
+
+    Parameters
+    ----------
+    y : ndarray of shape (n_labeled,)
+        Class of each labeled row.
+    holdout : float or int
+        Fraction of the labeled rows (``0 < holdout < 1``) or a row count (``>= 1``).
+    seed : int
+        Seed of the split.
+
+    Each class gives ``round(holdout_fraction * n_c)`` rows to the holdout (largest remainders
+    fill the exact total), but a class always keeps at least one row in the pool when it has
+    one; a class with a single labeled row stays entirely in the pool.
+    """
+    y = np.asarray(y)
+    n = len(y)
+    if isinstance(holdout, bool) or not isinstance(holdout, (int, float, np.integer, np.floating)):
+        raise ConfigError(f"holdout must be a fraction in (0, 1) or a row count; got {holdout!r}")
+    if 0 < holdout < 1:
+        n_hold = int(round(float(holdout) * n))
+    elif holdout >= 1 and float(holdout).is_integer():
+        n_hold = int(holdout)
+    else:
+        raise ConfigError(f"holdout must be a fraction in (0, 1) or a row count; got {holdout!r}")
+    if n_hold >= n:
+        raise ConfigError(
+            f"holdout {holdout!r} leaves no labeled rows to train on ({n} labeled rows); "
+            "use a smaller holdout"
+        )
+    rng = np.random.default_rng(seed)
+    classes, counts = np.unique(y, return_counts=True)
+    exact = counts * (n_hold / n)
+    take = np.floor(exact).astype(np.int64)
+    cap = np.maximum(counts - 1, 0)  # keep one row of each class in the pool
+    take = np.minimum(take, cap)
+    remainder = exact - take
+    while take.sum() < n_hold:
+        room = take < cap
+        if not room.any():
+            break
+        score = np.where(room, remainder, -np.inf)
+        c = int(np.argmax(score))
+        take[c] += 1
+        remainder[c] -= 1
+    hold: list[np.ndarray] = []
+    pool: list[np.ndarray] = []
+    for c, k in zip(classes, take, strict=True):
+        idx = rng.permutation(np.flatnonzero(y == c))
+        hold.append(idx[:k])
+        pool.append(idx[k:])
+    return np.sort(np.concatenate(hold)), np.sort(np.concatenate(pool))
+
+
+def nested_draws(
+    y_pool: np.ndarray, budgets: Sequence[int], seed: int
+) -> dict[int, np.ndarray]:
+    """Per budget, the pool positions revealed; each draw contains every smaller one.
+
+    Every prefix of :func:`semisup.selection.stratified_order` is stratified and, once the
+    budget reaches the number of classes, holds every class.
+    """
+    order = stratified_order(np.asarray(y_pool), seed)
+    out: dict[int, np.ndarray] = {}
+    for b in sorted({int(b) for b in budgets}):
+        if b < 1 or b > len(order):
+            raise ConfigError(f"budget {b} is outside 1..{len(order)} (the pool size)")
+        out[b] = order[:b]
+    return out
+
+
+def default_budgets(n_classes: int, pool_size: int, n_points: int = 6) -> list[int]:
+    """A geometric grid from ``2 * n_classes`` up to the pool size (about ``n_points`` values)."""
+    if pool_size < 1:
+        raise ConfigError("the pool has no labeled rows; label some rows or lower the holdout")
+    lo = min(max(2 * n_classes, 1), pool_size)
+    if lo >= pool_size:
+        return [pool_size]
+    grid = np.geomspace(lo, pool_size, n_points)
+    return sorted({int(round(v)) for v in grid})
