@@ -26,8 +26,8 @@ def plot_curves(curves_csv: Path, out_png: Path, title: str, metric: str = "accu
     import matplotlib
 
     matplotlib.use("Agg")
-    import matplotlib.ticker
     import matplotlib.pyplot as plt
+    import matplotlib.ticker
     import pandas as pd
 
     from semisup._atomic import atomic_path

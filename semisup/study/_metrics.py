@@ -89,7 +89,8 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
 
     ``low``/``high`` is a Student-t interval for the across-repeat mean
     (``mean +- t * sd / sqrt(n_repeats)``), kept inside the metric's range; ``sd``, ``min`` and
-    ``max`` show the spread of single draws. With one repeat, ``low == high == mean``. Only ``status == "ok"`` cells count.
+    ``max`` show the spread of single draws. With one repeat, ``low == high == mean``. Only
+    ``status == "ok"`` cells count.
     """
     cols = ["method", "strategy", "metric", "n_labels", "mean", "low", "high", "measured",
             "sd", "min", "max", "n_repeats"]
@@ -117,7 +118,8 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
                     low, high = max(low, 0.0), min(high, 1.0)
                 rows.append({
                     "method": method, "strategy": strategy, "metric": metric,
-                    "n_labels": int(n_labels), "mean": mean, "low": low, "high": high, "measured": True, "sd": sd,
+                    "n_labels": int(n_labels), "mean": mean, "low": low, "high": high,
+                    "measured": True, "sd": sd,
                     "min": float(vals.min()), "max": float(vals.max()),
                     "n_repeats": int(len(vals)),
                 })
