@@ -38,6 +38,8 @@ _LAZY = {
     "fit_representation": "semisup.pretrain",
     # methods
     "MethodSpec": "semisup.methods",
+    "MethodUnavailable": "semisup.methods",
+    "default_methods": "semisup.methods",
     "get_method": "semisup.methods",
     "list_methods": "semisup.methods",
     # study, plan, report

@@ -83,7 +83,8 @@ def build_parser() -> argparse.ArgumentParser:
                                    "at every label budget over repeated draws. Re-running the "
                                    "same command resumes.")
     _add_table_args(p)
-    p.add_argument("--config", type=Path, metavar="FILE.toml", help="study spec (see experiments/)")
+    p.add_argument("--config", type=Path, metavar="FILE.toml",
+                   help="study spec (examples in experiments/)")
     p.add_argument("--out", type=Path, default=None, metavar="DIR",
                    help="study folder (default: <data stem>-study)")
     p.add_argument("--methods", metavar="A,B,...", help="methods to compare (default: all)")

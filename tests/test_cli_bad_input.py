@@ -69,6 +69,9 @@ ERROR_CASES = {
     "unreadable encoding": (
         "latin.csv", "a,b,label\n1,café,x\n2,thé,y\n".encode("latin-1"), [],
         ["latin.csv", "cannot be decoded as utf-8", "0xe9", "--encoding"]),
+    "undecodable byte past the sniffed sample": (
+        "late.csv", b"a,b,label\n" + b"1,abc,x\n" * 40_000 + "2,café,y\n".encode("latin-1"), [],
+        ["late.csv", "cannot be decoded as utf-8", "0xe9", "--encoding"]),
     "unknown encoding name": (
         "good.csv", GOOD, ["--encoding", "klingon-8"], ["unknown text encoding 'klingon-8'"]),
     "label column absent": (

@@ -42,6 +42,11 @@ def test_numeric_matches_sklearn_imputer_and_robust_scaler():
         frame[["x"]])[:, 1]
     np.testing.assert_array_equal(X[:, start + 1], indicator)
     assert X.dtype == np.float32
+    # a column without missing values: no indicator, same as RobustScaler alone
+    z = next(b for b in enc.blocks_ if b.column == "z")
+    assert z.width == 1 and enc.blocks_[enc.blocks_.index(z) + 1].kind != "missing"
+    np.testing.assert_allclose(X[:, z.start], RobustScaler().fit_transform(frame[["z"]])[:, 0],
+                               rtol=1e-5, atol=1e-6)
 
 
 def test_categorical_matches_sklearn_one_hot_with_infrequent_levels():
@@ -127,3 +132,46 @@ def test_infer_column_kinds_rules():
 @parametrize_with_checks([TableEncoder()])
 def test_sklearn_estimator_checks(estimator, check):
     check(estimator)
+
+
+# Property check (hypothesis): any mix of numeric / categorical columns with missing values
+# encodes to a finite float32 matrix whose blocks tile the columns and whose one-hot blocks
+# hold exactly one 1 per row (the FeatureBlock contract the VAE relies on).
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@st.composite
+def _mixed_frames(draw):
+    n = draw(st.integers(min_value=2, max_value=40))
+    n_cols = draw(st.integers(min_value=1, max_value=5))
+    columns = {}
+    for j in range(n_cols):
+        if draw(st.booleans()):
+            values = draw(st.lists(st.one_of(st.none(), st.floats(-1e6, 1e6)), min_size=n,
+                                   max_size=n))
+            columns[f"n{j}"] = pd.Series([np.nan if v is None else v for v in values],
+                                         dtype=float)
+        else:
+            values = draw(st.lists(st.one_of(st.none(), st.sampled_from("abcde")),
+                                   min_size=n, max_size=n))
+            columns[f"c{j}"] = pd.Series(values, dtype=object)
+    return pd.DataFrame(columns)
+
+
+@settings(max_examples=40, deadline=None)
+@given(_mixed_frames())
+def test_blocks_tile_output_for_any_mixed_frame(frame):
+    kinds = {c: ("numeric" if c.startswith("n") else "categorical") for c in frame.columns}
+    encoder = TableEncoder(kinds=kinds, min_level_count=1)
+    X = encoder.fit_transform(frame)
+    enc_blocks = encoder.blocks_
+    assert X.dtype == np.float32 and np.isfinite(X).all()
+    assert enc_blocks[0].start == 0 and enc_blocks[-1].stop == X.shape[1]
+    for left, right in zip(enc_blocks, enc_blocks[1:], strict=False):
+        assert left.stop == right.start
+    for block in enc_blocks:
+        if block.kind == "categorical":
+            assert (X[:, block.start:block.stop].sum(axis=1) == 1).all()
+        if block.kind == "missing":
+            np.testing.assert_array_equal(X[:, block.start], frame[block.column].isna())

@@ -167,3 +167,25 @@ def test_label_spreading_matches_sklearn():
     reached = np.all(np.isfinite(expected), axis=1)
     np.testing.assert_allclose(ours[reached], expected[reached], atol=1e-8)
     np.testing.assert_allclose(ours[~reached], 1.0 / 3.0)
+
+
+def test_few_label_calibration_uses_the_folds_the_labels_allow():
+    # Source: scikit-learn CalibratedClassifierCV with the same stratified folds; with a
+    # single label in a class no fold split exists, so the base scores are used (softmax).
+    from sklearn.calibration import CalibratedClassifierCV
+    from sklearn.model_selection import StratifiedKFold
+    from sklearn.svm import SVC
+
+    from semisup.methods import FewLabelCalibratedClassifier
+
+    X, _, y_partial = _iris_partial(per_class=2)
+    mask = y_partial >= 0
+    ours = FewLabelCalibratedClassifier(SVC(), max_folds=3).fit(X[mask], y_partial[mask])
+    assert ours.calibrated_
+    ref = CalibratedClassifierCV(SVC(), cv=StratifiedKFold(2), ensemble=False)
+    ref.fit(X[mask], y_partial[mask])
+    np.testing.assert_allclose(ours.predict_proba(X), ref.predict_proba(X), atol=1e-10)
+    X1, _, y1 = _iris_partial(per_class=1)
+    single = FewLabelCalibratedClassifier(SVC(), max_folds=3).fit(X1[y1 >= 0], y1[y1 >= 0])
+    assert not single.calibrated_
+    np.testing.assert_allclose(single.predict_proba(X1).sum(axis=1), 1.0)

@@ -171,3 +171,53 @@ def test_transformer_defaults_mirror_the_config_defaults():
     params = VAETransformer().get_params()
     params.pop("blocks")
     assert VAEConfig(**params) == VAEConfig()
+
+
+def test_nan_input_is_a_one_line_data_error():
+    X = _linear_gaussian(n=50, d=4)
+    X[3, 2] = np.nan
+    with pytest.raises(
+        DataError, match="VAETransformer cannot use X: Input X contains NaN"
+    ) as info:
+        VAETransformer(max_epochs=1).fit(X)
+    assert "\n" not in str(info.value)
+
+
+def test_training_logs_epochs_without_a_terminal(caplog):
+    X = _linear_gaussian(n=100, d=4)
+    with caplog.at_level("DEBUG", logger="semisup.pretrain"):
+        vae = VAETransformer(latent_dim=2, hidden=(8,), max_epochs=3, progress=True).fit(X)
+    epoch_lines = [r for r in caplog.records if r.getMessage().startswith("epoch ")]
+    assert len(epoch_lines) == vae.n_epochs_ == len(vae.history_)
+    assert all("seconds" in row and "train_elbo" in row for row in vae.history_)
+
+
+def test_progress_bar_shows_epoch_and_elbo_on_a_terminal(monkeypatch):
+    from semisup.pretrain import _train
+
+    class FakeBar:  # stands in for tqdm, which adds the ETA from total and updates
+        def __init__(self, total):
+            self.total, self.updates, self.postfixes, self.closed = total, 0, [], False
+
+        def update(self, n):
+            self.updates += n
+
+        def set_postfix(self, values):
+            self.postfixes.append(values)
+
+        def close(self):
+            self.closed = True
+
+    bars = []
+    monkeypatch.setattr(_train, "_is_terminal", lambda: True)
+    monkeypatch.setattr(
+        _train, "_progress_bar", lambda total: bars.append(FakeBar(total)) or bars[-1]
+    )
+    X = _linear_gaussian(n=100, d=4)
+    vae = VAETransformer(latent_dim=2, hidden=(8,), max_epochs=4, progress=True).fit(X)
+    (bar,) = bars
+    assert bar.total == 4 and bar.updates == vae.n_epochs_ and bar.closed
+    assert {"elbo", "val"} <= set(bar.postfixes[-1])
+    bars.clear()
+    VAETransformer(latent_dim=2, hidden=(8,), max_epochs=2, progress=False).fit(X)
+    assert bars == []

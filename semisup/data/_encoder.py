@@ -33,19 +33,26 @@ def robust_scale_params(values: np.ndarray) -> tuple[float, float, bool]:
     The median imputes missing values; the scale is the interquartile range of the imputed
     column, as scikit-learn's ``SimpleImputer(strategy="median")`` followed by
     ``RobustScaler()`` computes it. A zero IQR (a column that is mostly one value) falls back
-    to the standard deviation, then to 1, so rare values do not explode (common practice, no
-    source).
+    (or one a million times smaller than the farthest value from the median) falls back to the
+    standard deviation, then to 1, so rare values do not explode (common practice, no source).
     """
     values = np.asarray(values, dtype=np.float64)
     missing = np.isnan(values)
     has_missing = bool(missing.any())
     if missing.all():
         return 0.0, 1.0, True
-    median = float(np.nanmedian(values)) if has_missing else float(np.median(values))
-    filled = np.where(missing, median, values) if has_missing else values
-    q25, q75 = np.percentile(filled, [25.0, 75.0])
+    if has_missing:
+        median = float(np.nanmedian(values))
+        q25, q75 = np.percentile(np.where(missing, median, values), [25.0, 75.0])
+    else:  # one partition for all three (the 50th percentile is the median)
+        q25, median, q75 = (float(q) for q in np.percentile(values, [25.0, 50.0, 75.0]))
     scale = float(q75 - q25)
-    if not np.isfinite(scale) or scale <= 0.0:
+    filled = np.where(missing, median, values) if has_missing else values
+    # A spread that is tiny next to the farthest value (a column that is mostly one value)
+    # would blow that value up past float32; the standard deviation keeps every scaled value
+    # within about sqrt(n_samples) (common practice, no source).
+    farthest = float(np.max(np.abs(filled - median)))
+    if not np.isfinite(scale) or scale <= 0.0 or scale < farthest * 1e-6:
         scale = float(np.std(filled))
     if not np.isfinite(scale) or scale <= 0.0:
         scale = 1.0
@@ -262,6 +269,10 @@ class TableEncoder(TransformerMixin, BaseEstimator):
                 missing = np.isnan(values)
                 scaled = (values - median) / scale
                 scaled[missing] = 0.0  # the median, scaled
+                if np.abs(scaled).max(initial=0.0) > np.finfo(np.float32).max:
+                    raise DataError(f"column {column!r} has values too large to encode as "
+                                    "32-bit floats after scaling; rescale the column (e.g. "
+                                    "other units)")
                 out[:, block.start] = scaled
                 if has_missing:
                     out[:, block.start + 1] = missing

@@ -70,11 +70,12 @@ def _normalise_encoding(path: Path, encoding: str | None) -> str:
 
 
 def _decode_error(path: Path, encoding: str, exc: UnicodeDecodeError,
-                  offset: int = 0) -> DataError:
+                  position_known: bool = True) -> DataError:
     bad = exc.object[exc.start:exc.start + 1].hex() if exc.object else "??"
     label = "utf-8" if encoding == "utf-8-sig" else encoding
+    at = f" at byte {exc.start}" if position_known else ""
     return DataError(
-        f"{path}: cannot be decoded as {label} (byte 0x{bad} near byte {offset + exc.start}); "
+        f"{path}: cannot be decoded as {label} (byte 0x{bad}{at}); "
         "re-save the file as UTF-8 or pass the right --encoding (e.g. latin-1 or cp1252)"
     )
 
@@ -160,8 +161,8 @@ def _read_text(path: Path, delimiter: str | None, encoding: str | None,
             skipinitialspace=False,
             low_memory=False,
         )
-    except UnicodeDecodeError as exc:
-        raise _decode_error(path, enc, exc) from None
+    except UnicodeDecodeError as exc:  # past the sniffed sample: pandas' offset is per chunk
+        raise _decode_error(path, enc, exc, position_known=False) from None
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: no columns found; export the table again with a header row")\
             from None

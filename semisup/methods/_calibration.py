@@ -37,6 +37,9 @@ class FewLabelCalibratedClassifier(ClassifierMixin, BaseEstimator):
         Calibration map (Platt's sigmoid by default).
     max_folds : int
         Most folds to use.
+    ensemble : bool
+        Passed to ``CalibratedClassifierCV``: False (the default here) fits one calibrator on
+        the pooled out-of-fold scores and one final model, cheaper than one pair per fold.
 
     Attributes
     ----------
@@ -46,10 +49,12 @@ class FewLabelCalibratedClassifier(ClassifierMixin, BaseEstimator):
     model_ : fitted estimator
     """
 
-    def __init__(self, estimator=None, method: str = "sigmoid", max_folds: int = 3):
+    def __init__(self, estimator=None, method: str = "sigmoid", max_folds: int = 3,
+                 ensemble: bool = False):
         self.estimator = estimator
         self.method = method
         self.max_folds = max_folds
+        self.ensemble = ensemble
 
     def fit(self, X, y):
         X, y = validate_data(self, X, y, dtype=np.float64)
@@ -59,7 +64,9 @@ class FewLabelCalibratedClassifier(ClassifierMixin, BaseEstimator):
         base = clone(self.estimator)
         if n_folds >= 2 and self.classes_.size >= 2:
             cv = StratifiedKFold(n_splits=n_folds)
-            self.model_ = CalibratedClassifierCV(base, method=self.method, cv=cv).fit(X, y)
+            self.model_ = CalibratedClassifierCV(
+                base, method=self.method, cv=cv, ensemble=self.ensemble
+            ).fit(X, y)
             self.calibrated_ = True
         else:
             self.model_ = base.fit(X, y)

@@ -94,7 +94,7 @@ class MixtureEMClassifier(PartiallyLabeledClassifier):
         covariance_type: str = "full",
         unlabeled_weight: float = 1.0,
         reg_covar: float = 1e-3,
-        tol: float = 1e-4,
+        tol: float = 1e-3,
         max_iter: int = 100,
         n_init: int = 1,
         random_state=None,

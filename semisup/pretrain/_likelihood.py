@@ -155,7 +155,7 @@ def reconstruction_log_likelihood(
     of a linear decoder (see :func:`gaussian_expected_log_likelihood`).
     """
     numeric_idx, missing_idx = index
-    total = x.new_zeros(x.shape[0])
+    parts: list[torch.Tensor] = []
     if layout.numeric:
         if layout.all_numeric:
             x_num = x
@@ -171,12 +171,17 @@ def reconstruction_log_likelihood(
                 numeric_extra if layout.all_numeric else numeric_extra.index_select(1, numeric_idx)
             )
             terms = gaussian_expected_log_likelihood(x_num, mean, variance, extra)
-        total = total + terms.sum(dim=1)
+        parts.append(terms.sum(dim=1))
     if layout.missing:
         x_mis = x.index_select(1, missing_idx)
-        total = total + bernoulli_log_likelihood(x_mis, out.index_select(1, missing_idx)).sum(1)
+        parts.append(bernoulli_log_likelihood(x_mis, out.index_select(1, missing_idx)).sum(1))
     for start, stop in layout.categorical:
-        total = total + categorical_log_likelihood(x[:, start:stop], out[:, start:stop])
+        parts.append(categorical_log_likelihood(x[:, start:stop], out[:, start:stop]))
+    if not parts:
+        return x.new_zeros(x.shape[0])
+    total = parts[0]
+    for part in parts[1:]:
+        total = total + part
     return total
 
 

@@ -13,17 +13,11 @@ from scipy.special import logsumexp
 from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.mixture import GaussianMixture
 from sklearn.utils.validation import check_is_fitted
+from threadpoolctl import threadpool_limits
 
-from .._errors import ConfigError
+from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
-
-try:  # scikit-learn >= 1.6
-    from sklearn.utils.validation import validate_data as _validate_data
-except ImportError:  # pragma: no cover - older scikit-learn
-
-    def _validate_data(estimator, X, **kwargs):
-        return estimator._validate_data(X, **kwargs)
-
+from ._validation import checked_rows
 
 __all__ = ["MixtureTransformer", "component_log_densities"]
 
@@ -106,6 +100,11 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         ``transform`` output: responsibilities p(k | x), per-component log N(x | k) (without
         the mixing weight), or both side by side.
     max_iter, n_init, tol, reg_covar : passed to GaussianMixture (same defaults).
+    chunk_rows : int
+        Rows per block in ``transform`` / ``score_samples``.
+    n_threads : int or None
+        BLAS / OpenMP threads during fit and transform (threadpoolctl); None leaves them.
+        One thread is much faster than two on a busy 2-core machine (oversubscription).
     random_state : int or None
         Seed of every GaussianMixture fit and of the selection subsample.
 
@@ -131,6 +130,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         tol: float = 1e-3,
         reg_covar: float = 1e-6,
         chunk_rows: int = 65536,
+        n_threads: int | None = 1,
         random_state: int | None = 0,
     ) -> None:
         self.n_components = n_components
@@ -144,6 +144,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         self.tol = tol
         self.reg_covar = reg_covar
         self.chunk_rows = chunk_rows
+        self.n_threads = n_threads
         self.random_state = random_state
 
     def _check_params(self) -> tuple[list[int], list[str]]:
@@ -173,6 +174,12 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
                 f"covariance type {bad[0] if bad else types!r} is not allowed; "
                 f"choose from {', '.join(COVARIANCE_TYPES)}"
             )
+        if self.n_threads is not None and (
+            isinstance(self.n_threads, bool)
+            or not isinstance(self.n_threads, (int, np.integer))
+            or self.n_threads < 1
+        ):
+            raise ConfigError(f"n_threads={self.n_threads!r} is not allowed; give an int >= 1")
         for name in ("max_selection_rows", "chunk_rows", "max_iter", "n_init"):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
@@ -199,9 +206,13 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
 
     def fit(self, X: Any, y: Any = None) -> MixtureTransformer:
         """Select and fit the mixture on the rows of ``X`` (labels are ignored)."""
-        started = time.perf_counter()
         counts, types = self._check_params()
-        X = _validate_data(self, X, dtype=[np.float64, np.float32], reset=True)
+        with threadpool_limits(limits=self.n_threads):
+            return self._fit(X, counts, types)
+
+    def _fit(self, X: Any, counts: list[int], types: list[str]) -> MixtureTransformer:
+        started = time.perf_counter()
+        X = checked_rows(self, X, dtype=[np.float64, np.float32], reset=True)
         n_rows = X.shape[0]
         fitted_counts = [c for c in counts if c <= n_rows]
         if not fitted_counts:
@@ -222,12 +233,29 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         best: GaussianMixture | None = None
         best_bic = math.inf
         for k, cov in grid:
-            gm = self._gm(k, cov).fit(X_sel)
+            try:
+                gm = self._gm(k, cov).fit(X_sel)
+            except ValueError as exc:
+                # A collapsed component (singular covariance) rules this candidate out;
+                # the others can still be scored.
+                if len(grid) == 1:
+                    raise DataError(
+                        f"the {k}-component {cov} mixture cannot be fitted ({exc}); "
+                        "raise reg_covar, use fewer components or covariance_type='diag'"
+                    ) from None
+                selection.append({"n_components": k, "covariance_type": cov, "bic": None,
+                                  "error": str(exc).split(".")[0]})
+                continue
             bic = float(gm.bic(X_sel)) if len(grid) > 1 else None
             selection.append({"n_components": k, "covariance_type": cov, "bic": bic})
             if best is None or (bic is not None and bic < best_bic):
                 best, best_bic = gm, bic
-        assert best is not None
+        if best is None:
+            raise DataError(
+                "no mixture in the grid could be fitted (every candidate had a collapsed "
+                "component); raise reg_covar or choose covariance_types=('diag',)"
+            )
+        selection_seconds = time.perf_counter() - started
         if subsampled:
             final = self._gm(
                 best.n_components,
@@ -259,6 +287,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             "n_iter": int(final.n_iter_),
             "n_rows": int(n_rows),
             "seconds": time.perf_counter() - started,
+            "selection_seconds": selection_seconds,
             "loaded_from_cache": False,
         }
         logger.info(
@@ -282,9 +311,11 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
 
     def _chunks(self, X: Any):
         check_is_fitted(self, "means_")
-        X = _validate_data(self, X, dtype=[np.float64, np.float32], reset=False)
+        X = checked_rows(self, X, dtype=[np.float64, np.float32], reset=False)
         for start in range(0, X.shape[0], self.chunk_rows):
-            yield self._weighted_log_densities(X[start : start + self.chunk_rows])
+            with threadpool_limits(limits=self.n_threads):
+                part = self._weighted_log_densities(X[start : start + self.chunk_rows])
+            yield part
 
     def transform(self, X: Any) -> np.ndarray:
         """Posterior responsibilities and/or per-component log-densities, chunk by chunk."""

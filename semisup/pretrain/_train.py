@@ -129,6 +129,8 @@ def train_module(
     epoch = 0
     try:
         for epoch in range(1, config.max_epochs + 1):
+            epoch_started = time.perf_counter()
+            epoch_cpu = time.process_time()
             module.train()
             order = torch.randperm(n_rows, generator=generator)
             if train_index is not None:
@@ -141,13 +143,15 @@ def train_module(
                 else:
                     beta_now = config.beta if variational else 0.0
                 rec, kl, _ = row_terms(module, batch, layout, index)
-                loss = -(rec - beta_now * kl).mean()
+                objective = rec - beta_now * kl  # (batch,)
+                loss = -objective.mean()
                 optimizer.zero_grad(set_to_none=True)
                 loss.backward()
                 if config.grad_clip is not None:
                     torch.nn.utils.clip_grad_norm_(params, config.grad_clip)
                 optimizer.step()
-                running += (rec - kl).detach().sum()
+                # ELBO of the rows seen (beta = 1); equals the objective once warmed up
+                running += (objective if beta_now == 1.0 else rec - kl).detach().sum()
                 step += 1
             train_elbo = float(running) / n_rows
             record = {"epoch": float(epoch), "train_elbo": train_elbo}
@@ -170,6 +174,8 @@ def train_module(
                 wait = 0
             elif epoch > config.kl_warmup_epochs:
                 wait += 1
+            record["seconds"] = time.perf_counter() - epoch_started
+            record["cpu_seconds"] = time.process_time() - epoch_cpu
             _report(bar, record, epoch, config.max_epochs, started)
             if wait >= config.patience:
                 stopped_early = True

@@ -18,14 +18,7 @@ from ._config import VAEConfig
 from ._likelihood import BlockLayout, layout_from_blocks
 from ._train import EVAL_CHUNK_ROWS, evaluate_rows, torch_state, train_module
 from ._vae import VAEModule
-
-try:  # scikit-learn >= 1.6
-    from sklearn.utils.validation import validate_data as _validate_data
-except ImportError:  # pragma: no cover - older scikit-learn
-
-    def _validate_data(estimator, X, **kwargs):
-        return estimator._validate_data(X, **kwargs)
-
+from ._validation import checked_rows
 
 __all__ = ["VAETransformer"]
 
@@ -142,7 +135,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         started = time.perf_counter()
         seed = self._seed()
         cfg = self.config(seed)
-        X = _validate_data(self, X, dtype=np.float32, reset=True)
+        X = checked_rows(self, X, dtype=np.float32, reset=True)
         n_rows, n_features = X.shape
         layout = layout_from_blocks(self.blocks, n_features)
         _check_block_values(X, layout, self.blocks)
@@ -189,12 +182,10 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
             self.score_draws_ = draws
             self.n_epochs_ = result.epochs
             self.history_ = result.history
-            diag_rows = (
-                X_val
-                if X_val is not None
-                else X_t.index_select(0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS]))
-            )
-            train_rows = X_t.index_select(0, torch.from_numpy(train_index[:DIAGNOSTIC_ROWS]))
+            # a random subset of the training rows (split[n_val:] is in random order)
+            some_train = torch.from_numpy(np.sort(split[n_val:][:DIAGNOSTIC_ROWS]))
+            train_rows = X_t.index_select(0, some_train)
+            diag_rows = X_val if X_val is not None else train_rows
             self.diagnostics_ = self._diagnostics(train_rows, X_val, diag_rows)
             del X_t
         self.diagnostics_.update(
@@ -294,10 +285,13 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
 
     # -- using a fitted model ----------------------------------------------------------------
 
-    def _prepare(self, X: Any) -> np.ndarray:
+    def _scaled_chunks(self, X: Any):
+        """Validated rows of X, scaled chunk by chunk (no full scaled copy is held)."""
         check_is_fitted(self, "module_")
-        X = _validate_data(self, X, dtype=np.float32, reset=False)
-        return _scaled(X, self.mean_, self.scale_)
+        X = checked_rows(self, X, dtype=np.float32, reset=False)
+        for start in range(0, X.shape[0], EVAL_CHUNK_ROWS):
+            part = X[start : start + EVAL_CHUNK_ROWS]
+            yield torch.from_numpy(_scaled(part, self.mean_, self.scale_))
 
     def _elbo_scaled(self, X_t: torch.Tensor) -> torch.Tensor:
         """Per-row ELBO (scaled units) averaged over the fixed reparameterisation draws."""
@@ -313,22 +307,15 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
 
     def transform(self, X: Any) -> np.ndarray:
         """Latent means E_q[z | x], shape (n_samples, latent_dim), float64."""
-        X_s = self._prepare(X)
         with _threads(self.n_threads), torch.no_grad():
-            self.module_.eval()
-            X_t = torch.from_numpy(X_s)
-            parts = [
-                self.module_.encode(X_t[s : s + EVAL_CHUNK_ROWS])[0]
-                for s in range(0, X_t.shape[0], EVAL_CHUNK_ROWS)
-            ]
-        return torch.cat(parts).double().numpy()
+            parts = [self.module_.encode(chunk)[0].double() for chunk in self._scaled_chunks(X)]
+        return torch.cat(parts).numpy()
 
     def score_samples(self, X: Any) -> np.ndarray:
         """Per-row ELBO in nats (a lower bound on log p(x) in the original units of X)."""
-        X_s = self._prepare(X)
         with _threads(self.n_threads):
-            values = self._elbo_scaled(torch.from_numpy(X_s))
-        return values.numpy() + self._log_jacobian
+            parts = [self._elbo_scaled(chunk) for chunk in self._scaled_chunks(X)]
+        return torch.cat(parts).numpy() + self._log_jacobian
 
     def score(self, X: Any, y: Any = None) -> float:
         """Mean per-row ELBO in nats."""

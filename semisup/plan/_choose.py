@@ -1,0 +1,129 @@
+"""Options and the choice: the cheapest (method, budget, strategy) that is sure enough.
+
+Pure: bands, prices and the target in; option records out.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+from ._bootstrap import CurveBand, probability_meets
+from ._costs import plan_cost
+
+__all__ = ["Option", "best_effort", "budget_grid", "choose", "curve_options"]
+
+
+@dataclass(frozen=True)
+class Option:
+    """One priced (method, strategy, budget) with its predicted metric and probability."""
+
+    method: str
+    strategy: str
+    n_labels: int
+    mean: float
+    low: float
+    high: float
+    probability: float
+    cost: float
+    extrapolated: bool
+    n_new: int = 0
+    rounds: int = 0
+    fit: str = "power_law"
+    flagged: bool = False
+
+    def to_dict(self) -> dict:
+        d = asdict(self)
+        out = {
+            "method": self.method,
+            "strategy": self.strategy,
+            "n_labels": int(self.n_labels),
+            "predicted": {"mean": d.pop("mean"), "low": d.pop("low"), "high": d.pop("high")},
+            "probability": self.probability,
+            "cost": self.cost,
+            "extrapolated": bool(self.extrapolated),
+        }
+        for key in ("n_new", "rounds", "fit", "flagged"):
+            out[key] = d[key]
+        return out
+
+
+def curve_options(
+    band: CurveBand,
+    *,
+    method: str,
+    strategy: str,
+    target: float,
+    confidence: float,
+    label_price: float,
+    labels_owned: int,
+    cost_per_round: float,
+    batch_size: int | None = None,
+    show: Iterable[float] = (),
+) -> list[Option]:
+    """Options of one curve: the budgets in ``show`` plus the cheapest one that meets the
+    target with probability >= ``confidence`` (if any grid budget does).
+
+    ``band`` holds error rates; the target is on the metric scale (metric = 1 - error).
+    """
+    metric_samples = 1.0 - band.samples
+    prob = probability_meets(metric_samples, target)
+    show_set = {int(round(v)) for v in show}
+    first_ok = next((i for i, p in enumerate(prob) if p >= confidence), None)
+    out = []
+    for i, n in enumerate(band.grid):
+        n_int = int(round(n))
+        if n_int not in show_set and i != first_ok:
+            continue
+        cost, n_new, rounds = plan_cost(
+            n_int, label_price=label_price, labels_owned=labels_owned,
+            cost_per_round=cost_per_round, strategy=strategy, batch_size=batch_size,
+        )
+        out.append(Option(
+            method=method, strategy=strategy, n_labels=n_int,
+            mean=float(1.0 - band.point[i]), low=float(1.0 - band.high[i]),
+            high=float(1.0 - band.low[i]), probability=float(prob[i]), cost=float(cost),
+            extrapolated=bool(band.extrapolated[i]), n_new=n_new, rounds=rounds,
+            fit=band.fit.kind, flagged=band.fit.flagged,
+        ))
+    return out
+
+
+def _rank(o: Option) -> tuple:
+    return (o.cost, o.n_labels, -o.probability, o.method, o.strategy)
+
+
+def choose(options: Sequence[Option], confidence: float) -> tuple[Option | None, Option | None]:
+    """Cheapest option with probability >= ``confidence`` and the runner-up.
+
+    Ties in cost go to the smaller budget, then the higher probability. The runner-up is the
+    cheapest qualifying option of a different (method, strategy) pair, or None.
+    """
+    ok = sorted((o for o in options if o.probability >= confidence), key=_rank)
+    if not ok:
+        return None, None
+    chosen = ok[0]
+    runner = next((o for o in ok if (o.method, o.strategy) != (chosen.method, chosen.strategy)),
+                  None)
+    return chosen, runner
+
+
+def best_effort(options: Sequence[Option]) -> Option | None:
+    """The option with the highest predicted metric (then the highest probability)."""
+    if not options:
+        return None
+    return max(options, key=lambda o: (o.mean, o.probability, -o.cost, -o.n_labels))
+
+
+def budget_grid(n_measured: np.ndarray, limit: float, *, points: int = 80,
+                extra: Iterable[float] = ()) -> np.ndarray:
+    """Whole-number budgets from the smallest measured one up to ``limit``, geometric, plus
+    the measured budgets and any ``extra`` budgets inside that range."""
+    n_measured = np.unique(np.asarray(n_measured, dtype=float))
+    lo = float(n_measured[0])
+    geo = np.round(np.geomspace(lo, limit, points))
+    extras = [v for v in extra if lo <= v <= limit]
+    grid = np.unique(np.concatenate([geo, n_measured, np.asarray(extras, dtype=float)]))
+    return grid[(grid >= lo) & (grid <= limit)]

@@ -1,0 +1,96 @@
+"""Rows to label next: the chosen selection strategy applied to the study's candidates.
+
+The strategies themselves live in :mod:`semisup.selection`; this module only prepares the
+candidates, calls ``select_rows`` and shapes the result as ``rank, row_id, reason``.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Callable, Mapping
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["LABEL_NEXT_COLUMNS", "default_select_rows", "rank_rows"]
+
+log = logging.getLogger(__name__)
+
+LABEL_NEXT_COLUMNS = ["rank", "row_id", "reason"]
+
+SelectFn = Callable[..., object]
+
+
+def default_select_rows() -> SelectFn | None:
+    """``semisup.selection.select_rows`` if that module provides it, else None."""
+    try:
+        from ..selection import select_rows  # type: ignore[attr-defined]
+    except ImportError:
+        return None
+    return select_rows
+
+
+def _empty() -> pd.DataFrame:
+    return pd.DataFrame({"rank": pd.Series(dtype=int), "row_id": pd.Series(dtype=str),
+                         "reason": pd.Series(dtype=str)})
+
+
+def rank_rows(
+    candidates: Mapping[str, np.ndarray] | None,
+    strategy: str,
+    n: int,
+    *,
+    seed: int,
+    select_rows: SelectFn | None,
+) -> tuple[pd.DataFrame, str, list[str]]:
+    """Rank up to ``n`` candidate rows with ``strategy``.
+
+    Returns ``(table, strategy_used, warnings)``; the table has columns rank (1 = label
+    first), row_id and reason. Falls back to the random strategy when the chosen one needs
+    something the candidates lack (model probabilities for uncertainty).
+    """
+    warnings: list[str] = []
+    if n <= 0:
+        return _empty(), strategy, warnings
+    if candidates is None:
+        warnings.append("candidates.npz is missing from the study folder, so no rows can be "
+                        "listed in label_next.csv; rerun the study to write it")
+        return _empty(), strategy, warnings
+    if select_rows is None:
+        warnings.append("row selection (semisup.selection.select_rows) is not available in "
+                        "this installation; label_next.csv is left empty")
+        return _empty(), strategy, warnings
+    row_ids = np.asarray(candidates["row_ids"]).astype(str)
+    if row_ids.size == 0:
+        warnings.append("the study has no unlabeled rows to suggest for labeling")
+        return _empty(), strategy, warnings
+    Z = candidates.get("Z")
+    proba = candidates.get("proba")
+    used = strategy
+    if used == "uncertainty" and proba is None:
+        warnings.append("candidates.npz has no model probabilities ('proba'), so the rows "
+                        "are chosen at random instead of by uncertainty")
+        used = "random"
+    if used == "representative" and Z is None:
+        warnings.append("candidates.npz has no representation ('Z'), so the rows are chosen "
+                        "at random instead of by representativeness")
+        used = "random"
+    if Z is None:
+        Z = np.zeros((row_ids.size, 1), dtype=np.float32)
+    n_take = min(int(n), row_ids.size)
+    if n_take < n:
+        warnings.append(f"only {row_ids.size} unlabeled rows are available, fewer than the "
+                        f"{n} the plan asks for; all are listed")
+    selection = select_rows(used, np.asarray(Z), n_take, seed=seed,
+                            proba=None if proba is None else np.asarray(proba), exclude=None)
+    indices = np.asarray(selection.indices, dtype=int)  # type: ignore[attr-defined]
+    reasons = list(selection.reasons)  # type: ignore[attr-defined]
+    if len(reasons) != len(indices):
+        reasons = [used] * len(indices)
+    table = pd.DataFrame({
+        "rank": np.arange(1, len(indices) + 1),
+        "row_id": row_ids[indices],
+        "reason": [str(r) for r in reasons],
+    })
+    log.debug("ranked %d rows with %s", len(table), used)
+    return table, used, warnings

@@ -1,0 +1,353 @@
+"""Make a plan from a study folder (I/O edge): read, fit, price, choose, write.
+
+Writes ``plan.json``, ``curves.csv`` (measured and fitted points) and ``label_next.csv``
+atomically into the study folder; the maths is in the pure modules beside this one.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .._atomic import atomic_write_text
+from .._errors import PlanError
+from .._seeding import derive_seed
+from ._backtest import Backtest, backtest_curve
+from ._bootstrap import CurveBand, bootstrap_curve
+from ._choose import Option, best_effort, budget_grid, choose, curve_options
+from ._costs import expected_label_price
+from ._curves import MAX_EXTRAPOLATION, fit_learning_curve
+from ._inputs import (
+    StudyFacts,
+    data_warnings,
+    read_candidates,
+    read_cells,
+    read_json,
+    study_facts,
+)
+from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
+from ._request import METRICS, PlanRequest
+
+__all__ = ["CURVE_COLUMNS", "Plan", "make_plan"]
+
+log = logging.getLogger(__name__)
+
+CURVE_COLUMNS = ["method", "strategy", "metric", "n_labels", "mean", "low", "high", "measured"]
+INTERVAL = 0.9          # coverage of every interval the plan reports
+N_BOOT_PLAN = 200       # bootstrap resamples for the plan's metric
+
+
+def _fmt(x: float) -> str:
+    return f"{x:.3f}"
+
+
+@dataclass
+class Plan:
+    """A labeling plan: the choice, the options, the backtest and the rows to label next."""
+
+    request: PlanRequest
+    study_dir: Path
+    chosen: Option | None
+    runner_up: Option | None
+    best: Option | None
+    options: list[Option]
+    backtest: list[dict]
+    warnings: list[str]
+    labels_owned: int
+    label_price: float
+    label_next: pd.DataFrame
+    label_next_strategy: str
+    curves: pd.DataFrame = field(repr=False)
+    n_max: dict[str, int] = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        r = self.request
+        return {
+            "target": {"metric": r.metric, "value": r.target},
+            "confidence": r.confidence,
+            "cost_per_label": r.cost_per_label,
+            "cost_per_round": r.cost_per_round,
+            "class_costs": dict(r.class_costs),
+            "expected_price_per_label": self.label_price,
+            "labels_owned": self.labels_owned,
+            "interval": INTERVAL,
+            "max_extrapolation": MAX_EXTRAPOLATION,
+            "chosen": None if self.chosen is None else self.chosen.to_dict(),
+            "runner_up": None if self.runner_up is None else self.runner_up.to_dict(),
+            "best": None if self.best is None else self.best.to_dict(),
+            "options": [o.to_dict() for o in self.options],
+            "backtest": self.backtest,
+            "label_next": {"strategy": self.label_next_strategy,
+                           "n_rows": int(len(self.label_next))},
+            "warnings": list(self.warnings),
+        }
+
+    def _describe(self, o: Option) -> str:
+        m = self.request.metric
+        extra = ", extrapolated" if o.extrapolated else ""
+        return (f"{o.method} ({o.strategy} selection) at {o.n_labels} labels: predicted {m} "
+                f"{_fmt(o.mean)} [{_fmt(o.low)}, {_fmt(o.high)}]{extra}, probability "
+                f"{o.probability:.2f}, cost {o.cost:,.2f}")
+
+    def summary(self) -> str:
+        r = self.request
+        lines = [f"Target: {r.metric} >= {r.target:g} with probability >= {r.confidence:g} "
+                 f"(labels owned: {self.labels_owned}, expected price per label "
+                 f"{self.label_price:,.2f})."]
+        if self.chosen is not None:
+            c = self.chosen
+            if c.n_new > 0:
+                lines.append(f"Decision: buy {c.n_new} labels ({c.rounds} round(s)) and use "
+                             f"{c.method} with {c.strategy} selection, {c.n_labels} labels in "
+                             "all.")
+            else:
+                lines.append(f"Decision: no labels to buy; {c.method} trained on {c.n_labels} "
+                             "of the labels you own is predicted to meet the target.")
+            lines.append(f"  {self._describe(c)}")
+            if self.runner_up is not None:
+                lines.append(f"Runner-up: {self._describe(self.runner_up)}")
+            else:
+                lines.append("Runner-up: none (no other method and strategy meets the target "
+                             "with this confidence).")
+        else:
+            tail = (f"; the best is {self._describe(self.best)}" if self.best is not None
+                    else "")
+            lines.append(f"Decision: not reachable with these data and methods{tail}.")
+            lines.append(f"  (Budgets up to {MAX_EXTRAPOLATION:g}x the largest measured one were "
+                         "considered; measure larger budgets to look further.)")
+        for b in self.backtest:
+            if b.get("covered") is None:
+                lines.append(f"Backtest {b['method']} ({b['strategy']}): not possible, "
+                             f"{b.get('reason', '')}.")
+            else:
+                pred = b["predicted"]
+                lines.append(
+                    f"Backtest {b['method']} ({b['strategy']}) at {b['n_labels']} labels: "
+                    f"predicted {_fmt(pred['mean'])} [{_fmt(pred['low'])}, {_fmt(pred['high'])}]"
+                    f", measured {_fmt(b['measured'])}, error {b['error']:+.3f}, "
+                    f"{'covered' if b['covered'] else 'NOT covered'}.")
+        lines.append(f"Rows to label next: {len(self.label_next)} "
+                     f"({self.label_next_strategy} selection) in label_next.csv.")
+        for w in self.warnings:
+            lines.append(f"Warning: {w}")
+        lines.append(f"Wrote plan.json, curves.csv and label_next.csv in {self.study_dir}.")
+        return "\n".join(lines)
+
+
+def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str) -> list[dict]:
+    rows = []
+    for n_labels, grp in df.groupby("n_labels"):
+        vals = grp[metric].dropna().to_numpy(dtype=float)
+        if vals.size == 0:
+            continue
+        mean = float(vals.mean())
+        if vals.size > 1:
+            # Student-t interval of the mean over repeats.
+            half = float(stats.t.ppf(0.5 + INTERVAL / 2, vals.size - 1)
+                         * vals.std(ddof=1) / np.sqrt(vals.size))
+        else:
+            half = 0.0
+        rows.append({"method": method, "strategy": strategy, "metric": metric,
+                     "n_labels": int(n_labels), "mean": mean,
+                     "low": max(0.0, mean - half), "high": min(1.0, mean + half),
+                     "measured": True, "extrapolated": False, "fit": "",
+                     "flagged": False, "n_repeats": int(vals.size), "interval": INTERVAL,
+                     "sd": float(vals.std(ddof=1)) if vals.size > 1 else 0.0,
+                     "min": float(vals.min()), "max": float(vals.max())})
+    return rows
+
+
+def _fitted_rows(band: CurveBand, display: np.ndarray, method: str, strategy: str,
+                 metric: str) -> list[dict]:
+    idx = np.searchsorted(band.grid, display)
+    rows = []
+    for i in idx:
+        rows.append({"method": method, "strategy": strategy, "metric": metric,
+                     "n_labels": int(band.grid[i]), "mean": float(1 - band.point[i]),
+                     "low": float(1 - band.high[i]), "high": float(1 - band.low[i]),
+                     "measured": False, "extrapolated": bool(band.extrapolated[i]),
+                     "fit": band.fit.kind, "flagged": band.fit.flagged, "n_repeats": 0,
+                     "interval": band.interval, "sd": None, "min": None, "max": None})
+    return rows
+
+
+def _owned(request: PlanRequest, facts: StudyFacts, warnings: list[str]) -> int:
+    if request.labels_owned is not None:
+        return int(request.labels_owned)
+    if facts.n_labeled is not None:
+        return int(facts.n_labeled)
+    warnings.append("the number of labels owned is unknown (no n_labeled in study.json); "
+                    "assumed 0, pass --labels-owned to set it")
+    return 0
+
+
+def make_plan(
+    study_dir: str | os.PathLike[str],
+    request: PlanRequest,
+    *,
+    select_rows: Callable[..., object] | None = None,
+    n_boot: int = N_BOOT_PLAN,
+) -> Plan:
+    """Fit learning curves to a finished study, price the options and choose.
+
+    Parameters
+    ----------
+    study_dir : study folder with ``cells.csv`` (``study.json``, ``data_card.json`` and
+        ``candidates.npz`` are used when present).
+    request : the target, confidence and prices.
+    select_rows : row-selection function with the signature of
+        ``semisup.selection.select_rows``; default that function.
+    n_boot : bootstrap resamples for the plan's metric and its backtest (half as many for
+        the other metrics, whose curves only feed the report).
+
+    Returns
+    -------
+    Plan; ``plan.json``, ``curves.csv`` and ``label_next.csv`` are written in ``study_dir``.
+    """
+    if not isinstance(request, PlanRequest):
+        raise PlanError(f"request must be a PlanRequest, got {type(request).__name__}")
+    study_dir = Path(study_dir)
+    cells_all = read_cells(study_dir, METRICS)
+    study = read_json(study_dir / "study.json")
+    card = read_json(study_dir / "data_card.json")
+    facts = study_facts(study, card)
+    warnings: list[str] = []
+    metric = request.metric
+    if metric not in cells_all.columns:
+        raise PlanError(f"{study_dir / 'cells.csv'} has no column {metric!r}; choose a target "
+                        f"on one of {', '.join(m for m in METRICS if m in cells_all.columns)}")
+
+    n_total = len(cells_all)
+    cells = cells_all[cells_all["status"] == "ok"]
+    n_bad = n_total - len(cells)
+    if n_bad:
+        warnings.append(f"{n_bad} of {n_total} cells did not finish (failed or skipped) and "
+                        "are left out of the curves")
+    if cells.empty or cells[metric].notna().sum() == 0:
+        raise PlanError(f"{study_dir / 'cells.csv'} has no finished cell with a value of "
+                        f"{metric!r}; run or repair the study first "
+                        "('semisup study ... --rerun-failed')")
+
+    labels_owned = _owned(request, facts, warnings)
+    label_price = expected_label_price(request.cost_per_label, request.class_costs,
+                                       facts.class_counts if request.class_costs else None)
+    warnings.extend(data_warnings(facts))
+
+    metrics_present = [m for m in METRICS if m in cells.columns and cells[m].notna().any()]
+    curve_rows: list[dict] = []
+    options: list[Option] = []
+    backtests: list[dict] = []
+    n_max: dict[str, int] = {}
+    for (method, strategy), grp in cells.groupby(["method", "strategy"], sort=True):
+        for m in metrics_present:
+            sub = grp[grp[m].notna()]
+            if sub.empty:
+                continue
+            curve_rows.extend(_measured_rows(sub, method, strategy, m))
+            n = sub["n_labels"].to_numpy(dtype=float)
+            vals = sub[m].to_numpy(dtype=float)
+            if np.any((vals < 0) | (vals > 1)):
+                raise PlanError(f"{study_dir / 'cells.csv'} column {m!r} has values outside "
+                                f"[0, 1] for method {method!r}; rerun the study")
+            rep = sub["repeat"].astype(str).to_numpy()
+            levels = np.unique(n)
+            limit = MAX_EXTRAPOLATION * levels[-1]
+            display = np.unique(np.concatenate([
+                np.round(np.geomspace(levels[0], limit, 40)), levels]))
+            extra = list(display)
+            if m == metric:
+                extra.append(labels_owned)
+            grid = budget_grid(levels, limit, extra=extra)
+            fit = fit_learning_curve(n, 1.0 - vals)
+            seed = derive_seed(facts.seed, "plan", "bootstrap", method, strategy, m)
+            band = bootstrap_curve(n, 1.0 - vals, rep, grid, fit=fit, seed=seed,
+                                   n_boot=n_boot if m == metric else max(n_boot // 2, 1),
+                                   interval=INTERVAL, holdout_rows=facts.n_holdout)
+            curve_rows.extend(_fitted_rows(band, display, method, strategy, m))
+            if m != metric:
+                continue
+            n_max[f"{method} ({strategy})"] = int(levels[-1])
+            if fit.flagged:
+                warnings.append(f"{method} ({strategy}): {fit.reason}; a monotone "
+                                "interpolation is used instead, flat beyond the largest "
+                                "measured budget")
+            show = list(levels) + [levels[-1] * f for f in (1.5, 2, 3, 4)]
+            if levels[0] <= labels_owned <= limit:
+                show.append(labels_owned)
+            options.extend(curve_options(
+                band, method=method, strategy=strategy, target=request.target,
+                confidence=request.confidence, label_price=label_price,
+                labels_owned=labels_owned, cost_per_round=request.cost_per_round,
+                batch_size=facts.batch_size, show=show))
+            bt: Backtest = backtest_curve(
+                n, vals, rep, n_boot=n_boot, interval=INTERVAL,
+                seed=derive_seed(facts.seed, "plan", "backtest", method, strategy, m))
+            backtests.append({"method": method, "strategy": strategy, **bt.to_dict()})
+
+    chosen, runner_up = choose(options, request.confidence)
+    best = chosen if chosen is not None else best_effort(options)
+    options.sort(key=lambda o: (o.method, o.strategy, o.n_labels))
+    if chosen is not None and chosen.extrapolated:
+        warnings.append(f"the chosen budget ({chosen.n_labels}) lies beyond the largest measured "
+                        "budget; its prediction is extrapolated and its interval widened")
+    if chosen is not None and chosen.flagged:
+        warnings.append("the chosen curve uses the monotone fallback, not the power law")
+    for b in backtests:
+        if b["covered"] is False:
+            warnings.append(f"backtest of {b['method']} ({b['strategy']}): the interval did not "
+                            f"cover the measured {metric} at {b['n_labels']} labels "
+                            f"(error {b['error']:+.3f}); treat its extrapolation with care")
+
+    # Rows to label next.
+    strategy = chosen.strategy if chosen is not None else "random"
+    if request.n_next is not None:
+        n_rows = int(request.n_next)
+    elif chosen is not None:
+        n_rows = chosen.n_new
+    else:
+        n_rows = best.n_new if best is not None else 0
+    select = select_rows if select_rows is not None else default_select_rows()
+    label_next, strategy_used, lw = rank_rows(
+        read_candidates(study_dir), strategy, n_rows,
+        seed=derive_seed(facts.seed, "plan", "label_next", strategy), select_rows=select)
+    warnings.extend(lw)
+
+    curves = pd.DataFrame(curve_rows)
+    extra_cols = [c for c in curves.columns if c not in CURVE_COLUMNS]
+    curves = curves[CURVE_COLUMNS + extra_cols]
+
+    plan = Plan(request=request, study_dir=study_dir, chosen=chosen, runner_up=runner_up,
+                best=best, options=options, backtest=backtests, warnings=warnings,
+                labels_owned=labels_owned, label_price=label_price,
+                label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
+                curves=curves, n_max=n_max)
+    atomic_write_text(study_dir / "curves.csv", curves.to_csv(index=False))
+    atomic_write_text(study_dir / "label_next.csv", plan.label_next.to_csv(index=False))
+    atomic_write_text(study_dir / "plan.json",
+                      json.dumps(_jsonable(plan.to_dict()), indent=2) + "\n")
+    log.info("plan written to %s", study_dir / "plan.json")
+    return plan
+
+
+def _jsonable(obj):
+    """Replace NaN/inf by None and numpy scalars by Python ones (plain JSON)."""
+    if isinstance(obj, dict):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        v = float(obj)
+        return v if np.isfinite(v) else None
+    return obj

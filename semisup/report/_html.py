@@ -1,0 +1,179 @@
+"""The report as one self-contained HTML page (inline CSS, figures as base64 PNG).
+
+Pure: a :class:`ReportContent` in, a string out. Every piece of text is HTML-escaped here, at
+the one place it enters the page, so names from the user's data (columns, classes, row ids,
+method names read from files) can never become markup. No scripts, no external links.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+__all__ = ["Picture", "ReportContent", "Section", "Table", "render_html"]
+
+_CSS = """
+body{font-family:system-ui,-apple-system,"Segoe UI",Roboto,Helvetica,Arial,sans-serif;
+ margin:0;color:#1d2329;background:#fafafa;line-height:1.45}
+main{max-width:1060px;margin:0 auto;padding:24px 28px 48px;background:#fff}
+h1{font-size:1.6em;margin:0 0 4px}h2{font-size:1.25em;margin:32px 0 8px;
+ border-bottom:2px solid #e3e6ea;padding-bottom:4px}h3{font-size:1.05em;margin:18px 0 6px}
+.sub{color:#5b6570;margin:0 0 16px}
+.decision{background:#eef5fb;border-left:5px solid #1b6ca8;padding:10px 14px;margin:10px 0}
+.decision.none{background:#fdf1ef;border-left-color:#d1495b}
+.decision p{margin:4px 0}
+.note{color:#5b6570;font-size:.92em}
+table{border-collapse:collapse;margin:8px 0 14px;font-size:.9em}
+caption{caption-side:top;text-align:left;padding:2px 0}
+th,td{border:1px solid #dde1e5;padding:4px 8px;text-align:left;vertical-align:top}
+th{background:#f1f3f5}td.num{text-align:right;font-variant-numeric:tabular-nums}
+tr.hl td{background:#fff7dc;font-weight:600}
+ul.warn li{color:#8a4b00}ul.caution li{color:#6b1f1f}
+figure{margin:12px 0 20px}figure img{max-width:100%;height:auto;border:1px solid #e3e6ea}
+figcaption{font-size:.88em;color:#5b6570}
+code{background:#f1f3f5;padding:1px 4px;border-radius:3px}
+nav a{margin-right:12px;color:#1b6ca8;text-decoration:none}
+"""
+
+
+def esc(value: object) -> str:
+    """HTML-escaped text of ``value`` (quotes included)."""
+    return html.escape(str(value), quote=True)
+
+
+def fmt(value: object, digits: int = 3) -> str:
+    """Readable text of a cell: floats rounded, None/NaN as an en dash."""
+    if value is None:
+        return "\u2013"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        if math.isnan(value):
+            return "\u2013"
+        if value == int(value) and abs(value) >= 1000:
+            return f"{int(value):,}"
+        return f"{value:.{digits}f}"
+    return str(value)
+
+
+@dataclass
+class Table:
+    headers: Sequence[str]
+    rows: Sequence[Sequence[object]]
+    highlight: set[int] = field(default_factory=set)
+    caption: str = ""
+    #: format spec per column index, e.g. {3: ",.2f"}; other numbers use :func:`fmt`
+    formats: dict[int, str] = field(default_factory=dict)
+
+
+@dataclass
+class Picture:
+    png: bytes
+    caption: str
+    alt: str
+
+
+@dataclass
+class Section:
+    """A titled part of the report: paragraphs, bullet lists, tables and figures in order."""
+
+    anchor: str
+    title: str
+    blocks: list[tuple[str, object]] = field(default_factory=list)
+
+    def para(self, text: str, cls: str = "") -> Section:
+        self.blocks.append(("p", (text, cls)))
+        return self
+
+    def bullets(self, items: Sequence[str], cls: str = "") -> Section:
+        self.blocks.append(("ul", (list(items), cls)))
+        return self
+
+    def table(self, table: Table) -> Section:
+        self.blocks.append(("table", table))
+        return self
+
+    def figure(self, figure: Picture) -> Section:
+        self.blocks.append(("figure", figure))
+        return self
+
+    def heading(self, text: str) -> Section:
+        self.blocks.append(("h3", text))
+        return self
+
+    def decision(self, lines: Sequence[str], reached: bool) -> Section:
+        self.blocks.append(("decision", (list(lines), reached)))
+        return self
+
+
+@dataclass
+class ReportContent:
+    title: str
+    subtitle: str
+    sections: list[Section]
+
+
+def _table_html(t: Table) -> str:
+    out = ["<table>"]
+    if t.caption:
+        out.append(f"<caption class=\"note\">{esc(t.caption)}</caption>")
+    out.append("<thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in t.headers)
+               + "</tr></thead><tbody>")
+    for i, row in enumerate(t.rows):
+        cls = " class=\"hl\"" if i in t.highlight else ""
+        cells = []
+        for j, v in enumerate(row):
+            num = isinstance(v, (int, float)) and not isinstance(v, bool)
+            if num and j in t.formats and not (isinstance(v, float) and math.isnan(v)):
+                text = format(v, t.formats[j])
+            else:
+                text = fmt(v)
+            cells.append(f"<td class=\"num\">{esc(text)}</td>" if num
+                         else f"<td>{esc(text)}</td>")
+        out.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
+    out.append("</tbody></table>")
+    return "".join(out)
+
+
+def _block_html(kind: str, payload: object) -> str:
+    if kind == "p":
+        text, cls = payload  # type: ignore[misc]
+        return f"<p class=\"{esc(cls)}\">{esc(text)}</p>" if cls else f"<p>{esc(text)}</p>"
+    if kind == "h3":
+        return f"<h3>{esc(payload)}</h3>"
+    if kind == "ul":
+        items, cls = payload  # type: ignore[misc]
+        attr = f" class=\"{esc(cls)}\"" if cls else ""
+        return f"<ul{attr}>" + "".join(f"<li>{esc(i)}</li>" for i in items) + "</ul>"
+    if kind == "table":
+        return _table_html(payload)  # type: ignore[arg-type]
+    if kind == "figure":
+        fig: Picture = payload  # type: ignore[assignment]
+        data = base64.b64encode(fig.png).decode("ascii")
+        return (f"<figure><img src=\"data:image/png;base64,{data}\" alt=\"{esc(fig.alt)}\">"
+                f"<figcaption>{esc(fig.caption)}</figcaption></figure>")
+    if kind == "decision":
+        lines, reached = payload  # type: ignore[misc]
+        cls = "decision" if reached else "decision none"
+        return f"<div class=\"{cls}\">" + "".join(f"<p>{esc(x)}</p>" for x in lines) + "</div>"
+    raise ValueError(f"unknown block kind {kind!r}")
+
+
+def render_html(content: ReportContent) -> str:
+    """The whole page."""
+    nav = " ".join(f"<a href=\"#{esc(s.anchor)}\">{esc(s.title)}</a>" for s in content.sections)
+    body = []
+    for s in content.sections:
+        body.append(f"<section id=\"{esc(s.anchor)}\"><h2>{esc(s.title)}</h2>")
+        body.extend(_block_html(kind, payload) for kind, payload in s.blocks)
+        body.append("</section>")
+    return (
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+        "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
+        f"<title>{esc(content.title)}</title><style>{_CSS}</style></head><body><main>"
+        f"<h1>{esc(content.title)}</h1><p class=\"sub\">{esc(content.subtitle)}</p>"
+        f"<nav>{nav}</nav>" + "".join(body) + "</main></body></html>\n"
+    )

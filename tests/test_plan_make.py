@@ -1,0 +1,193 @@
+"""make_plan end to end on synthetic study folders (cells from a known inverse power law)."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from _plan_synth import TRUTH, stand_in_select_rows, write_study
+
+from semisup import PlanError
+from semisup.cli import main
+from semisup.plan import CURVE_COLUMNS, PlanRequest, make_plan, power_law
+
+N_BOOT = 40
+
+
+def _plan(folder, **kwargs):
+    req = {"metric": "accuracy", "target": 0.90, "cost_per_label": 2.0, **kwargs}
+    return make_plan(folder, PlanRequest(**req), select_rows=stand_in_select_rows,
+                     n_boot=N_BOOT)
+
+
+@pytest.fixture(scope="module")
+def study(tmp_path_factory):
+    return write_study(tmp_path_factory.mktemp("study"), strategies=("random", "uncertainty"))
+
+
+def test_plan_files_and_fixed_keys(study):
+    plan = _plan(study, labels_owned=100)
+    data = json.loads((study / "plan.json").read_text())
+    for key in ("target", "confidence", "cost_per_label", "chosen", "options", "backtest",
+                "warnings"):
+        assert key in data
+    assert data["target"] == {"metric": "accuracy", "value": 0.9}
+    chosen = data["chosen"]
+    for key in ("method", "strategy", "n_labels", "predicted", "probability", "cost",
+                "extrapolated"):
+        assert key in chosen
+    assert set(chosen["predicted"]) == {"mean", "low", "high"}
+    for b in data["backtest"]:
+        assert {"method", "n_labels", "predicted", "measured", "covered"} <= set(b)
+    curves = pd.read_csv(study / "curves.csv")
+    assert list(curves.columns[: len(CURVE_COLUMNS)]) == CURVE_COLUMNS
+    assert curves["measured"].any() and (~curves["measured"]).any()
+    assert set(curves["metric"]) == {"accuracy", "balanced_accuracy", "macro_f1"}
+    assert curves.loc[curves["extrapolated"], "measured"].eq(False).all()
+    assert curves["n_labels"].max() == 4 * 320
+    nxt = pd.read_csv(study / "label_next.csv")
+    assert list(nxt.columns) == ["rank", "row_id", "reason"]
+    assert list(nxt["rank"]) == list(range(1, len(nxt) + 1))
+    assert plan.summary().startswith("Target: accuracy >= 0.9")
+
+
+def test_chosen_is_the_cheapest_sure_option_and_its_numbers_add_up(study):
+    plan = _plan(study, labels_owned=100, cost_per_round=7.0)
+    c = plan.chosen
+    assert c is not None and c.probability >= 0.8
+    # Cost by hand: (n_labels - owned) * 2.0 + one round at 7.0.
+    assert c.cost == pytest.approx((c.n_labels - 100) * 2.0 + 7.0)
+    cheaper = [o for o in plan.options if o.probability >= 0.8 and o.cost < c.cost]
+    assert not cheaper
+    # The prediction is close to the generating curve (accuracy = 1 - a - b n^-c).
+    truth = 1 - power_law(c.n_labels, *TRUTH[c.method])
+    assert abs(c.mean - truth) < 0.015
+    assert c.method == "latent-logreg"  # the better curve by construction
+    assert plan.runner_up is not None
+    assert (plan.runner_up.method, plan.runner_up.strategy) != (c.method, c.strategy)
+
+
+def test_not_reachable_names_the_best(study):
+    plan = _plan(study, target=0.99)
+    assert plan.chosen is None and plan.best is not None
+    assert "not reachable with these data and methods; the best is latent-logreg" in (
+        plan.summary())
+    data = json.loads((study / "plan.json").read_text())
+    assert data["chosen"] is None and data["best"]["method"] == "latent-logreg"
+
+
+def test_labels_owned_default_comes_from_study_json(study):
+    plan = _plan(study)
+    assert plan.labels_owned == 400  # n_labeled in the synthetic study.json
+
+
+def test_uncertainty_choice_ranks_rows_by_margin(study):
+    plan = _plan(study, labels_owned=0, n_next=5)
+    # A plan choosing by uncertainty lists rows with margins; otherwise random rows.
+    assert len(plan.label_next) == 5
+    if plan.chosen.strategy == "uncertainty":
+        assert plan.label_next["reason"].str.startswith("margin").all()
+
+
+def test_per_class_costs_and_unknown_class(study):
+    plan = _plan(study, labels_owned=100, class_costs={"dog": 6.0})
+    # Class mix 200 cat / 200 dog -> 0.5 * 2 + 0.5 * 6 = 4.0 per label.
+    assert plan.label_price == pytest.approx(4.0)
+    with pytest.raises(PlanError, match="'bird'"):
+        _plan(study, class_costs={"bird": 1.0})
+
+
+def test_deterministic_and_inputs_untouched(tmp_path):
+    folder = write_study(tmp_path / "s")
+    digest = hashlib.sha256((folder / "cells.csv").read_bytes()).hexdigest()
+    _plan(folder, labels_owned=50)
+    first = (folder / "plan.json").read_text()
+    _plan(folder, labels_owned=50)
+    assert (folder / "plan.json").read_text() == first
+    assert hashlib.sha256((folder / "cells.csv").read_bytes()).hexdigest() == digest
+
+
+def test_degrades_without_study_json_and_candidates(tmp_path):
+    folder = write_study(tmp_path / "s", study_json=False, candidates=False, failed=2)
+    plan = _plan(folder)
+    text = " ".join(plan.warnings)
+    assert "labels owned is unknown" in text and "candidates.npz is missing" in text
+    assert "2 of" in text and plan.labels_owned == 0
+    assert plan.label_next.empty
+
+
+def test_small_holdout_and_imbalance_are_warned(tmp_path):
+    folder = write_study(tmp_path / "s", n_holdout=40, class_counts={"cat": 360, "dog": 40})
+    text = " ".join(_plan(folder).warnings)
+    assert "holdout has only 40 rows" in text and "imbalanced" in text
+
+
+def test_fallback_curve_is_flagged_in_the_plan(tmp_path):
+    folder = write_study(tmp_path / "s", budgets=(20, 40))
+    plan = _plan(folder, target=0.8)
+    assert any("monotone interpolation" in w for w in plan.warnings)
+    assert all(o.fit == "monotone" for o in plan.options)
+
+
+@pytest.mark.parametrize("damage, match", [
+    (lambda f: (f / "cells.csv").unlink(), "cells.csv not found"),
+    (lambda f: pd.read_csv(f / "cells.csv").drop(columns="repeat").to_csv(
+        f / "cells.csv", index=False), "no column 'repeat'"),
+    (lambda f: (f / "study.json").write_text("{not json"), "study.json is not valid JSON"),
+    (lambda f: pd.read_csv(f / "cells.csv").assign(n_labels=-1).to_csv(
+        f / "cells.csv", index=False), "'n_labels' has the value"),
+])
+def test_bad_study_folder_is_a_one_line_error(tmp_path, damage, match):
+    folder = write_study(tmp_path / "s")
+    damage(folder)
+    with pytest.raises(PlanError, match=match):
+        _plan(folder)
+
+
+def test_metric_missing_from_cells(tmp_path):
+    folder = write_study(tmp_path / "s")
+    pd.read_csv(folder / "cells.csv").drop(columns="macro_f1").to_csv(
+        folder / "cells.csv", index=False)
+    with pytest.raises(PlanError, match="no column 'macro_f1'"):
+        _plan(folder, metric="macro_f1")
+
+
+def test_cli_plan_and_report(tmp_path, capsys):
+    folder = write_study(tmp_path / "s", truth={"latent-logreg": TRUTH["latent-logreg"]})
+    code = main(["plan", str(folder), "--target", "accuracy=0.9", "--cost-per-label", "2",
+                 "--labels-owned", "100", "-q"])
+    out = capsys.readouterr().out
+    assert code == 0 and "Decision:" in out
+    assert main(["report", str(folder), "-q"]) == 0
+    assert (folder / "report.html").is_file()
+    assert main(["plan", str(folder), "--target", "recall=0.9", "--cost-per-label", "2"]) == 2
+    assert "unknown metric 'recall'" in capsys.readouterr().err
+
+
+def test_label_next_never_exceeds_candidates(tmp_path):
+    folder = write_study(tmp_path / "s")
+    plan = _plan(folder, labels_owned=0, n_next=500)
+    assert len(plan.label_next) == 60
+    assert plan.label_next["row_id"].is_unique
+    assert any("only 60 unlabeled rows" in w for w in plan.warnings)
+    assert np.all(plan.label_next["rank"].to_numpy() == np.arange(1, 61))
+
+
+def test_reads_the_study_runner_layout(tmp_path):
+    # study.json nests facts under data/holdout and candidates.npz may name the
+    # representation 'representation' instead of 'Z'.
+    folder = write_study(tmp_path / "s", candidates=False)
+    study = json.loads((folder / "study.json").read_text())
+    study["holdout"] = {"n_rows": 30, "class_counts": {"cat": 15, "dog": 15}}
+    study["spec"]["holdout"] = 0.3
+    study["data"].pop("n_holdout")
+    (folder / "study.json").write_text(json.dumps(study))
+    rng = np.random.default_rng(0)
+    np.savez(folder / "candidates.npz", row_ids=np.array(["a", "b", "c", "d"]),
+             representation=rng.normal(size=(4, 2)), proba=np.full((4, 2), 0.5))
+    plan = _plan(folder, n_next=3, labels_owned=0)
+    assert len(plan.label_next) == 3 and set(plan.label_next["row_id"]) <= {"a", "b", "c", "d"}
+    assert any("holdout has only 30 rows" in w for w in plan.warnings)
