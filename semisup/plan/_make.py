@@ -307,7 +307,8 @@ def make_plan(
                             f"(error {b['error']:+.3f}); treat its extrapolation with care")
 
     # Rows to label next.
-    strategy = chosen.strategy if chosen is not None else "random"
+    # Unreachable target: still rank rows the way the best option would pick them.
+    strategy = best.strategy if best is not None else "random"
     if request.n_next is not None:
         n_rows = int(request.n_next)
     elif chosen is not None:

@@ -303,7 +303,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
 
     # -- using a fitted model ----------------------------------------------------------------
 
-    def _weighted_log_densities(self, X: np.ndarray) -> np.ndarray:
+    def _weighted_log_densities(self, X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         dens = component_log_densities(
             X, self.means_, self.precisions_cholesky_, self.covariance_type_
         )
