@@ -74,7 +74,7 @@ def main() -> int:
     lines = [
         f"machine: {os.cpu_count()} cores, {platform.machine()}, Python "
         f"{platform.python_version()}, pandas {pd.__version__}",
-        f"study: digits, 400 labels (holdout 120, pool 280), default methods, "
+        f"study: digits, 401 labels (holdout 120, pool 281), default methods, "
         f"{args.repeats} repeats, trials 4",
         "",
         "| jobs | wall s | pretrain s | cells wall s | tune share | fit share | other share "
