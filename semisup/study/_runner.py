@@ -7,6 +7,7 @@ import json
 import logging
 import os
 import statistics
+import sys
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -168,7 +169,10 @@ def _progress(total: int, enabled: bool | None):
         from tqdm.auto import tqdm
     except ImportError:  # pragma: no cover
         return None
-    disable = (not enabled) if enabled is not None else (log.getEffectiveLevel() > logging.INFO)
+    if enabled is None:
+        # A bar only where a person watches: stderr is a terminal and info messages are on.
+        enabled = sys.stderr.isatty() and log.getEffectiveLevel() <= logging.INFO
+    disable = not enabled
     return tqdm(total=total, desc="cells", unit="cell", disable=disable, leave=False,
                 mininterval=1.0)
 
