@@ -121,7 +121,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--cost-per-round", type=float, default=0.0, metavar="X",
                    help="fixed price of one labeling round (default 0)")
     p.add_argument("--labels-owned", type=int, default=None, metavar="N",
-                   help="labels already paid for (default: the labeled rows in the table)")
+                   help="training labels already paid for (default: the labeled rows in the "
+                        "table less the holdout)")
     p.add_argument("--class-cost", action="append", metavar="CLASS=X", default=None,
                    help="price of one label of CLASS, overriding --cost-per-label (repeatable)")
     p.add_argument("--next", type=int, default=None, metavar="N", dest="n_next",

@@ -81,7 +81,8 @@ def test_not_reachable_names_the_best(study):
 
 def test_labels_owned_default_comes_from_study_json(study):
     plan = _plan(study)
-    assert plan.labels_owned == 400  # n_labeled in the synthetic study.json
+    # 400 labeled rows in the synthetic study.json, 150 of them kept as the holdout.
+    assert plan.labels_owned == 400 - 150
 
 
 def test_uncertainty_choice_ranks_rows_by_margin(study):

@@ -100,7 +100,7 @@ class Plan:
     def summary(self) -> str:
         r = self.request
         lines = [f"Target: {r.metric} >= {r.target:g} with probability >= {r.confidence:g} "
-                 f"(labels owned: {self.labels_owned}, expected price per label "
+                 f"(training labels owned: {self.labels_owned}, expected price per label "
                  f"{self.label_price:,.2f})."]
         if self.chosen is not None:
             c = self.chosen
@@ -183,7 +183,9 @@ def _owned(request: PlanRequest, facts: StudyFacts, warnings: list[str]) -> int:
     if request.labels_owned is not None:
         return int(request.labels_owned)
     if facts.n_labeled is not None:
-        return int(facts.n_labeled)
+        # A budget counts training labels; the holdout's labels are spent on evaluation and
+        # stay there, so they do not count towards any budget.
+        return max(0, int(facts.n_labeled) - int(facts.n_holdout or 0))
     warnings.append("the number of labels owned is unknown (no n_labeled in study.json); "
                     "assumed 0, pass --labels-owned to set it")
     return 0

@@ -35,7 +35,8 @@ class PlanRequest:
     cost_per_label : price of one label (any currency), >= 0.
     confidence : required probability of meeting the target, in (0, 1).
     cost_per_round : fixed price of one labeling round, >= 0.
-    labels_owned : labels already paid for; None means the labeled rows of the table.
+    labels_owned : training labels already paid for; None means the labeled rows of the table
+        less the holdout.
     class_costs : price of one label per class name, overriding ``cost_per_label``.
     n_next : rows to list in label_next.csv; None means what the plan buys.
     """
