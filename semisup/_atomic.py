@@ -15,6 +15,12 @@ from typing import IO
 __all__ = ["atomic_path", "atomic_write_bytes", "atomic_write_text"]
 
 
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 @contextlib.contextmanager
 def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
     """Yield a temporary path beside ``path``; on success rename it onto ``path``.
@@ -29,6 +35,8 @@ def atomic_path(path: str | os.PathLike[str]) -> Iterator[Path]:
     )
     os.close(fd)
     tmp = Path(tmp_name)
+    # mkstemp makes the file private (0600); give it the mode a plain open() would.
+    os.chmod(tmp, 0o666 & ~_current_umask())
     try:
         yield tmp
         os.replace(tmp, target)

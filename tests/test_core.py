@@ -42,6 +42,14 @@ def test_atomic_write_replaces_whole_file(tmp_path):
     assert [p.name for p in target.parent.iterdir()] == ["out.txt"]
 
 
+def test_atomic_write_gives_the_mode_open_would(tmp_path):
+    # Reference: a file made by Python's own open() under the same umask.
+    plain = tmp_path / "plain.txt"
+    plain.write_text("x")
+    atomic = atomic_write_text(tmp_path / "atomic.txt", "x")
+    assert (atomic.stat().st_mode & 0o777) == (plain.stat().st_mode & 0o777)
+
+
 def test_atomic_path_leaves_old_file_on_failure(tmp_path):
     target = tmp_path / "keep.csv"
     target.write_text("old")
