@@ -39,8 +39,9 @@ def _truthy(series: pd.Series) -> pd.Series:
 
 
 _PALETTE = (
-    "#1b6ca8", "#d1495b", "#2e933c", "#edae49", "#6c4f9c", "#00798c", "#8c564b",
-    "#e377c2", "#7f7f7f", "#bcbd22",
+    # The first six (the default study's methods) differ in hue, not only in shade.
+    "#1b6ca8", "#d1495b", "#2e933c", "#edae49", "#6c4f9c", "#8c564b", "#e377c2",
+    "#00798c", "#7f7f7f", "#bcbd22",
 )
 
 
