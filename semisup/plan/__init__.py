@@ -20,7 +20,7 @@ from ._curves import (
     fit_power_law_batch,
     power_law,
 )
-from ._inputs import StudyFacts, data_warnings, read_json, study_facts
+from ._inputs import StudyFacts, data_warnings, read_json, study_facts, tidy_cells
 from ._make import CURVE_COLUMNS, Plan, make_plan
 from ._request import METRICS, PlanRequest
 
@@ -54,4 +54,5 @@ __all__ = [
     "probability_meets",
     "read_json",
     "study_facts",
+    "tidy_cells",
 ]

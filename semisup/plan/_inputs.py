@@ -30,6 +30,20 @@ __all__ = [
 _REQUIRED = ("method", "n_labels", "repeat", "status")
 
 
+def tidy_cells(cells: pd.DataFrame, path: Path, required: Iterable[str]) -> pd.DataFrame:
+    """Check ``cells`` (read from ``path``) has the ``required`` columns; fill a missing
+    strategy with "random" and make method and strategy strings. Changes ``cells`` in place."""
+    missing = [c for c in required if c not in cells.columns]
+    if missing:
+        raise PlanError(f"{path} has no column {missing[0]!r}; it was not written by "
+                        "'semisup study' or is damaged, rerun the study")
+    if "strategy" not in cells.columns:
+        cells["strategy"] = "random"
+    cells["strategy"] = cells["strategy"].fillna("random").astype(str)
+    cells["method"] = cells["method"].astype(str)
+    return cells
+
+
 def read_cells(study_dir: Path, metrics: Iterable[str]) -> pd.DataFrame:
     """Cells with status ok, typed; ``metrics`` that are absent from the file are an error
     only when none of them is present."""
@@ -42,14 +56,7 @@ def read_cells(study_dir: Path, metrics: Iterable[str]) -> pd.DataFrame:
         cells = pd.read_csv(path, keep_default_na=True)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise PlanError(f"{path} cannot be read as CSV ({exc}); rerun the study") from None
-    missing = [c for c in _REQUIRED if c not in cells.columns]
-    if missing:
-        raise PlanError(f"{path} has no column {missing[0]!r}; it was not written by "
-                        "'semisup study' or is damaged, rerun the study")
-    if "strategy" not in cells.columns:
-        cells["strategy"] = "random"
-    cells["strategy"] = cells["strategy"].fillna("random").astype(str)
-    cells["method"] = cells["method"].astype(str)
+    cells = tidy_cells(cells, path, _REQUIRED)
     cells["status"] = cells["status"].astype(str).str.strip().str.lower()
     n_labels = pd.to_numeric(cells["n_labels"], errors="coerce")
     if n_labels.isna().any() or (n_labels <= 0).any():

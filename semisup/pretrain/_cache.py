@@ -187,14 +187,7 @@ def _load_vae(folder: Path, meta: dict[str, Any]) -> VAETransformer:
     from ._likelihood import layout_from_blocks
 
     layout: BlockLayout = layout_from_blocks(blocks, n_features)
-    module = VAEModule(
-        n_features,
-        cfg.latent_dim,
-        cfg.hidden,
-        n_variances=len(layout.numeric) if cfg.decoder_variance == "feature" else 1,
-        variational=cfg.kind == "vae",
-        min_variance=cfg.min_variance,
-    )
+    module = VAEModule.from_config(cfg, n_features, layout)
     state = {k[len("module.") :]: v for k, v in tensors.items() if k.startswith("module.")}
     module.load_state_dict(state, strict=True)
     module.eval()

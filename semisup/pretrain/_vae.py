@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import torch
 from torch import nn
@@ -28,6 +29,19 @@ class VAEModule(nn.Module):
     against probabilistic PCA / factor analysis. ``variational=False`` is a plain
     deterministic autoencoder (z = mu, no KL).
     """
+
+    @classmethod
+    def from_config(cls, cfg: Any, n_features: int, layout: BlockLayout) -> VAEModule:
+        """The module a :class:`VAEConfig` describes for ``n_features`` columns laid out as
+        ``layout`` (one learned variance per numeric column, or one shared)."""
+        return cls(
+            n_features,
+            cfg.latent_dim,
+            cfg.hidden,
+            n_variances=len(layout.numeric) if cfg.decoder_variance == "feature" else 1,
+            variational=cfg.kind == "vae",
+            min_variance=cfg.min_variance,
+        )
 
     def __init__(
         self,

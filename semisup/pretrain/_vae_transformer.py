@@ -157,14 +157,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
             X_t = torch.from_numpy(_scaled(X, mean, scale))
             X_val = X_t.index_select(0, torch.from_numpy(val_index)) if n_val else None
             train_t = torch.from_numpy(train_index) if n_val else None
-            module = VAEModule(
-                n_features,
-                cfg.latent_dim,
-                cfg.hidden,
-                n_variances=len(layout.numeric) if cfg.decoder_variance == "feature" else 1,
-                variational=cfg.kind == "vae",
-                min_variance=cfg.min_variance,
-            )
+            module = VAEModule.from_config(cfg, n_features, layout)
             result = train_module(
                 module,
                 X_t,

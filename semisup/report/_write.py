@@ -17,7 +17,7 @@ import pandas as pd
 from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
 from .._errors import PlanError, StoreError
-from ..plan import METRICS, data_warnings, read_json, study_facts
+from ..plan import METRICS, data_warnings, read_json, study_facts, tidy_cells
 from ._figures import METRIC_LABELS, curve_figure
 from ._html import Picture, ReportContent, Section, Table, render_html
 
@@ -406,16 +406,9 @@ def write_report(study_dir: str | os.PathLike[str]) -> Path:
     if not study_dir.is_dir():
         raise StoreError(f"study folder {study_dir} does not exist; run 'semisup study' first")
     cells = _read_csv(study_dir / "cells.csv")
-    if cells is not None:
-        missing = [c for c in ("method", "n_labels", "status") if c not in cells.columns]
-        if missing:
-            raise StoreError(f"{study_dir / 'cells.csv'} has no column {missing[0]!r}; rerun "
-                             "the study")
-        if "strategy" not in cells.columns:
-            cells["strategy"] = "random"
-        cells["strategy"] = cells["strategy"].fillna("random").astype(str)
-        cells["method"] = cells["method"].astype(str)
     try:
+        if cells is not None:
+            cells = tidy_cells(cells, study_dir / "cells.csv", ("method", "n_labels", "status"))
         study = read_json(study_dir / "study.json")
         card = read_json(study_dir / "data_card.json")
         plan = read_json(study_dir / "plan.json") or None
