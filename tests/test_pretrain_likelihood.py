@@ -120,9 +120,8 @@ def test_blocks_that_do_not_cover_the_columns_are_a_clear_error():
 def test_score_samples_is_the_elbo_whatever_the_training_beta(beta):
     rng = np.random.default_rng(4)
     X = (rng.normal(size=(120, 5)) * [1.0, 2.0, 0.5, 3.0, 1.0] + 10.0).astype(np.float32)
-    vae = VAETransformer(
-        latent_dim=3, hidden=(16,), beta=beta, max_epochs=5, random_state=0
-    ).fit(X)
+    vae = VAETransformer(latent_dim=3, hidden=(16,), beta=beta, max_epochs=5, random_state=0)
+    vae.fit(X)
     x = torch.from_numpy(X.astype(np.float64))
     mean = torch.from_numpy(np.asarray(vae.mean_, dtype=np.float64))
     scale = torch.from_numpy(np.asarray(vae.scale_, dtype=np.float64))
