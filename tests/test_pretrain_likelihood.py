@@ -114,3 +114,33 @@ def test_blocks_that_do_not_cover_the_columns_are_a_clear_error():
         )
     with pytest.raises(ConfigError, match="kind 'text'"):
         layout_from_blocks((FeatureBlock("text", 0, 1, "a"),), 1)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize("beta", [0.3, 1.0])
+def test_score_samples_is_the_elbo_whatever_the_training_beta(beta):
+    rng = np.random.default_rng(4)
+    X = (rng.normal(size=(120, 5)) * [1.0, 2.0, 0.5, 3.0, 1.0] + 10.0).astype(np.float32)
+    vae = VAETransformer(latent_dim=3, hidden=(16,), beta=beta, max_epochs=5, random_state=0)
+    vae.fit(X)
+    x = torch.from_numpy(X.astype(np.float64))
+    mean = torch.from_numpy(np.asarray(vae.mean_, dtype=np.float64))
+    scale = torch.from_numpy(np.asarray(vae.scale_, dtype=np.float64))
+    with torch.no_grad():
+        mu, logvar = vae.module_.encode(((x - mean) / scale).float())
+        sd_out = scale * vae.module_.variance().double().sqrt()  # decoder sd, original units
+        q = Normal(mu.double(), torch.exp(0.5 * logvar.double()))
+        # Reference: torch.distributions -- KL(q(z|x) || N(0, I)) with weight 1 (the ELBO,
+        # Kingma & Welling 2014 eq. 3) and the decoder's Normal log-density in the original
+        # units of X, averaged over the model's fixed reparameterisation draws.
+        kl = kl_divergence(q, Normal(torch.zeros_like(q.loc), torch.ones_like(q.loc))).sum(-1)
+        recs = []
+        for eps in torch.from_numpy(vae.score_draws_):
+            z = q.loc + q.scale * eps.double()
+            out = vae.module_.decode(z.float()).double()
+            recs.append(Normal(mean + scale * out, sd_out).log_prob(x).sum(-1))
+        rec = torch.stack(recs).mean(0)
+    elbo = (rec - kl).numpy()
+    np.testing.assert_allclose(vae.score_samples(X), elbo, rtol=1e-4, atol=1e-3)
+    assert vae.score(X) == pytest.approx(float(elbo.mean()), rel=1e-4, abs=1e-3)
+    if beta != 1.0:  # the training objective rec - beta * KL is a different number
+        assert np.max(np.abs(vae.score_samples(X) - (rec - beta * kl).numpy())) > 1e-2

@@ -24,7 +24,15 @@ class VAEConfig:
 
     latent_dim: int = 16  # size of z
     hidden: tuple[int, ...] = (128, 64)  # encoder widths; the decoder mirrors them; () = linear
-    beta: float = 1.0  # weight of the KL term after warm-up (1.0 = the ELBO)
+    # Weight of the KL term after warm-up (1.0 = the ELBO). A beta below 1 weights the
+    # reconstruction over the prior (the beta-VAE of Higgins et al. 2017 uses beta != 1); for
+    # representation learning with few labels this trades ELBO for more informative latent
+    # means (common practice, no source). Measured on scikit-learn's digits, 5 repeats, mean
+    # holdout accuracy of latent-spreading / latent-mixture-em / latent-logreg over 20-200
+    # labels: beta 1: 0.824/0.796/0.732; 0.5: 0.847/0.822/0.755; 0.3: 0.856/0.816/0.759;
+    # 0.1: 0.868/0.812/0.774; 0.05: 0.870/0.807/0.778 (benchmarks/results/methods.md).
+    # score_samples / score stay the true ELBO (KL weight 1) whatever beta is.
+    beta: float = 0.1
     learning_rate: float = 3e-3  # Adam step size
     max_epochs: int = 150  # upper bound on passes over the training rows
     batch_size: int = 256  # rows per minibatch

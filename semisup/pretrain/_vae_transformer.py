@@ -42,7 +42,8 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
     categorical blocks (categorical). ``None`` treats every column as numeric.
 
     ``kind="ae"`` gives a plain deterministic autoencoder with the same likelihood and no KL
-    term; its ``score_samples`` is then the reconstruction log-likelihood, not an ELBO.
+    term; its ``score_samples`` is then the reconstruction log-likelihood, not an ELBO. With
+    ``kind="vae"``, ``score_samples`` is the ELBO (KL weight 1) whatever the training ``beta``.
 
     Attributes
     ----------
@@ -66,7 +67,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         self,
         latent_dim: int = 16,
         hidden: tuple[int, ...] = (128, 64),
-        beta: float = 1.0,
+        beta: float = 0.1,
         learning_rate: float = 3e-3,
         max_epochs: int = 150,
         batch_size: int = 256,
