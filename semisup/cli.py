@@ -147,11 +147,11 @@ def _parse_pairs(items: Sequence[str] | None, what: str) -> dict[str, str]:
     return out
 
 
-def _number(text: str, what: str) -> float:
+def _number(text: str, what: str, example: str = "0.95") -> float:
     try:
         return float(text)
     except ValueError:
-        raise SemisupError(f"{what} {text!r} is not a number, e.g. 0.95") from None
+        raise SemisupError(f"{what} {text!r} is not a number, e.g. {example}") from None
 
 
 def _table_kwargs(args: argparse.Namespace) -> dict:
@@ -194,7 +194,8 @@ def _cmd_study(args: argparse.Namespace) -> int:
         "data": args.data,
         **_table_kwargs(args),
         "methods": args.methods.split(",") if args.methods else None,
-        "budgets": [int(_number(b, "--budgets entry")) for b in args.budgets.split(",")]
+        "budgets": [int(_number(b, "--budgets entry", "20,50,100")) for b in
+                    args.budgets.split(",")]
         if args.budgets else None,
         "repeats": args.repeats,
         "trials": args.trials,
