@@ -154,6 +154,15 @@ def _number(text: str, what: str, example: str = "0.95") -> float:
         raise SemisupError(f"{what} {text!r} is not a number, e.g. {example}") from None
 
 
+def _budgets(text: str) -> list[int]:
+    budgets = [_number(b, "--budgets entry", "20,50,100") for b in text.split(",")]
+    for b in budgets:
+        if not b.is_integer() or b < 1:
+            raise SemisupError(f"--budgets entry {b:g} is not a whole number of labels >= 1, "
+                               "e.g. 20,50,100")
+    return [int(b) for b in budgets]
+
+
 def _table_kwargs(args: argparse.Namespace) -> dict:
     from .data import read_kind_overrides
 
@@ -194,9 +203,7 @@ def _cmd_study(args: argparse.Namespace) -> int:
         "data": args.data,
         **_table_kwargs(args),
         "methods": args.methods.split(",") if args.methods else None,
-        "budgets": [int(_number(b, "--budgets entry", "20,50,100")) for b in
-                    args.budgets.split(",")]
-        if args.budgets else None,
+        "budgets": _budgets(args.budgets) if args.budgets else None,
         "repeats": args.repeats,
         "trials": args.trials,
         "strategies": args.strategies.split(",") if args.strategies else None,
