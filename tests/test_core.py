@@ -94,3 +94,18 @@ def test_importing_semisup_does_not_load_torch():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          env={**os.environ, "PYTHONPATH": str(ROOT)})
     assert out.stdout.strip() == "False"
+
+
+@pytest.mark.parametrize("budgets, expected", [
+    ("5,abc", "'abc' is not a number"),
+    ("5.5,10", "5.5 is not a whole number"),
+    ("0,10", "0 is not a whole number"),
+])
+def test_cli_bad_budgets_are_one_line_errors(tmp_path, budgets, expected):
+    table = tmp_path / "t.csv"
+    table.write_text("x,y\n1,a\n2,b\n3,\n")
+    out = run_cli("study", str(table), "--label-column", "y", "--budgets", budgets,
+                  "--out", str(tmp_path / "s"))
+    assert out.returncode == 2
+    assert expected in out.stderr and "Traceback" not in out.stderr
+    assert not (tmp_path / "s").exists()
