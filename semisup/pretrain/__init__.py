@@ -10,7 +10,7 @@
 from __future__ import annotations
 
 from ._config import VAEConfig
-from ._fit import REPRESENTATION_KINDS, fit_representation
+from ._fit import REPRESENTATION_KINDS, fit_representation, representation_params
 from ._likelihood import (
     BlockLayout,
     bernoulli_log_likelihood,
@@ -37,4 +37,5 @@ __all__ = [
     "gaussian_log_likelihood",
     "kl_standard_normal",
     "layout_from_blocks",
+    "representation_params",
 ]

@@ -23,6 +23,17 @@ logger = logging.getLogger(__name__)
 REPRESENTATION_KINDS = ("vae", "mixture")
 
 
+def representation_params(kind: str, params: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Every parameter of the ``kind`` stage that shapes its result, defaults filled in.
+
+    Cache keys and study fingerprints hash this, so changing a default (in a new release, say)
+    never reuses a representation fitted under the old one.
+    """
+    estimator = _estimator(kind, dict(params or {}), None, 0)
+    return {k: v for k, v in estimator.get_params(deep=False).items()
+            if k not in ("blocks", "progress", "random_state")}
+
+
 def _estimator(kind: str, params: dict[str, Any], blocks: Sequence | None, seed: int):
     cls = VAETransformer if kind == "vae" else MixtureTransformer
     allowed = set(cls().get_params(deep=False)) - {"random_state", "blocks"}
@@ -83,8 +94,10 @@ def fit_representation(
         )
     key = folder = None
     if cache_dir is not None:
+        # Key on every resolved parameter, defaults included (the seed is keyed on its own).
+        resolved = representation_params(kind, params)
         key = cache_key(
-            kind, X, blocks=blocks if kind == "vae" else None, params=params, seed=int(seed)
+            kind, X, blocks=blocks if kind == "vae" else None, params=resolved, seed=int(seed)
         )
         folder = entry_dir(cache_dir, kind, key)
         loaded = load_entry(folder, key)

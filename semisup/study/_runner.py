@@ -243,6 +243,17 @@ def run_study(
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
     # The table's path is left out (its content hash is in): moving the file keeps the study.
     facts = {k: v for k, v in resolved.to_dict().items() if k != "data"}
+    # The unsupervised stages' parameters with their defaults filled in: a new default in a
+    # later release must not resume cells measured on the old representation.
+    kinds = {m.representation for m in methods.values()} - {"raw"}
+    if kinds and representation_fn is None:  # an injected stand-in has its own parameters
+        from ..pretrain import representation_params
+
+        facts.pop("pretrain", None)  # replaced by the resolved parameters below
+        facts["pretrain_resolved"] = {
+            kind: representation_params(kind, dict(spec.pretrain.get(kind, {})))
+            for kind in sorted(kinds)
+        }
     fingerprint = hashlib.sha256(
         (json.dumps(facts, sort_keys=True, default=str) + _data_digest(ds)).encode("utf-8")
     ).hexdigest()
@@ -252,7 +263,6 @@ def run_study(
         # ---- unsupervised stage: once per study
         fit_parts = [unlabeled_idx, pool_idx] + ([holdout_idx] if spec.transductive else [])
         fit_rows = np.sort(np.concatenate(fit_parts))
-        kinds = {m.representation for m in methods.values()} - {"raw"}
         features, diagnostics, rep_errors, rep_seconds = _fit_representations(
             kinds, ds, fit_rows, resolved, out, representation_fn
         )
