@@ -17,7 +17,8 @@ from typing import Any
 import numpy as np
 
 from .._seeding import derive_seed
-from ._metrics import align_proba, holdout_metrics
+from ..methods import align_proba
+from ._metrics import holdout_metrics
 from ._tuning import fit_method, tune_params
 
 __all__ = ["Cell", "CellContext", "cell_seed", "run_cell"]

@@ -8,7 +8,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-__all__ = ["METRICS", "align_proba", "holdout_metrics", "summarize_curves", "wilson_interval"]
+__all__ = ["METRICS", "holdout_metrics", "summarize_curves", "wilson_interval"]
 
 #: Metrics measured on the holdout for every cell (higher is better except log_loss).
 METRICS = ("accuracy", "balanced_accuracy", "macro_f1", "log_loss")
@@ -32,18 +32,6 @@ def wilson_interval(successes: int, n: int, confidence: float = 0.95) -> tuple[f
     centre = (p + z * z / (2 * n)) / denom
     half = z * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / denom
     return max(0.0, centre - half), min(1.0, centre + half)
-
-
-def align_proba(proba: np.ndarray, model_classes: np.ndarray, n_classes: int) -> np.ndarray:
-    """Put a model's probability columns (for ``model_classes``) into all ``n_classes`` columns.
-
-    Classes the model never saw get probability 0 (clipped later for log-loss).
-    """
-    proba = np.asarray(proba, dtype=float)
-    out = np.zeros((proba.shape[0], n_classes))
-    cols = np.asarray(model_classes, dtype=np.int64)
-    out[:, cols] = proba
-    return out
 
 
 def holdout_metrics(y_true: np.ndarray, proba: np.ndarray, n_classes: int) -> dict:

@@ -433,7 +433,7 @@ def _write_candidates(out, ds, ctx, methods, cells, features, spec) -> dict[str,
         try:
             est = fit_method(method, params, seed, X[ctx.pool_idx], ctx.y[ctx.pool_idx], X_unl)
             if len(unl):
-                from ._metrics import align_proba
+                from ..methods import align_proba
 
                 proba = align_proba(est.predict_proba(X[unl]), est.classes_,
                                     ctx.n_classes).astype(np.float32)

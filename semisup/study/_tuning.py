@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from ._metrics import align_proba
+from ..methods import align_proba
 
 __all__ = ["cv_splits", "fit_method", "tune_params"]
 
