@@ -16,7 +16,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
 
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
@@ -130,17 +129,15 @@ def _fit_representations(kinds, ds, fit_rows, spec, out_dir, representation_fn):
     for kind in sorted(kinds):
         t0 = time.perf_counter()
         try:
-            # The mixture's many small BLAS calls run far slower with several BLAS threads on a
-            # busy machine (measured 1.9 s against 71 s on digits, benchmarks/results/study.md);
-            # the VAE (torch) keeps its threads.
-            limit = 1 if kind == "mixture" else None
-            with threadpool_limits(limits=limit, user_api="blas"):
-                transformer, diag = representation_fn(
-                    kind, ds.X[fit_rows], blocks=ds.blocks,
-                    params=dict(spec.pretrain.get(kind, {})),
-                    seed=derive_seed(spec.seed, "pretrain", kind), cache_dir=out_dir / "cache",
-                )
-                features[kind] = np.asarray(transformer.transform(ds.X), dtype=np.float32)
+            # Thread counts are the stage's own parameter (n_threads): the mixture defaults to
+            # one BLAS thread, 1.9 s against 71 s on digits on a busy machine
+            # (benchmarks/results/study.md).
+            transformer, diag = representation_fn(
+                kind, ds.X[fit_rows], blocks=ds.blocks,
+                params=dict(spec.pretrain.get(kind, {})),
+                seed=derive_seed(spec.seed, "pretrain", kind), cache_dir=out_dir / "cache",
+            )
+            features[kind] = np.asarray(transformer.transform(ds.X), dtype=np.float32)
             diagnostics[kind] = diag
         except Exception as exc:  # noqa: BLE001  (its methods fail; the baselines still run)
             errors[kind] = f"{type(exc).__name__}: {exc}"
