@@ -17,7 +17,7 @@ from ._config import VAEConfig
 from ._likelihood import BlockLayout
 from ._vae import VAEModule, row_terms
 
-__all__ = ["TrainResult", "evaluate_rows", "torch_state", "train_module"]
+__all__ = ["TrainResult", "evaluate_rows", "pinned_threads", "torch_state", "train_module"]
 
 logger = logging.getLogger(__name__)
 
@@ -36,26 +36,38 @@ class TrainResult:
     history: list[dict[str, float]] = field(default_factory=list)
 
 
+class pinned_threads:
+    """Pin torch's thread count for a block (None leaves it alone)."""
+
+    def __init__(self, n_threads: int | None) -> None:
+        self.n_threads = n_threads
+        self.previous = 0
+
+    def __enter__(self) -> None:
+        self.previous = torch.get_num_threads()
+        if self.n_threads is not None and self.n_threads != self.previous:
+            torch.set_num_threads(int(self.n_threads))
+
+    def __exit__(self, *exc: object) -> None:
+        if torch.get_num_threads() != self.previous:
+            torch.set_num_threads(self.previous)
+
+
 @contextlib.contextmanager
 def torch_state(seed: int, n_threads: int | None) -> Iterator[None]:
     """Seed torch, pin the thread count and ask for deterministic kernels; restore after.
 
     The caller's global RNG, thread count and determinism flag are left as they were.
     """
-    previous_threads = torch.get_num_threads()
     previous_det = torch.are_deterministic_algorithms_enabled()
     previous_warn = torch.is_deterministic_algorithms_warn_only_enabled()
-    with torch.random.fork_rng(devices=[]):
+    with torch.random.fork_rng(devices=[]), pinned_threads(n_threads):
         torch.manual_seed(seed)
-        if n_threads is not None and n_threads != previous_threads:
-            torch.set_num_threads(n_threads)
         torch.use_deterministic_algorithms(True, warn_only=True)
         try:
             yield
         finally:
             torch.use_deterministic_algorithms(previous_det, warn_only=previous_warn)
-            if torch.get_num_threads() != previous_threads:
-                torch.set_num_threads(previous_threads)
 
 
 @torch.no_grad()

@@ -16,7 +16,7 @@ from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
 from ._config import VAEConfig
 from ._likelihood import BlockLayout, layout_from_blocks
-from ._train import EVAL_CHUNK_ROWS, evaluate_rows, torch_state, train_module
+from ._train import EVAL_CHUNK_ROWS, evaluate_rows, pinned_threads, torch_state, train_module
 from ._vae import VAEModule
 from ._validation import checked_rows
 
@@ -301,13 +301,13 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
 
     def transform(self, X: Any) -> np.ndarray:
         """Latent means E_q[z | x], shape (n_samples, latent_dim), float64."""
-        with _threads(self.n_threads), torch.no_grad():
+        with pinned_threads(self.n_threads), torch.no_grad():
             parts = [self.module_.encode(chunk)[0].double() for chunk in self._scaled_chunks(X)]
         return torch.cat(parts).numpy()
 
     def score_samples(self, X: Any) -> np.ndarray:
         """Per-row ELBO in nats (a lower bound on log p(x) in the original units of X)."""
-        with _threads(self.n_threads):
+        with pinned_threads(self.n_threads):
             parts = [self._elbo_scaled(chunk) for chunk in self._scaled_chunks(X)]
         return torch.cat(parts).numpy() + self._log_jacobian
 
@@ -332,7 +332,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         seed = derive_seed(self._seed() if random_state is None else random_state, "sample")
         gen = torch.Generator().manual_seed(seed)
         layout = self.layout_
-        with _threads(self.n_threads), torch.no_grad():
+        with pinned_threads(self.n_threads), torch.no_grad():
             z = torch.randn((int(n_samples), self.latent_dim), generator=gen)
             out = self.module_.decode(z)
             X = torch.zeros_like(out)
@@ -349,23 +349,6 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
                 X[:, a:b] = torch.nn.functional.one_hot(pick, b - a).to(X.dtype)
         values = X.double().numpy()
         return values * self.scale_ + self.mean_
-
-
-class _threads:
-    """Pin torch's thread count for a block (None leaves it alone)."""
-
-    def __init__(self, n_threads: int | None) -> None:
-        self.n_threads = n_threads
-        self.previous = 0
-
-    def __enter__(self) -> None:
-        self.previous = torch.get_num_threads()
-        if self.n_threads is not None and self.n_threads != self.previous:
-            torch.set_num_threads(int(self.n_threads))
-
-    def __exit__(self, *exc: object) -> None:
-        if torch.get_num_threads() != self.previous:
-            torch.set_num_threads(self.previous)
 
 
 def _column_scaling(
