@@ -14,7 +14,7 @@ import logging
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .data import make_card, write_card, write_demo_table
+from .data import DEMO_ID_COLUMN, DEMO_LABEL_COLUMN, make_card, write_card, write_demo_table
 from .plan import PlanRequest, make_plan
 from .report import write_report
 from .study import StudySpec, run_study
@@ -23,8 +23,6 @@ __all__ = ["DemoResult", "run_demo", "DEMO_LABEL_COLUMN", "DEMO_ID_COLUMN"]
 
 log = logging.getLogger(__name__)
 
-DEMO_LABEL_COLUMN = "digit"
-DEMO_ID_COLUMN = "form_id"
 #: Invented price of one clerk-read crop (a few seconds of clerk time), for the demo only.
 DEMO_COST_PER_LABEL = 0.25
 DEMO_TARGET = ("accuracy", 0.95)
