@@ -15,11 +15,11 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._atomic import atomic_write_text
 from .._errors import PlanError
 from .._seeding import derive_seed
+from ..study import summarize_curves
 from ._backtest import Backtest, backtest_curve
 from ._bootstrap import CurveBand, bootstrap_curve
 from ._choose import Option, best_effort, budget_grid, choose, curve_options
@@ -143,26 +143,15 @@ class Plan:
 
 
 def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str) -> list[dict]:
-    rows = []
-    for n_labels, grp in df.groupby("n_labels"):
-        vals = grp[metric].dropna().to_numpy(dtype=float)
-        if vals.size == 0:
-            continue
-        mean = float(vals.mean())
-        if vals.size > 1:
-            # Student-t interval of the mean over repeats.
-            half = float(stats.t.ppf(0.5 + INTERVAL / 2, vals.size - 1)
-                         * vals.std(ddof=1) / np.sqrt(vals.size))
-        else:
-            half = 0.0
-        rows.append({"method": method, "strategy": strategy, "metric": metric,
-                     "n_labels": int(n_labels), "mean": mean,
-                     "low": max(0.0, mean - half), "high": min(1.0, mean + half),
-                     "measured": True, "extrapolated": False, "fit": "",
-                     "flagged": False, "n_repeats": int(vals.size), "interval": INTERVAL,
-                     "sd": float(vals.std(ddof=1)) if vals.size > 1 else 0.0,
-                     "min": float(vals.min()), "max": float(vals.max())})
-    return rows
+    """The study's measured points (Student-t interval of the mean over repeats), at the
+    plan's interval level and with the plan's extra curve columns."""
+    points = summarize_curves(df, metrics=[metric], confidence=INTERVAL)
+    return [{"method": method, "strategy": strategy, "metric": metric,
+             "n_labels": int(p["n_labels"]), "mean": p["mean"], "low": p["low"],
+             "high": p["high"], "measured": True, "extrapolated": False, "fit": "",
+             "flagged": False, "n_repeats": int(p["n_repeats"]), "interval": INTERVAL,
+             "sd": p["sd"], "min": p["min"], "max": p["max"]}
+            for p in points.to_dict("records")]
 
 
 def _fitted_rows(band: CurveBand, display: np.ndarray, method: str, strategy: str,
