@@ -20,12 +20,14 @@ log = logging.getLogger(__name__)
 
 
 def refit_candidates(out: Path, ds: Any, ctx: Any, methods: dict[str, Any], cells: pd.DataFrame,
-                     features: dict[str, np.ndarray], spec: Any) -> dict[str, Any]:
-    """Refit the best method at the largest budget on all pool labels; write candidates.npz.
+                     features: dict[str, np.ndarray], spec: Any,
+                     train_idx: np.ndarray) -> dict[str, Any]:
+    """Refit the best method on the rows ``train_idx``; write candidates.npz.
 
-    The best method is the one with the highest mean accuracy at the largest budget (random
-    draws when there are any); its parameters are those its first repeat tuned there. Returns
-    the facts study.json records under ``candidates``.
+    ``train_idx`` is every labeled row of the table with cross-fitting or a test file, the pool
+    with a holdout (the holdout stays unseen). The best method is the one with the highest mean
+    accuracy at the largest budget (random draws when there are any); its parameters are those
+    its first repeat tuned there. Returns the facts study.json records under ``candidates``.
     """
     unl = ctx.unlabeled_idx
     rep_kind = "vae" if "vae" in features else "raw"
@@ -51,19 +53,19 @@ def refit_candidates(out: Path, ds: Any, ctx: Any, methods: dict[str, Any], cell
                 rng.choice(unl, spec.max_unlabeled, replace=False))
             X_unl = X[sub]
         try:
-            est = fit_method(method, params, seed, X[ctx.pool_idx], ctx.y[ctx.pool_idx], X_unl)
+            est = fit_method(method, params, seed, X[train_idx], ctx.y[train_idx], X_unl)
             if len(unl):
                 from ..methods import align_proba
 
                 proba = align_proba(est.predict_proba(X[unl]), est.classes_,
                                     ctx.n_classes).astype(np.float32)
-            note = f"{best_name} refitted on all {len(ctx.pool_idx)} pool labels"
+            note = f"{best_name} refitted on {len(train_idx)} labeled rows"
         except Exception as exc:  # noqa: BLE001
             note = f"refit of {best_name} failed ({type(exc).__name__}: {exc}); zeros written"
             log.warning("candidates: %s", note)
     write_candidates(
         Path(out) / "candidates.npz", np.asarray(ds.row_ids)[unl], features[rep_kind][unl],
-        proba, method=best_name, n_labels=len(ctx.pool_idx), class_names=list(ds.class_names),
+        proba, method=best_name, n_labels=len(train_idx), class_names=list(ds.class_names),
         representation_kind=rep_kind,
     )
     return {"method": best_name, "best_at_budget": top, "n_rows": int(len(unl)),

@@ -24,8 +24,8 @@ FIXED_CELL_COLUMNS = (
     "macro_f1", "log_loss", "seconds", "error",
 )
 _EXTRA_COLUMNS = (
-    "accuracy_low", "accuracy_high", "per_class_recall", "seed", "params", "tuning_note",
-    "n_unlabeled_used", "tune_seconds", "fit_seconds",
+    "n_eval", "fold", "accuracy_low", "accuracy_high", "per_class_recall", "seed", "params",
+    "tuning_note", "n_unlabeled_used", "tune_seconds", "fit_seconds",
 )
 
 
@@ -73,7 +73,8 @@ def write_exports(
     atomic_write_text(paths["cells_csv"], _csv_text(cells))
     with atomic_path(paths["cells_parquet"]) as tmp:
         cells.to_parquet(tmp, index=False)
-    atomic_write_text(paths["curves_csv"], _csv_text(summarize_curves(cells, metrics)))
+    curves = summarize_curves(cells, metrics, evaluation=info.get("evaluation"))
+    atomic_write_text(paths["curves_csv"], _csv_text(curves))
     atomic_write_text(paths["study_json"],
                       json.dumps(info, indent=2, sort_keys=False, default=_json_default) + "\n")
     return paths

@@ -12,7 +12,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from .._errors import ConfigError
@@ -55,7 +54,8 @@ class StudyResult:
             at = ok[ok["n_labels"] == top].groupby("method")["accuracy"].agg(["mean", "min",
                                                                                 "max", "size"])
             at = at.sort_values("mean", ascending=False)
-            lines.append(f"holdout accuracy at {top} labels (mean, range over repeats):")
+            lines.append(f"accuracy on the evaluation rows at {top} labels (mean, range over "
+                         "repeats):")
             for name, r in at.head(5).iterrows():
                 lines.append(f"  {name:<28} {r['mean']:.3f}  ({r['min']:.3f}-{r['max']:.3f}, "
                              f"{int(r['size'])} repeats)")
@@ -123,23 +123,20 @@ def run_study(
     # ---- the study folder (a lock and the stale-output check go here, before the store opens)
     store = Store(out / "study.sqlite", design.fingerprint, restart=restart)
     try:
-        # ---- unsupervised stage: once per study
-        fit_parts = [design.unlabeled_idx, design.pool_idx]
-        if resolved.transductive:
-            fit_parts.append(design.holdout_idx)
-        fit_rows = np.sort(np.concatenate(fit_parts))
+        # ---- unsupervised stage: once per study, on features only (never a label)
         features, diagnostics, rep_errors, rep_seconds = fit_representations(
-            design.kinds, ds, fit_rows, resolved, out, representation_fn
+            design.kinds, ds, design.representation_rows, resolved, out, representation_fn
         )
         if store.get_meta("pretrain_seconds") is None:
             store.set_meta("pretrain_seconds", json.dumps(rep_seconds))
         orders, order_kind = acquisition_orders(
-            features, y, design.pool_idx, design.budgets, resolved.strategies,
-            resolved.repeats, resolved.seed,
+            features, y, [design.pool_idx(r) for r in range(resolved.repeats)], design.budgets,
+            resolved.strategies, resolved.seed,
         )
 
         ctx = CellContext(
-            features=features, y=y, pool_idx=design.pool_idx, holdout_idx=design.holdout_idx,
+            features=features, y=y, pools=design.pools, evals=design.evals,
+            repeat_fold=dict(enumerate(design.repeat_fold)),
             unlabeled_idx=design.unlabeled_idx, orders=orders,
             methods={n: m for n, m in methods.items() if m.representation not in rep_errors},
             n_classes=design.n_classes, seed=resolved.seed, trials=resolved.trials,
@@ -154,7 +151,8 @@ def run_study(
                           json.loads(store.get_meta("pretrain_seconds")), order_kind, jobs,
                           cluster)
         info["timing"]["this_run_cells_seconds"] = cells_seconds
-        info["candidates"] = refit_candidates(out, ds, ctx, methods, cells, features, resolved)
+        info["candidates"] = refit_candidates(out, ds, ctx, methods, cells, features, resolved,
+                                              design.final_train_idx)
         info["timing"]["this_run_total_seconds"] = time.perf_counter() - t_start
         write_exports(out, cells, resolved.metrics, info)
         write_data_card(out, resolved, dataset is not None, info)
@@ -198,7 +196,8 @@ def _run_all_cells(ctx, design, store, rep_errors, jobs, cluster, rerun_failed,
             on_result({
                 "method": cell.method, "n_labels": cell.n_labels, "repeat": cell.repeat,
                 "strategy": cell.strategy, "seed": cell_seed(resolved.seed, cell),
-                "status": "failed", "seconds": 0.0,
+                "status": "failed", "seconds": 0.0, "fold": design.repeat_fold[cell.repeat],
+                "n_eval": int(len(design.eval_idx(cell.repeat))),
                 "error": f"unsupervised stage {kind!r} failed: {rep_errors[kind]}",
             })
         else:
