@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Mapping
 from typing import Any
@@ -108,8 +109,10 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
                      evaluation: Mapping[str, Any] | None = None):
     """Measured curve points: per method, strategy, metric and budget, mean and interval.
 
-    ``low``/``high`` is a Student-t interval for the across-repeat mean
-    (``mean +- t * sqrt(sd**2 / n_repeats + v_eval)``), kept inside the metric's range;
+    ``low``/``high`` is a Student-t interval for the across-repeat mean widened by the
+    evaluation rows' noise, ``mean +- sqrt((t * sd / sqrt(n_repeats))**2 + z**2 * v_eval)``
+    (the half-widths of the two independent parts added in quadrature: the t quantile for the
+    estimated spread, the normal one for the binomial part), kept inside the metric's range;
     ``sd``, ``min`` and ``max`` show the spread of single draws. ``v_eval`` is the evaluation
     rows' sampling variance that the spread cannot hold (:func:`shared_evaluation_variance`),
     for the proportion metrics when ``evaluation`` (study.json's ``evaluation`` block: its
@@ -122,6 +125,8 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
     ok = cells[cells["status"] == "ok"] if len(cells) else cells
     n_eval = int(evaluation.get("n_rows_evaluated") or 0) if evaluation else 0
     folds = int(evaluation.get("folds") or 1) if evaluation else 1
+    z = float(stats.norm.ppf(0.5 + confidence / 2))
+    t_quantile = functools.cache(lambda df: float(stats.t.ppf(0.5 + confidence / 2, df)))
     rows = []
     if len(ok):
         for (method, strategy, n_labels), grp in ok.groupby(
@@ -138,10 +143,10 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
                     p = min(max(mean, 0.0), 1.0)
                     v_eval = shared_evaluation_variance(p, n_eval, folds, len(vals))
                 if len(vals) > 1:
-                    t = float(stats.t.ppf(0.5 + confidence / 2, len(vals) - 1))
-                    half = t * math.sqrt(sd * sd / len(vals) + v_eval)
+                    t = t_quantile(len(vals) - 1)
+                    half = math.hypot(t * sd / math.sqrt(len(vals)), z * math.sqrt(v_eval))
                 else:
-                    half = float(stats.norm.ppf(0.5 + confidence / 2)) * math.sqrt(v_eval)
+                    half = z * math.sqrt(v_eval)
                 low, high = mean - half, mean + half
                 if metric == "log_loss":
                     low = max(low, 0.0)
