@@ -229,3 +229,36 @@ def test_intervals_cover_the_population_accuracy_in_simulation():
     for a, b in ((0.3, 0.1), (4.0, 1.5)):
         naive, corrected = _coverage(False, a, b, n_sim=2000)
         assert naive == corrected and 0.92 <= corrected <= 0.98
+
+
+def test_fold_options_are_in_the_fingerprint(tmp_path, roles, ds):
+    from semisup import StoreError
+
+    spec = _spec([roles["logreg"]], repeats=2, folds=3, budgets=[6])
+    run_study(spec, tmp_path, dataset=ds, representation_fn=pca_representation,
+              progress=False, jobs=1)
+    for changed in (spec.replace(folds=4), spec.replace(evaluation="holdout")):
+        with pytest.raises(StoreError, match="different spec"):
+            run_study(changed, tmp_path, dataset=ds, representation_fn=pca_representation,
+                      progress=False, jobs=1)
+
+
+@pytest.mark.slow
+def test_crossfit_cycles_give_the_same_cells_serially_and_on_two_workers(tmp_path, roles, ds):
+    # repeats > folds: a second, differently seeded fold assignment
+    spec = _spec([roles["logreg"], roles["selftrain"]], repeats=4, folds=3, budgets=[6, 24],
+                 trials=2)
+    kw = {"dataset": ds, "representation_fn": pca_representation, "progress": False}
+    serial = run_study(spec, tmp_path / "serial", jobs=1, **kw)
+    pooled = run_study(spec, tmp_path / "pool", jobs=2, **kw)
+    pd.testing.assert_frame_equal(serial.cells.drop(columns=TIMING),
+                                  pooled.cells.drop(columns=TIMING))
+    assert sorted(serial.cells["fold"].unique()) == [0, 1, 2, 3]
+    assert (serial.cells["status"] == "ok").all()
+    for name in ("curves.csv", "study.json"):
+        a, b = (tmp_path / d / name for d in ("serial", "pool"))
+        if name == "curves.csv":
+            assert a.read_text() == b.read_text()
+        else:
+            ja, jb = json.loads(a.read_text()), json.loads(b.read_text())
+            assert ja["evaluation"] == jb["evaluation"] and ja["evaluation"]["cycles"] == 2
