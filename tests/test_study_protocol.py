@@ -262,3 +262,28 @@ def test_crossfit_cycles_give_the_same_cells_serially_and_on_two_workers(tmp_pat
         else:
             ja, jb = json.loads(a.read_text()), json.loads(b.read_text())
             assert ja["evaluation"] == jb["evaluation"] and ja["evaluation"]["cycles"] == 2
+
+
+def test_spec_evaluation_options(tmp_path):
+    from semisup import ConfigError
+
+    base = {"data": "t.csv", "label_column": "y"}
+    assert StudySpec.build(overrides=base).evaluation == "cross-fit"
+    assert StudySpec.build(overrides=base).folds == 5
+    # a holdout or a test file given alone names its protocol (older specs keep their meaning)
+    assert StudySpec.build(overrides={**base, "holdout": 0.25}).evaluation == "holdout"
+    assert StudySpec.build(overrides={**base, "test_data": "x.csv"}).evaluation == "test-file"
+    toml = tmp_path / "s.toml"
+    toml.write_text('data = "t.csv"\nlabel_column = "y"\ntest_data = "sub/test.csv"\n')
+    spec = StudySpec.build(toml)
+    assert spec.test_data == str((tmp_path / "sub" / "test.csv").resolve())
+    for bad, match in (
+        ({"evaluation": "bootstrap"}, "'evaluation' = 'bootstrap' is not allowed; allowed: "
+                                      "cross-fit, holdout, test-file"),
+        ({"folds": 1}, "'folds' = 1 is not allowed; give a whole number >= 2"),
+        ({"evaluation": "test-file"}, "needs a labeled test file; give it with --test-file"),
+        ({"evaluation": "cross-fit", "holdout": 0.2}, "'holdout' is given but 'evaluation'"),
+        ({"evaluation": "holdout", "test_data": "x.csv"}, "'test_data' is given but"),
+    ):
+        with pytest.raises(ConfigError, match=match):
+            StudySpec.build(overrides={**base, **bad})
