@@ -13,6 +13,7 @@ import hashlib
 import io
 import json
 import logging
+import pickle
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -149,19 +150,28 @@ def load_entry(folder: Path, key: str) -> Any | None:
         meta = json.loads(meta_path.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
         raise StoreError(
-            f"cache file {meta_path} cannot be read ({exc}); delete the folder {folder} to refit"
-        ) from exc
-    if meta.get("key") != key or meta.get("format") != _FORMAT:
+            f"cache file {meta_path} cannot be read ({type(exc).__name__}); delete the folder "
+            f"{folder} to refit"
+        ) from None
+    if not isinstance(meta, dict) or meta.get("key") != key or meta.get("format") != _FORMAT:
         return None
     try:
         if meta["kind"] == "vae":
             return _load_vae(folder, meta)
         return _load_mixture(folder, meta)
-    except (OSError, KeyError, ValueError, RuntimeError) as exc:
+    except pickle.UnpicklingError:
+        # torch's weights-only loader refused a pickled object; its long advice to turn the
+        # safety off is not for our users: the entry is simply not plain tensors.
         raise StoreError(
-            f"cache entry {folder} is damaged ({type(exc).__name__}: {exc}); delete the "
+            f"cache entry {folder} holds something other than plain tensors (a pickled "
+            "object?) and is not loaded; delete the folder to refit"
+        ) from None
+    except Exception as exc:  # noqa: BLE001  (any damage: truncated zip, wrong shapes, ...)
+        detail = (str(exc).strip().splitlines() or [""])[0][:200]
+        raise StoreError(
+            f"cache entry {folder} is damaged ({type(exc).__name__}: {detail}); delete the "
             "folder to refit"
-        ) from exc
+        ) from None
 
 
 def _params(meta: dict[str, Any]) -> dict[str, Any]:
