@@ -12,9 +12,10 @@ from collections.abc import Sequence
 import numpy as np
 
 from .._errors import ConfigError
-from ..selection import stratified_order
+from .._seeding import derive_seed
+from ..selection import acquisition_order, stratified_order
 
-__all__ = ["default_budgets", "nested_draws", "split_holdout"]
+__all__ = ["acquisition_orders", "default_budgets", "nested_draws", "split_holdout"]
 
 
 def split_holdout(y: np.ndarray, holdout: float | int, seed: int) -> tuple[np.ndarray, np.ndarray]:
@@ -98,3 +99,25 @@ def default_budgets(n_classes: int, pool_size: int, n_points: int = 6) -> list[i
         return [pool_size]
     grid = np.geomspace(lo, pool_size, n_points)
     return sorted({int(round(v)) for v in grid})
+
+
+def acquisition_orders(
+    features: dict[str, np.ndarray], y: np.ndarray, pool_idx: np.ndarray, budgets: Sequence[int],
+    strategies: Sequence[str], repeats: int, seed: int,
+) -> tuple[dict[tuple[str, int], np.ndarray], str]:
+    """Per (strategy, repeat), the order in which the pool's labels are revealed.
+
+    Strategies that look at the rows use the VAE latent when there is one, else the raw table;
+    returns ``(orders, kind used)``. Every strategy of a repeat starts from the same seed, so
+    uncertainty starts from the random draw.
+    """
+    z_kind = "vae" if "vae" in features else "raw"
+    Z_pool = features[z_kind][pool_idx]
+    y_pool = y[pool_idx]
+    orders: dict[tuple[str, int], np.ndarray] = {}
+    for strategy in strategies:
+        for repeat in range(repeats):
+            order, _ = acquisition_order(strategy, Z_pool, y_pool, budgets,
+                                         seed=derive_seed(seed, "draw", repeat), proba_fn=None)
+            orders[(strategy, repeat)] = order
+    return orders, z_kind
