@@ -92,6 +92,18 @@ class DataCard:
         """JSON-ready dict of every field."""
         return json.loads(json.dumps(asdict(self), default=_json_default))
 
+    def leakage_warning(self) -> str | None:
+        """One warning line naming the columns suspected of leaking the label, or None."""
+        if not self.leakage:
+            return None
+        shown = ", ".join(f"{item['column']!r} ({item['balanced_accuracy']:.3f})"
+                          for item in self.leakage[:5])
+        more = f" and {len(self.leakage) - 5} more" if len(self.leakage) > 5 else ""
+        return (f"suspected label leak: column(s) {shown}{more} alone predict the label "
+                "(cross-validated balanced accuracy in brackets; see data_card.md), so high "
+                "scores may come from them; check they are known before the label is, or drop "
+                "them with --kind COL=drop")
+
     def to_markdown(self) -> str:
         """The card as Markdown; every name, label and note from the table is escaped
         (:func:`semisup._escape.markdown_text`), so none can start live HTML or break a
