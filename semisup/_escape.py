@@ -49,11 +49,13 @@ def neutralise_cell(value: Any) -> Any:
 
 def neutralise_frame(frame: Any) -> Any:
     """A copy of a pandas DataFrame with every text cell and column name neutralised."""
+    from pandas.api import types as ptypes
+
     out = frame.copy()
     for column in out.columns:
         series = out[column]
-        if series.dtype == object or str(series.dtype).startswith("string"):
-            out[column] = series.map(neutralise_cell)
+        if ptypes.is_object_dtype(series.dtype) or ptypes.is_string_dtype(series.dtype):
+            out[column] = series.map(neutralise_cell).astype(object)
     out.columns = [neutralise_cell(str(c)) for c in out.columns]
     return out
 

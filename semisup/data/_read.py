@@ -337,7 +337,7 @@ def _read_text(path: Path, delimiter: str | None, encoding: str | None,
         if compression is None:
             raise
         raise _compression_error(path, compression, exc) from None
-    if not isinstance(frame.index, pd.RangeIndex):
+    if not frame.index.equals(pd.RangeIndex(len(frame))):
         # pandas takes the first column(s) as the index when every row is longer than the
         # header: the cells would shift under the wrong names.
         n_fields = len(header) + frame.index.nlevels
