@@ -14,7 +14,7 @@ import numpy as np
 
 from .._errors import ConfigError, DataError, FitWarning, StoreError
 from .._seeding import derive_seed
-from ._cache import cache_key, entry_dir, load_entry, save_entry
+from ._cache import REFIT_FIX, cache_key, entry_dir, load_entry, save_entry
 from ._mixture import MixtureTransformer
 from ._vae_transformer import VAETransformer
 
@@ -118,7 +118,8 @@ def fit_representation(
             loaded = load_entry(folder, key)
         except StoreError as exc:
             # Our own output, damaged or altered: nothing in it is trusted or unpickled.
-            message = f"{exc}; the entry is discarded and the {kind} stage refitted"
+            message = (f"{str(exc).removesuffix(REFIT_FIX)}; the entry is discarded and the "
+                       f"{kind} stage refitted")
             logger.warning("%s", message)
             warnings.warn(message, FitWarning, stacklevel=2)
             shutil.rmtree(folder, ignore_errors=True)
