@@ -179,7 +179,8 @@ def _compression_error(path: Path, compression: str, exc: BaseException) -> Data
     )
 
 
-def _check_magic(path: Path, raw: bytes, compression: str | None) -> None:
+def _check_magic(path: Path, raw: bytes, compression: str | None,
+                 encoding_given: bool = False) -> None:
     """Refuse binary files named like text tables, with what they look like."""
     for magic, what, fix in _MAGIC:
         if raw.startswith(magic):
@@ -187,7 +188,7 @@ def _check_magic(path: Path, raw: bytes, compression: str | None) -> None:
             raise DataError(f"{path}: looks like {what} by its first bytes{inside}, not a "
                             f"text table; {fix}")
     for bom, name in ((b"\xff\xfe", "utf-16"), (b"\xfe\xff", "utf-16")):
-        if raw.startswith(bom):
+        if raw.startswith(bom) and not encoding_given:
             raise DataError(f"{path}: starts with a UTF-16 byte-order mark; pass --encoding "
                             f"{name} or re-save the file as UTF-8")
 
@@ -250,7 +251,7 @@ def _read_text(path: Path, delimiter: str | None, encoding: str | None,
         raise _compression_error(path, compression, exc) from None
     if not raw:
         raise DataError(f"{path}: holds no data after decompression; export the table again")
-    _check_magic(path, raw, compression)
+    _check_magic(path, raw, compression, encoding_given=encoding is not None)
     try:
         sample = raw.decode(enc)
     except UnicodeDecodeError as exc:
