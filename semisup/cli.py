@@ -48,14 +48,15 @@ def _add_common(p: argparse.ArgumentParser) -> None:
 
 
 def _add_table_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("data", type=Path, help="table to read: .csv, .tsv, .txt or .parquet")
+    p.add_argument("data", type=Path, help="table to read: .csv, .tsv, .txt, .parquet or .xlsx "
+                                           "(text tables may end in .gz, .bz2, .xz, .zst)")
     p.add_argument("--label-column", required=True, metavar="COL",
                    help="column holding the class label; empty cells mean unlabeled")
     p.add_argument("--id-column", metavar="COL",
                    help="column of row ids (default: the 0-based row number)")
     p.add_argument("--unlabeled-marker", action="append", metavar="TEXT", default=None,
                    help="extra label text that means 'unlabeled' (repeatable; "
-                        "empty cells and NA always do)")
+                        "empty cells always do)")
     p.add_argument("--kind", action="append", metavar="COL=KIND", default=None,
                    help="override an inferred column kind (numeric, categorical, drop, text); "
                         "repeatable")

@@ -63,7 +63,7 @@ def encode_labels(
 ) -> tuple[np.ndarray, list[str], list[str]]:
     """Turn a label column into ``(y, class_names, notes)``.
 
-    Empty cells, NA and blank cells mean unlabeled, and so does any value in
+    Missing values (empty cells in a file) and blank cells mean unlabeled, and so does any value in
     ``unlabeled_markers`` (compared after stripping white space). Values are otherwise kept
     exactly as written.
 
@@ -95,7 +95,7 @@ def encode_labels(
         extra = f", or markers {sorted(markers)}" if markers else ""
         raise DataError(
             f"{where.source}: label column {column!r} has no labeled rows (all {n_rows} cells are "
-            f"empty, NA{extra}); label some rows, or check --label-column and --unlabeled-marker"
+            f"empty{extra}); label some rows, or check --label-column and --unlabeled-marker"
         )
     values = text[present]
     codes, uniques = pd.factorize(values, sort=False)

@@ -246,8 +246,8 @@ def load_dataset(
     path : path-like
         CSV, TSV or Parquet file (see :func:`read_table`).
     label_column : str
-        Column holding the class label; empty cells, NA and ``unlabeled_markers`` mean
-        unlabeled.
+        Column holding the class label; empty cells and ``unlabeled_markers`` mean
+        unlabeled (texts such as ``NA`` or ``None`` are classes unless given as markers).
     id_column : str, optional
         Column of unique row ids; default: the 0-based row number.
     unlabeled_markers : sequence of str
