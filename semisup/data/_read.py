@@ -22,6 +22,7 @@ from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import IO
 
+import numpy as np
 import pandas as pd
 
 from .._errors import DataError
@@ -206,6 +207,51 @@ def _iter_records(path: Path, compression: str | None, enc: str,
             yield reader.line_num, len(row)
 
 
+#: Bytes per block of the quote-free field count (bounds its memory to ~10x this).
+_COUNT_BLOCK = 1 << 22
+
+
+def _fast_field_counts(path: Path, compression: str | None, enc: str,
+                       delimiter: str) -> np.ndarray | None:
+    """(line number, field count) rows of every non-blank line, counted with numpy, for a file
+    without any quote character in a single-byte-safe encoding; None when that does not
+    hold (the caller falls back to the csv module)."""
+    if codecs.lookup(enc).name not in ("utf-8", "utf-8-sig", "iso8859-1", "cp1252", "ascii"):
+        return None
+    delim, quote = ord(delimiter), ord('"')
+    out: list[np.ndarray] = []
+    lines_before = 0
+    with _open_bytes(path, compression) as handle:
+        rest = b""
+        while True:
+            block = handle.read(_COUNT_BLOCK)
+            data = rest + block
+            if not block:
+                if data and not data.endswith(b"\n"):
+                    data += b"\n"
+                rest = b""
+            else:
+                cut = data.rfind(b"\n") + 1
+                data, rest = data[:cut], data[cut:]
+            if data:
+                arr = np.frombuffer(data, dtype=np.uint8)
+                if (arr == quote).any():
+                    return None
+                ends = np.flatnonzero(arr == 10)
+                starts = np.concatenate(([0], ends[:-1] + 1))
+                counts = np.add.reduceat(arr == delim, starts, dtype=np.int64) + 1
+                length = ends - starts - (arr[np.maximum(ends - 1, 0)] == 13)
+                if ((counts == 1) & (length > 0)).any():
+                    return None  # a one-field line: maybe white space pandas skips
+                keep = length > 0
+                numbers = np.arange(lines_before + 1, lines_before + 1 + len(ends))
+                out.append(np.stack([numbers[keep], counts[keep]], axis=1))
+                lines_before += len(ends)
+            if not block:
+                break
+    return np.concatenate(out) if out else np.zeros((0, 2), dtype=np.int64)
+
+
 def _check_row_lengths(path: Path, frame: pd.DataFrame, compression: str | None, enc: str,
                        delimiter: str, n_header: int) -> None:
     """Refuse rows shorter than the header (pandas pads them, losing their last cells -- the
@@ -213,19 +259,20 @@ def _check_row_lengths(path: Path, frame: pd.DataFrame, compression: str | None,
     such cells is not scanned again."""
     if frame.shape[1] < 2 or not frame.iloc[:, -1].isna().any():
         return
-    records = _iter_records(path, compression, enc, delimiter)
-    next(records, None)  # the header
-    short_line, n_short, n_records = None, 0, 0
-    for line, n_fields in records:
-        n_records += 1
-        if n_fields < n_header:
-            n_short += 1
-            if short_line is None:
-                short_line, short_fields = line, n_fields
-    if n_records != frame.shape[0]:
-        log.debug("%s: %d records by csv, %d rows by pandas; row lengths not checked", path,
-                  n_records, frame.shape[0])
+    table = _fast_field_counts(path, compression, enc, delimiter)
+    if table is None:
+        table = np.asarray(list(_iter_records(path, compression, enc, delimiter)),
+                           dtype=np.int64).reshape(-1, 2)
+    records = table[1:]  # the first non-blank line is the header
+    if len(records) != frame.shape[0]:
+        log.debug("%s: %d records by field count, %d rows by pandas; row lengths not "
+                  "checked", path, len(records), frame.shape[0])
         return
+    short = np.flatnonzero(records[:, 1] < n_header)
+    short_line = short_fields = None
+    n_short = int(short.size)
+    if n_short:
+        short_line, short_fields = int(records[short[0], 0]), int(records[short[0], 1])
     if short_line is not None:
         raise DataError(
             f"{path}: line {short_line} has {short_fields} field(s) but the header has "
@@ -283,8 +330,9 @@ def _read_text(path: Path, delimiter: str | None, encoding: str | None,
                         "--delimiter ';'")
 
     first_line = next((line for line in sample.splitlines() if line.strip()), "")
-    try:
-        header = next(csv.reader([first_line], delimiter=delimiter))
+    try:  # the header as pandas sees it: the first non-blank record (quoted line breaks too)
+        header = next(row for row in csv.reader(io.StringIO(sample), delimiter=delimiter)
+                      if row and not (len(row) == 1 and not row[0].strip()))
     except (csv.Error, StopIteration):
         header = [first_line]
     if len(header) == 1:
