@@ -19,7 +19,8 @@ from __future__ import annotations
 import re
 from typing import Any
 
-__all__ = ["FORMULA_PREFIXES", "markdown_text", "neutralise_cell", "neutralise_frame"]
+__all__ = ["FORMULA_PREFIXES", "markdown_text", "neutralise_cell", "neutralise_frame",
+           "restore_cell"]
 
 #: First characters that make a spreadsheet treat a cell as a formula (OWASP CSV Injection).
 FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r")
@@ -34,17 +35,31 @@ _CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f\u2028\u2029]")
 _HTML = {"&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&quot;"}
 
 
+def _needs_quote(value: str) -> bool:
+    if not value:
+        return False
+    if value[0] in FORMULA_PREFIXES:
+        return not _PLAIN_NUMBER.fullmatch(value)
+    # a value that already looks neutralised gets one more quote, so restore_cell inverts
+    return value[0] == "'" and _needs_quote(value[1:])
+
+
 def neutralise_cell(value: Any) -> Any:
     """``value`` with a leading ``'`` if a spreadsheet would run it as a formula.
 
     Non-strings (numbers, None, NaN) are returned unchanged; so are strings that are plain
-    numbers (``-3``, ``+1.5e3``).
+    numbers (``-3``, ``+1.5e3``). :func:`restore_cell` gives the original back.
     """
-    if not isinstance(value, str) or not value or value[0] not in FORMULA_PREFIXES:
-        return value
-    if _PLAIN_NUMBER.fullmatch(value):
-        return value
-    return "'" + value
+    if isinstance(value, str) and _needs_quote(value):
+        return "'" + value
+    return value
+
+
+def restore_cell(value: Any) -> Any:
+    """The value :func:`neutralise_cell` was given (for ids read back from a returned sheet)."""
+    if isinstance(value, str) and value[:1] == "'" and _needs_quote(value[1:]):
+        return value[1:]
+    return value
 
 
 def neutralise_frame(frame: Any) -> Any:

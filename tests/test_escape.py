@@ -4,8 +4,16 @@ from __future__ import annotations
 
 import pandas as pd
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
-from semisup._escape import FORMULA_PREFIXES, markdown_text, neutralise_cell, neutralise_frame
+from semisup._escape import (
+    FORMULA_PREFIXES,
+    markdown_text,
+    neutralise_cell,
+    neutralise_frame,
+    restore_cell,
+)
 
 
 @pytest.mark.parametrize("value", ["=1+1", "+A1", "-2+3", "@SUM(A1)", "\tx", "\rx",
@@ -40,3 +48,11 @@ def test_markdown_text_renders_as_the_same_literal_text():
         expected = raw.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
         assert cell == expected.replace('"', "&quot;"), (raw, cell)
     assert "\n" not in markdown_text("two\nlines")
+
+
+@given(st.text(alphabet=st.sampled_from("'=+-@\t\r1.ab"), max_size=6))
+def test_restore_inverts_neutralise_and_no_output_starts_a_formula(value):
+    out = neutralise_cell(value)
+    assert restore_cell(out) == value
+    if out[:1] in FORMULA_PREFIXES:  # left alone only as a plain number
+        assert out == value and float(out) == float(out)
