@@ -69,7 +69,7 @@ def _same_number(cell: str, value) -> bool:
         return False
 
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                   HealthCheck.function_scoped_fixture])
 @given(case=csv_files())
 def test_reader_is_faithful_or_says_why(tmp_path, case):

@@ -37,6 +37,7 @@ def _spec(data, **extra) -> StudySpec:
                                       "repeats": 2, "trials": 1, **extra})
 
 
+@pytest.mark.slow
 def test_restart_on_another_table_removes_every_old_output(tmp_path):
     from semisup.plan import PlanRequest, make_plan
     from semisup.report import write_report
@@ -104,6 +105,7 @@ def _hold_lock(folder, ready, release):
         release.wait(60)
 
 
+@pytest.mark.slow
 def test_lock_is_held_across_processes_and_freed_after(tmp_path):
     ctx = mp.get_context("spawn")
     ready, release = ctx.Event(), ctx.Event()

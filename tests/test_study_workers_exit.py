@@ -41,6 +41,7 @@ def _alive(pid: int) -> bool:
         return False
 
 
+@pytest.mark.slow
 @pytest.mark.skipif(sys.platform == "win32", reason="SIGKILL is POSIX")
 def test_workers_exit_after_kill_9_of_the_coordinator(tmp_path):
     script = tmp_path / "coordinator.py"
