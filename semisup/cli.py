@@ -7,7 +7,9 @@ value and the fix), 1 internal error. ``--debug`` shows the traceback.
 from __future__ import annotations
 
 import argparse
+import errno
 import logging
+import os
 import sys
 import warnings
 from collections.abc import Sequence
@@ -28,6 +30,17 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_BAD_INPUT, f"error: {message} (see '{self.prog} --help')\n")
 
 
+def _positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1 (``--jobs 0`` would start no worker)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number, e.g. 2") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"{value} is not allowed; give a whole number >= 1")
+    return value
+
+
 def _add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", "-q", action="store_true", help="only errors on stderr")
     p.add_argument("--verbose", "-v", action="store_true", help="detailed progress on stderr")
@@ -35,14 +48,15 @@ def _add_common(p: argparse.ArgumentParser) -> None:
 
 
 def _add_table_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("data", type=Path, help="table to read: .csv, .tsv, .txt or .parquet")
+    p.add_argument("data", type=Path, help="table to read: .csv, .tsv, .txt, .parquet or .xlsx "
+                                           "(text tables may end in .gz, .bz2, .xz, .zst)")
     p.add_argument("--label-column", required=True, metavar="COL",
                    help="column holding the class label; empty cells mean unlabeled")
     p.add_argument("--id-column", metavar="COL",
                    help="column of row ids (default: the 0-based row number)")
     p.add_argument("--unlabeled-marker", action="append", metavar="TEXT", default=None,
                    help="extra label text that means 'unlabeled' (repeatable; "
-                        "empty cells and NA always do)")
+                        "empty cells always do)")
     p.add_argument("--kind", action="append", metavar="COL=KIND", default=None,
                    help="override an inferred column kind (numeric, categorical, drop, text); "
                         "repeatable")
@@ -65,7 +79,7 @@ def build_parser() -> argparse.ArgumentParser:
                                    "(a records office digitising hand-filled forms).")
     p.add_argument("--out", type=Path, default=Path("semisup-demo"), metavar="DIR",
                    help="folder for every output (default: ./semisup-demo)")
-    p.add_argument("--jobs", type=int, default=None, metavar="N",
+    p.add_argument("--jobs", type=_positive_int, default=None, metavar="N",
                    help="worker processes (default: all cores)")
     _add_common(p)
 
@@ -111,7 +125,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--transductive", action="store_true",
                    help="let the methods (and, with a holdout or test file, the unsupervised "
                         "stage) see the evaluation rows' features (never their labels)")
-    p.add_argument("--jobs", type=int, default=None, metavar="N",
+    p.add_argument("--jobs", type=_positive_int, default=None, metavar="N",
                    help="worker processes (default: all cores)")
     p.add_argument("--cluster", metavar="ADDR",
                    help="run cells on a Dask cluster at ADDR, or 'local-cluster'")
@@ -175,6 +189,23 @@ def _budgets(text: str) -> list[int]:
     return [int(b) for b in budgets]
 
 
+def _existing_parent(path: Path) -> Path:
+    path = path.absolute()
+    while not path.exists() and path != path.parent:
+        path = path.parent
+    return path
+
+
+def _check_writable_folder(folder: Path, option: str) -> None:
+    """Refuse an output folder this process cannot write in, before any work is done."""
+    folder = _existing_parent(folder) if not folder.exists() else folder
+    if not folder.is_dir():
+        raise SemisupError(f"{option}: {folder} is a file, not a folder; give a folder path")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise SemisupError(f"{option}: cannot write in {folder} (permission denied); choose "
+                           "another folder or make it writable")
+
+
 def _table_kwargs(args: argparse.Namespace) -> dict:
     from .data import read_kind_overrides
 
@@ -201,8 +232,11 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 def _cmd_card(args: argparse.Namespace) -> int:
     from .data import make_card, write_card
 
-    card = make_card(args.data, **_table_kwargs(args))
     out = args.out or Path(f"{args.data.stem}.card.md")
+    if out.is_dir():  # a folder: the card goes inside it
+        out = out / f"{args.data.stem}.card.md"
+    _check_writable_folder(out.parent, "--out")
+    card = make_card(args.data, **_table_kwargs(args))
     md_path, json_path = write_card(card, out)
     print(f"wrote {md_path} and {json_path}")
     return EXIT_OK
@@ -228,6 +262,10 @@ def _cmd_study(args: argparse.Namespace) -> int:
     }
     spec = StudySpec.build(config=args.config, overrides=overrides)
     out = args.out or Path(f"{args.data.stem}-study")
+    if out.exists() and not out.is_dir():
+        raise SemisupError(f"--out {out} is a file, not a folder; give a folder for the "
+                           "study's outputs (it is created if missing)")
+    _check_writable_folder(out if out.is_dir() else _existing_parent(out), "--out")
     result = run_study(spec, out, jobs=args.jobs, cluster=args.cluster,
                        rerun_failed=args.rerun_failed, restart=args.restart)
     print(result.summary())
@@ -290,6 +328,20 @@ def _configure_logging(args: argparse.Namespace) -> None:
         warnings.simplefilter("ignore")
 
 
+#: errno of an OSError caused by the user's files or folders -> the fix to print.
+_USER_ERRNOS = {
+    errno.EACCES: "check its permissions or choose another path",
+    errno.EPERM: "check its permissions or choose another path",
+    errno.EROFS: "the file system is read-only; choose another --out folder",
+    errno.ENOSPC: "the disk is full; free some space or choose another --out folder",
+    errno.ENOENT: "check the path",
+    errno.ENOTDIR: "a part of the path is a file, not a folder; check the path",
+    errno.EISDIR: "it is a folder; give a file path",
+    errno.EEXIST: "something is already there; choose another path",
+    errno.ENAMETOOLONG: "the name is too long; choose a shorter path",
+}
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
@@ -304,6 +356,18 @@ def main(argv: Sequence[str] | None = None) -> int:
             raise
         print(f"error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except OSError as exc:
+        if args.debug:
+            raise
+        # A file the user named cannot be read or written: bad input, not a bug.
+        if exc.errno in _USER_ERRNOS:
+            where = exc.filename or "a file"
+            print(f"error: cannot use {where}: {exc.strerror or exc}; "
+                  f"{_USER_ERRNOS[exc.errno]}", file=sys.stderr)
+            return EXIT_BAD_INPUT
+        print(f"internal error: {type(exc).__name__}: {exc} (run again with --debug for the "
+              "traceback and report it)", file=sys.stderr)
+        return EXIT_INTERNAL
     except KeyboardInterrupt:
         print("interrupted; finished work is kept, run the same command again to resume",
               file=sys.stderr)

@@ -70,7 +70,7 @@ def test_leakage_flagged(tmp_path):
     card = make_card(path, label_column="status", id_column="rid")
     flagged = {item["column"] for item in card.leakage}
     assert flagged == {"refund_code", "days"}
-    assert "refund_code" in card.to_markdown()
+    assert "refund\\_code" in card.to_markdown()  # escaped for Markdown
 
 
 def test_leakage_numeric_agrees_with_sklearn_tree():
@@ -116,3 +116,31 @@ def test_write_card_twin_atomic_and_keeps_user_fields(tmp_path):
     write_card(again, md)
     assert json.loads(js.read_text())["user_fields"]["license"] == "CC BY 4.0"
     assert "**License**: CC BY 4.0" in md.read_text()
+
+
+def test_leakage_screen_misses_no_column_the_exact_check_flags(monkeypatch):
+    """The vectorised screen only decides which columns get the exact one-column tree; with
+    the screen switched off (every numeric column checked by scikit-learn's tree) the same
+    columns are flagged, on leaks of several shapes and on near-leaks."""
+    import semisup.data._card as card_module
+
+    rng = np.random.default_rng(11)
+    n = 900
+    y = rng.integers(0, 3, size=n)
+    cols = {
+        "threshold": y + rng.normal(0, 0.05, n),  # one cut per class
+        "interval": np.where(y == 1, 0.0, 1.0) * (y + 1) + rng.normal(0, 0.01, n),
+        "with_missing": np.where(y == 0, np.nan, y * 10.0),  # missing means class 0
+        "near_leak": y + rng.normal(0, 0.35, n),
+        "noise": rng.normal(size=n),
+        "ties": np.round(rng.normal(size=n)),
+    }
+    for i in range(40):
+        cols[f"noise{i}"] = rng.normal(size=n)
+    frame = pd.DataFrame(cols)
+    kinds = dict.fromkeys(frame.columns, "numeric")
+    screened, _ = find_leakage(frame, kinds, y.astype(np.int64))
+    monkeypatch.setattr(card_module, "LEAKAGE_SCREEN_MARGIN", 1.0)  # every column exact
+    exact, _ = find_leakage(frame, kinds, y.astype(np.int64))
+    assert screened == exact
+    assert {f["column"] for f in exact} >= {"threshold", "interval", "with_missing"}

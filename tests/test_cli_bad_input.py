@@ -81,7 +81,8 @@ ERROR_CASES = {
         "good.csv", GOOD, ["--id-column", "row_id"],
         ["no column named 'row_id'", "--id-column"]),
     "no labeled rows": (
-        "unl.csv", b"a,b,label\n1,2,\n3,4,NA\n5,6,?\n", ["--unlabeled-marker", "?"],
+        "unl.csv", b"a,b,label\n1,2,\n3,4,NA\n5,6,?\n",
+        ["--unlabeled-marker", "?", "--unlabeled-marker", "NA"],
         ["unl.csv", "label column 'label' has no labeled rows", "label some rows"]),
     "one class labeled": (
         "one.csv", b"a,b,label\n1,2,cat\n3,4,cat\n5,6,\n", [],

@@ -16,7 +16,7 @@ from .._errors import DataError
 from ._columns import Where, as_text, infer_column_kinds, prepare_columns
 from ._dataset import Dataset
 from ._labels import encode_labels
-from ._read import _PARQUET_SUFFIXES, KIND_OVERRIDES, file_sha256, read_table
+from ._read import KIND_OVERRIDES, file_sha256, is_text_table, read_table
 
 __all__ = ["dataset_from_frame", "load_dataset"]
 
@@ -199,8 +199,7 @@ def dataset_from_frame(
 ) -> Dataset:
     """Validate and encode a DataFrame (see :func:`load_dataset`); the frame is not changed."""
     where = Where(str(source) if source is not None else "table",
-                  text_file=source is not None
-                  and Path(source).suffix.lower() not in _PARQUET_SUFFIXES)
+                  text_file=source is not None and is_text_table(source))
     return _build(
         frame.copy(deep=False), label_column=label_column, id_column=id_column,
         unlabeled_markers=unlabeled_markers, kinds=kinds, where=where,
@@ -222,7 +221,7 @@ def _load(
     text_columns = [c for c in (label_column, id_column) if c]
     frame = read_table(path, delimiter=delimiter, encoding=encoding, text_columns=text_columns)
     sha256 = file_sha256(path)
-    where = Where(str(path), text_file=path.suffix.lower() not in _PARQUET_SUFFIXES)
+    where = Where(str(path), text_file=is_text_table(path))
     return _build(
         frame, label_column=label_column, id_column=id_column,
         unlabeled_markers=unlabeled_markers, kinds=kinds, where=where, source=path,
@@ -247,8 +246,8 @@ def load_dataset(
     path : path-like
         CSV, TSV or Parquet file (see :func:`read_table`).
     label_column : str
-        Column holding the class label; empty cells, NA and ``unlabeled_markers`` mean
-        unlabeled.
+        Column holding the class label; empty cells and ``unlabeled_markers`` mean
+        unlabeled (texts such as ``NA`` or ``None`` are classes unless given as markers).
     id_column : str, optional
         Column of unique row ids; default: the 0-based row number.
     unlabeled_markers : sequence of str

@@ -12,6 +12,8 @@ from collections.abc import Callable, Mapping
 import numpy as np
 import pandas as pd
 
+from .._escape import neutralise_frame
+
 __all__ = ["LABEL_NEXT_COLUMNS", "default_select_rows", "rank_rows"]
 
 log = logging.getLogger(__name__)
@@ -87,10 +89,11 @@ def rank_rows(
     reasons = list(selection.reasons)  # type: ignore[attr-defined]
     if len(reasons) != len(indices):
         reasons = [used] * len(indices)
-    table = pd.DataFrame({
+    # Ids like "=HYPERLINK(...)" would run as formulas when an annotator opens the sheet.
+    table = neutralise_frame(pd.DataFrame({
         "rank": np.arange(1, len(indices) + 1),
         "row_id": row_ids[indices],
         "reason": [str(r) for r in reasons],
-    })
+    }))
     log.debug("ranked %d rows with %s", len(table), used)
     return table, used, warnings

@@ -13,6 +13,8 @@ import hashlib
 import io
 import json
 import logging
+import pickle
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -33,6 +35,8 @@ __all__ = ["cache_key", "entry_dir", "load_entry", "save_entry"]
 logger = logging.getLogger(__name__)
 
 _FORMAT = 1
+#: How every damaged-entry message ends (fit_representation replaces it: it refits itself).
+REFIT_FIX = "; delete the folder to refit"
 _HASH_CHUNK_ROWS = 65536
 
 
@@ -149,19 +153,26 @@ def load_entry(folder: Path, key: str) -> Any | None:
         meta = json.loads(meta_path.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
         raise StoreError(
-            f"cache file {meta_path} cannot be read ({exc}); delete the folder {folder} to refit"
-        ) from exc
-    if meta.get("key") != key or meta.get("format") != _FORMAT:
+            f"cache entry {folder}: meta.json cannot be read ({type(exc).__name__}){REFIT_FIX}"
+        ) from None
+    if not isinstance(meta, dict) or meta.get("key") != key or meta.get("format") != _FORMAT:
         return None
     try:
         if meta["kind"] == "vae":
             return _load_vae(folder, meta)
         return _load_mixture(folder, meta)
-    except (OSError, KeyError, ValueError, RuntimeError) as exc:
+    except pickle.UnpicklingError:
+        # torch's weights-only loader refused a pickled object; its long advice to turn the
+        # safety off is not for our users: the entry is simply not plain tensors.
         raise StoreError(
-            f"cache entry {folder} is damaged ({type(exc).__name__}: {exc}); delete the "
-            "folder to refit"
-        ) from exc
+            f"cache entry {folder} holds something other than plain tensors (a pickled "
+            f"object?) and is not loaded{REFIT_FIX}"
+        ) from None
+    except Exception as exc:  # noqa: BLE001  (any damage: truncated zip, wrong shapes, ...)
+        detail = (str(exc).strip().splitlines() or [""])[0][:200]
+        raise StoreError(
+            f"cache entry {folder} is damaged ({type(exc).__name__}: {detail}){REFIT_FIX}"
+        ) from None
 
 
 def _params(meta: dict[str, Any]) -> dict[str, Any]:
@@ -179,7 +190,9 @@ def _loaded_diagnostics(meta: dict[str, Any]) -> dict[str, Any]:
 
 
 def _load_vae(folder: Path, meta: dict[str, Any]) -> VAETransformer:
-    tensors = torch.load(folder / "weights.pt", weights_only=True, map_location="cpu")
+    with warnings.catch_warnings():  # torch's notes on odd pickle protocols are not ours
+        warnings.simplefilter("ignore")
+        tensors = torch.load(folder / "weights.pt", weights_only=True, map_location="cpu")
     blocks = blocks_from_json(meta["blocks"])
     est = VAETransformer(**_params(meta), blocks=blocks)
     cfg = est.config()

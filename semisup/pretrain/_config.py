@@ -8,7 +8,7 @@ from typing import Any
 
 from .._errors import ConfigError
 
-__all__ = ["VAEConfig", "VAE_KINDS", "DECODER_VARIANCES", "SCALINGS"]
+__all__ = ["VAEConfig", "VAE_KINDS", "DECODER_VARIANCES", "SCALINGS", "check_number"]
 
 VAE_KINDS = ("vae", "ae")
 DECODER_VARIANCES = ("feature", "isotropic")
@@ -102,6 +102,14 @@ class VAEConfig:
 def _check_int(name: str, value: object, low: int) -> None:
     if isinstance(value, bool) or not isinstance(value, int) or value < low:
         raise ConfigError(f"{name}={value!r} is not allowed; give an integer >= {low}")
+
+
+def check_number(
+    name: str, value: object, low: float, high: float, *, low_open: bool = False
+) -> None:
+    """ConfigError naming ``name`` unless ``value`` is a number in [low, high] (or (low,
+    high] with ``low_open``); +inf passes only when ``high`` is inf."""
+    _check_float(name, value, low, high, low_open=low_open)
 
 
 def _check_float(

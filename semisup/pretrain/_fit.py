@@ -4,15 +4,17 @@ from __future__ import annotations
 
 import logging
 import os
+import shutil
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from .._errors import ConfigError, DataError
+from .._errors import ConfigError, DataError, FitWarning, StoreError
 from .._seeding import derive_seed
-from ._cache import cache_key, entry_dir, load_entry, save_entry
+from ._cache import REFIT_FIX, cache_key, entry_dir, load_entry, save_entry
 from ._mixture import MixtureTransformer
 from ._vae_transformer import VAETransformer
 
@@ -29,7 +31,19 @@ def representation_params(kind: str, params: dict[str, Any] | None = None) -> di
     Cache keys and study fingerprints hash this, so changing a default (in a new release, say)
     never reuses a representation fitted under the old one.
     """
-    estimator = _estimator(kind, dict(params or {}), None, 0)
+    try:
+        estimator = _estimator(kind, dict(params or {}), None, 0)
+        # Check every value now, before a study starts, so a bad setting is one error line
+        # (exit 2) and not a failed unsupervised stage with every cell after it.
+        if kind == "vae":
+            estimator.config()
+        else:
+            estimator._check_params()
+    except ConfigError as exc:
+        raise ConfigError(f"[pretrain.{kind}] in the study spec: {exc}") from None
+    except TypeError as exc:  # e.g. a value of a type the constructor cannot take
+        raise ConfigError(f"[pretrain.{kind}] in the study spec: settings are not valid "
+                          f"({exc}); fix them") from None
     return {k: v for k, v in estimator.get_params(deep=False).items()
             if k not in ("blocks", "progress", "random_state")}
 
@@ -100,7 +114,16 @@ def fit_representation(
             kind, X, blocks=blocks if kind == "vae" else None, params=resolved, seed=int(seed)
         )
         folder = entry_dir(cache_dir, kind, key)
-        loaded = load_entry(folder, key)
+        try:
+            loaded = load_entry(folder, key)
+        except StoreError as exc:
+            # Our own output, damaged or altered: nothing in it is trusted or unpickled.
+            message = (f"{str(exc).removesuffix(REFIT_FIX)}; the entry is discarded and the "
+                       f"{kind} stage refitted")
+            logger.warning("%s", message)
+            warnings.warn(message, FitWarning, stacklevel=2)
+            shutil.rmtree(folder, ignore_errors=True)
+            loaded = None
         if loaded is not None:
             logger.info("%s representation loaded from cache %s", kind, folder)
             return loaded, _with_cache(loaded.diagnostics_, key, folder)

@@ -17,6 +17,7 @@ from threadpoolctl import threadpool_limits
 
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
+from ._config import check_number
 from ._validation import checked_rows
 
 __all__ = ["MixtureTransformer", "component_log_densities"]
@@ -184,6 +185,8 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
                 raise ConfigError(f"{name}={value!r} is not allowed; give an integer >= 1")
+        check_number("tol", self.tol, 0.0, math.inf, low_open=True)
+        check_number("reg_covar", self.reg_covar, 0.0, math.inf)
         if self.random_state is not None and (
             isinstance(self.random_state, bool) or not isinstance(self.random_state, int)
         ):

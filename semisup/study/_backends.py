@@ -10,6 +10,8 @@ from __future__ import annotations
 import logging
 import os
 import sys
+import threading
+import time
 from collections.abc import Callable, Iterable
 from typing import Any
 
@@ -43,12 +45,61 @@ def _dumps(obj: Any) -> bytes:
         return pickle.dumps(obj)
 
 
-def _init_worker(payload: bytes) -> None:
+#: Seconds between a worker's checks that its coordinator is still alive.
+PARENT_POLL_SECONDS = 1.0
+
+
+def _exit_with_parent(parent_pid: int) -> None:
+    """End this worker when the coordinator process ``parent_pid`` dies, even by ``kill -9``
+    (which runs no clean-up in the coordinator, so nobody would stop the pool).
+
+    On Linux the kernel sends SIGKILL on the parent's death (``prctl(PR_SET_PDEATHSIG)``);
+    everywhere a daemon thread also watches the parent pid and exits once the worker has been
+    handed to another parent.
+    """
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+            import signal
+
+            libc = ctypes.CDLL(None, use_errno=True)
+            pr_set_pdeathsig = 1  # from <sys/prctl.h>
+            libc.prctl(pr_set_pdeathsig, int(signal.SIGKILL), 0, 0, 0)
+        except (OSError, AttributeError):  # pragma: no cover - no prctl: the thread remains
+            pass
+    if os.getppid() != parent_pid:  # died before the line above took effect
+        os._exit(1)
+
+    def watch() -> None:
+        while True:
+            time.sleep(PARENT_POLL_SECONDS)
+            if os.getppid() != parent_pid:
+                os._exit(1)
+
+    threading.Thread(target=watch, name="semisup-parent-watch", daemon=True).start()
+
+
+def _init_worker(payload: bytes, parent_pid: int | None = None) -> None:
     import pickle
 
     global _WORKER_CTX
+    if parent_pid is not None:
+        _exit_with_parent(parent_pid)
     _one_thread()
     _WORKER_CTX = pickle.loads(payload)
+
+
+def make_pool(jobs: int, payload: bytes):
+    """A spawn-started process pool whose workers load ``payload`` (a pickled CellContext)
+    once and exit when this process dies."""
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
+    # spawn: clean workers (no inherited OpenMP / torch thread state from the coordinator).
+    return ProcessPoolExecutor(
+        max_workers=jobs, mp_context=mp.get_context("spawn"),
+        initializer=_init_worker, initargs=(payload, os.getpid()),
+    )
 
 
 def _run_in_worker(cell: Cell) -> dict[str, Any]:
@@ -74,14 +125,9 @@ def _run_serial(ctx: CellContext, cells: list[Cell], on_result: Callable[[dict],
 def _run_pool(
     ctx: CellContext, cells: list[Cell], jobs: int, on_result: Callable[[dict], None]
 ) -> None:
-    import multiprocessing as mp
-    from concurrent.futures import ProcessPoolExecutor, as_completed
+    from concurrent.futures import as_completed
 
-    # spawn: clean workers (no inherited OpenMP / torch thread state from the coordinator).
-    with ProcessPoolExecutor(
-        max_workers=jobs, mp_context=mp.get_context("spawn"),
-        initializer=_init_worker, initargs=(_dumps(ctx),),
-    ) as pool:
+    with make_pool(jobs, _dumps(ctx)) as pool:
         futures = [pool.submit(_run_in_worker, cell) for cell in cells]
         try:
             for fut in as_completed(futures):

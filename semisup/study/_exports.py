@@ -97,23 +97,25 @@ def write_candidates(path: Path, row_ids, representation, proba, *, method, n_la
     return atomic_write_bytes(path, buf.getvalue())
 
 
-def write_data_card(out: Path, spec: Any, injected: bool, info: dict) -> None:
-    """data_card.md / .json beside the exports (not when the dataset was given directly)."""
+def write_data_card(out: Path, spec: Any, injected: bool, info: dict) -> Any:
+    """data_card.md / .json beside the exports (not when the dataset was given directly);
+    returns the DataCard, or None when none was written."""
     if injected or not Path(spec.data).is_file():
         info.setdefault("notes", []).append("data card not written (dataset given directly)")
-        return
+        return None
     try:
         from ..data import make_card, write_card
     except ImportError:
         info.setdefault("notes", []).append("data card not written (semisup.data.make_card "
                                             "unavailable)")
-        return
+        return None
     card = make_card(
         spec.data, label_column=spec.label_column, id_column=spec.id_column,
         unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
         delimiter=spec.delimiter, encoding=spec.encoding,
     )
     write_card(card, Path(out) / "data_card.md")
+    return card
 
 
 def _json_default(obj: Any) -> Any:

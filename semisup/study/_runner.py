@@ -22,6 +22,8 @@ from ._design import make_design
 from ._draws import acquisition_orders
 from ._exports import cells_frame, write_data_card, write_exports
 from ._info import PROTOCOL_NOTES, study_info
+from ._layout import check_input_outside_outputs, check_out_folder, remove_outputs
+from ._lock import study_lock
 from ._representations import fit_representations
 from ._spec import StudySpec
 from ._store import Store
@@ -117,10 +119,22 @@ def run_study(
     jobs = int(jobs) if jobs else (os.cpu_count() or 1)
     if jobs < 1:
         raise ConfigError(f"--jobs must be >= 1; got {jobs}")
+    # ---- the study folder: nothing is written before these checks, one study at a time
+    check_out_folder(out)
+    if dataset is None:
+        check_input_outside_outputs(spec.data, out)
+    check_input_outside_outputs(spec.test_data, out)
+    with study_lock(out):
+        return _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, dataset,
+                           representation_fn, progress)
+
+
+def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, dataset,
+                representation_fn, progress) -> StudyResult:
     design = make_design(spec, dataset, injected_representation=representation_fn is not None)
     resolved, ds, y, methods = design.spec, design.ds, design.y, design.methods
-
-    # ---- the study folder (a lock and the stale-output check go here, before the store opens)
+    if restart:  # every output of the old study goes, not only its store
+        remove_outputs(out)
     store = Store(out / "study.sqlite", design.fingerprint, restart=restart)
     try:
         # ---- unsupervised stage: once per study, on features only (never a label)
@@ -153,9 +167,13 @@ def run_study(
         info["timing"]["this_run_cells_seconds"] = cells_seconds
         info["candidates"] = refit_candidates(out, ds, ctx, methods, cells, features, resolved,
                                               design.final_train_idx)
+        card = write_data_card(out, resolved, dataset is not None, info)
+        leak = card.leakage_warning() if card is not None else None
+        if leak:  # a near-perfect score from a leaking column must not pass without a word
+            log.warning("%s", leak)
+            info["warnings"].insert(0, leak)
         info["timing"]["this_run_total_seconds"] = time.perf_counter() - t_start
         write_exports(out, cells, resolved.metrics, info)
-        write_data_card(out, resolved, dataset is not None, info)
     finally:
         store.close()
     return StudyResult(out_dir=out, cells=cells, info=info)
