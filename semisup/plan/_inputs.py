@@ -145,6 +145,19 @@ class StudyFacts:
     class_counts: dict[str, float] = field(default_factory=dict)
     batch_size: int | None = None
     warnings: list[str] = field(default_factory=list)
+    #: evaluation protocol: "holdout" (one fixed holdout), "cross_fit" (each repeat holds
+    #: out a different fold) or "test_file" (a separate labeled file, evaluated only)
+    protocol: str = "holdout"
+    n_eval: int | None = None
+
+    @property
+    def shared_eval_rows(self) -> int | None:
+        """Rows of the one evaluation set every repeat is scored on (its sampling error is
+        not in the spread over repeats); None under cross-fitting, where each repeat is
+        scored on its own fold and the spread already holds that error."""
+        if self.protocol == "cross_fit":
+            return None
+        return self.n_eval if self.n_eval is not None else self.n_holdout
 
 
 def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
@@ -163,6 +176,13 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
         if isinstance(holdout, float) and 0 < holdout < 1:
             holdout = None  # a fraction, not a size
     facts.n_holdout = _as_int(holdout)
+    evaluation = study.get("evaluation") if isinstance(study, Mapping) else None
+    if isinstance(evaluation, Mapping):
+        proto = str(evaluation.get("protocol") or "holdout").strip().lower().replace("-", "_")
+        facts.protocol = {"crossfit": "cross_fit", "cross_fitted": "cross_fit",
+                          "test": "test_file"}.get(proto, proto)
+        facts.n_eval = _as_int(_lookup([evaluation], "n_test", "n_eval", "n_rows",
+                                       "n_holdout", "rows"))
     data = study.get("data") if isinstance(study, Mapping) else None
     counts = _lookup([data or {}, *sources], "labeled_class_counts", "class_counts")
     if isinstance(counts, Mapping):
