@@ -95,10 +95,22 @@ def build_parser() -> argparse.ArgumentParser:
                    help="row selection strategies to simulate: random, representative, "
                         "uncertainty (default: random)")
     p.add_argument("--seed", type=int, metavar="N", help="study seed (default 0)")
+    p.add_argument("--evaluation", choices=("cross-fit", "holdout", "test-file"),
+                   help="how cells are scored: cross-fit (default; each repeat evaluates its "
+                        "own fold of the labeled rows, so every labeled row is evaluated), "
+                        "holdout (one fixed share of the labeled rows), test-file (only the "
+                        "rows of --test-file)")
+    p.add_argument("--folds", type=int, metavar="K",
+                   help="folds of the labeled rows for cross-fit evaluation (default 5)")
     p.add_argument("--holdout", type=float, metavar="F",
-                   help="fraction of labeled rows kept for evaluation (default 0.3)")
+                   help="with --evaluation holdout: fraction of labeled rows kept for "
+                        "evaluation (default 0.3)")
+    p.add_argument("--test-file", type=Path, metavar="FILE",
+                   help="a labeled table with the same columns and classes, only ever "
+                        "evaluated on (sets --evaluation test-file)")
     p.add_argument("--transductive", action="store_true",
-                   help="let the unsupervised stage see the holdout's features (never its labels)")
+                   help="let the methods (and, with a holdout or test file, the unsupervised "
+                        "stage) see the evaluation rows' features (never their labels)")
     p.add_argument("--jobs", type=int, default=None, metavar="N",
                    help="worker processes (default: all cores)")
     p.add_argument("--cluster", metavar="ADDR",
@@ -208,7 +220,10 @@ def _cmd_study(args: argparse.Namespace) -> int:
         "trials": args.trials,
         "strategies": args.strategies.split(",") if args.strategies else None,
         "seed": args.seed,
+        "evaluation": args.evaluation,
+        "folds": args.folds,
         "holdout": args.holdout,
+        "test_data": args.test_file,
         "transductive": True if args.transductive else None,
     }
     spec = StudySpec.build(config=args.config, overrides=overrides)

@@ -61,8 +61,10 @@ def test_failing_cell_recorded_and_others_complete(tmp_path, roles, ds):
     curves = pd.read_csv(tmp_path / "curves.csv")
     assert set(curves["method"]) == {roles["logreg"]}
     info = json.loads((tmp_path / "study.json").read_text())
-    assert info["holdout"]["n_rows"] == 36
-    assert any("holdout too small" in w for w in info["warnings"])
+    # cross-fit by default: 120 labels in 5 folds, so each repeat is scored on 24 rows
+    assert info["evaluation"]["protocol"] == "cross-fit"
+    assert info["holdout"]["n_rows"] == 24 and set(on_disk["n_eval"]) == {24}
+    assert any("evaluation rows too small" in w for w in info["warnings"])
     assert "summary" not in info and "failed" in result.summary()
 
 
@@ -74,7 +76,8 @@ def test_every_cell_scored_against_scikit_learn_refit(tmp_path, roles, ds):
     from semisup.study import split_holdout
     from semisup.study._draws import nested_draws
 
-    result = _run(_spec([roles["logreg"]], trials=1, repeats=1), tmp_path, ds, jobs=1)
+    result = _run(_spec([roles["logreg"]], trials=1, repeats=1, evaluation="holdout"), tmp_path,
+                  ds, jobs=1)
     labeled = np.flatnonzero(ds.y >= 0)
     hold, pool = split_holdout(ds.y[labeled], 0.3, derive_seed(0, "holdout"))
     hold, pool = labeled[hold], labeled[pool]
@@ -88,7 +91,7 @@ def test_every_cell_scored_against_scikit_learn_refit(tmp_path, roles, ds):
 
 def test_pretraining_fitted_once_and_without_holdout(tmp_path, roles, ds):
     names = [roles["logreg"], roles["selftrain"]]
-    spec = _spec(names, pretrain={"vae": {"n_components": 5}})
+    spec = _spec(names, pretrain={"vae": {"n_components": 5}}, evaluation="holdout")
     _run(spec, tmp_path, ds, jobs=1)
     fits = (tmp_path / "cache" / "fits-vae.txt").read_text().split()
     n_holdout = 36

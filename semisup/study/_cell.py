@@ -44,14 +44,17 @@ def cell_seed(study_seed: int, cell: Cell) -> int:
 class CellContext:
     """Everything a worker needs; shipped once per worker (or scattered once on Dask).
 
-    ``features[kind]`` holds every row of the table in representation ``kind`` (raw / vae /
-    mixture); ``orders[(strategy, repeat)]`` is the acquisition order into ``pool_idx``.
+    ``features[kind]`` holds every row of the table (and of a test file) in representation
+    ``kind`` (raw / vae / mixture); repeat ``r`` trains on draws from ``pools[f]`` and is
+    evaluated on ``evals[f]`` with ``f = repeat_fold[r]``; ``orders[(strategy, repeat)]`` is
+    the acquisition order into that pool.
     """
 
     features: dict[str, np.ndarray]
     y: np.ndarray
-    pool_idx: np.ndarray
-    holdout_idx: np.ndarray
+    pools: dict[int, np.ndarray]
+    evals: dict[int, np.ndarray]
+    repeat_fold: dict[int, int]
     unlabeled_idx: np.ndarray
     orders: dict[tuple[str, int], np.ndarray]
     methods: dict[str, Any]
@@ -64,13 +67,14 @@ class CellContext:
     extra: dict[str, Any] = field(default_factory=dict)
 
 
-def _unlabeled_rows(ctx: CellContext, draw: np.ndarray, seed: int) -> np.ndarray:
+def _unlabeled_rows(ctx: CellContext, fold: int, draw: np.ndarray, seed: int) -> np.ndarray:
     """Rows a semi-supervised method sees without labels: the unlabeled rows, the pool rows not
-    in the draw (labels not yet bought) and, when transductive, the holdout; capped and seeded."""
-    not_drawn = np.setdiff1d(ctx.pool_idx, draw, assume_unique=True)
+    in the draw (labels not yet bought) and, when transductive, the evaluation rows; capped and
+    seeded."""
+    not_drawn = np.setdiff1d(ctx.pools[fold], draw, assume_unique=True)
     parts = [ctx.unlabeled_idx, not_drawn]
     if ctx.transductive:
-        parts.append(ctx.holdout_idx)
+        parts.append(ctx.evals[fold])
     rows = np.sort(np.concatenate(parts))
     if len(rows) > ctx.max_unlabeled:
         rng = np.random.default_rng(derive_seed(seed, "unlabeled-sample"))
@@ -104,13 +108,16 @@ def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
         "tune_seconds": 0.0, "fit_seconds": 0.0,
     }
     try:
+        fold = ctx.repeat_fold[cell.repeat]
+        eval_idx = ctx.evals[fold]
+        row["fold"], row["n_eval"] = int(fold), int(len(eval_idx))
         method = ctx.methods[cell.method]
         X = ctx.features[method.representation]
         order = ctx.orders[(cell.strategy, cell.repeat)]
-        draw = ctx.pool_idx[order[: cell.n_labels]]
+        draw = ctx.pools[fold][order[: cell.n_labels]]
         X_lab, y_lab = X[draw], ctx.y[draw]
         if method.semi_supervised:
-            unl = _unlabeled_rows(ctx, draw, seed)
+            unl = _unlabeled_rows(ctx, fold, draw, seed)
             X_unl = X[unl]
         else:
             X_unl = None
@@ -125,15 +132,13 @@ def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
             )
             t1 = time.perf_counter()
             est = fit_method(method, params, seed, X_lab, y_lab, X_unl)
-            proba = align_proba(
-                est.predict_proba(X[ctx.holdout_idx]), est.classes_, ctx.n_classes
-            )
+            proba = align_proba(est.predict_proba(X[eval_idx]), est.classes_, ctx.n_classes)
             t2 = time.perf_counter()
         row["params"] = params
         row["tuning"] = info
         row["tune_seconds"] = t1 - t0
         row["fit_seconds"] = t2 - t1
-        row.update(holdout_metrics(ctx.y[ctx.holdout_idx], proba, ctx.n_classes))
+        row.update(holdout_metrics(ctx.y[eval_idx], proba, ctx.n_classes))
         row.pop("n_holdout", None)
     except MethodUnavailable as exc:
         row["status"] = "skipped"

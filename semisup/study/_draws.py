@@ -1,20 +1,59 @@
-"""Holdout carving and nested stratified label draws (pure functions, seeded).
+"""Evaluation folds, holdout carving and nested stratified label draws (pure, seeded).
 
-Oliver et al. (2018) ask that the evaluation rows are fixed once and never used for training
-or tuning, and that the labeled sets of one repeat grow by adding rows, so a curve shows what
-more labels buy rather than the luck of a new draw.
+Oliver et al. (2018) ask that the evaluation rows are never used for training or tuning, and
+that the labeled sets of one repeat grow by adding rows, so a curve shows what more labels buy
+rather than the luck of a new draw. Cross-fitting (each repeat evaluates on its own fold) puts
+every labeled row into the evaluation, so the evaluation sample's own noise shows in the
+spread between repeats instead of moving every curve together.
 """
 
 from __future__ import annotations
 
+import hashlib
 from collections.abc import Sequence
 
 import numpy as np
 
 from .._errors import ConfigError
-from ..selection import stratified_order
+from .._seeding import derive_seed
+from ..selection import acquisition_order, stratified_order
 
-__all__ = ["default_budgets", "nested_draws", "split_holdout"]
+__all__ = [
+    "acquisition_orders", "crossfit_folds", "default_budgets", "nested_draws", "split_holdout",
+]
+
+
+def _row_key_order(keys: Sequence[str], seed: int) -> np.ndarray:
+    """Positions of ``keys`` sorted by a seeded hash of each key (ties by position)."""
+    salt = f"{int(seed)}:".encode()
+    digests = [hashlib.blake2b(salt + str(k).encode("utf-8"), digest_size=8).digest()
+               for k in keys]
+    return np.array(sorted(range(len(digests)), key=lambda i: (digests[i], i)), dtype=np.int64)
+
+
+def crossfit_folds(y: np.ndarray, keys: Sequence[str], n_folds: int, seed: int) -> np.ndarray:
+    """Stratified fold of every labeled row (``0 .. n_folds - 1``), keyed by row id.
+
+    Within each class (classes in sorted order) rows are ranked by a seeded hash of their id
+    and dealt to the folds in turn, continuing from class to class; so every class's count
+    differs by at most one between folds, and so do the fold sizes (the allocation of
+    scikit-learn's ``StratifiedKFold``). Ranking by id rather than by position keeps a row's
+    fold when the table's rows are reordered.
+    """
+    y = np.asarray(y)
+    if len(keys) != len(y):
+        raise ValueError(f"need one key per row; got {len(keys)} keys for {len(y)} rows")
+    if n_folds < 2:
+        raise ConfigError(f"study option 'folds' must be >= 2; got {n_folds}")
+    keys = np.asarray(keys, dtype=object)
+    dealt: list[np.ndarray] = []
+    for c in np.unique(y):
+        idx = np.flatnonzero(y == c)
+        dealt.append(idx[_row_key_order(keys[idx], seed)])
+    order = np.concatenate(dealt) if dealt else np.zeros(0, dtype=np.int64)
+    folds = np.empty(len(y), dtype=np.int64)
+    folds[order] = np.arange(len(order)) % n_folds
+    return folds
 
 
 def split_holdout(y: np.ndarray, holdout: float | int, seed: int) -> tuple[np.ndarray, np.ndarray]:
@@ -98,3 +137,25 @@ def default_budgets(n_classes: int, pool_size: int, n_points: int = 6) -> list[i
         return [pool_size]
     grid = np.geomspace(lo, pool_size, n_points)
     return sorted({int(round(v)) for v in grid})
+
+
+def acquisition_orders(
+    features: dict[str, np.ndarray], y: np.ndarray, pools: Sequence[np.ndarray],
+    budgets: Sequence[int], strategies: Sequence[str], seed: int,
+) -> tuple[dict[tuple[str, int], np.ndarray], str]:
+    """Per (strategy, repeat), the order in which the repeat's pool labels are revealed.
+
+    ``pools[repeat]`` holds the table rows repeat ``repeat`` may train on; an order indexes
+    into it. Strategies that look at the rows use the VAE latent when there is one, else the
+    raw table; returns ``(orders, kind used)``. Every strategy of a repeat starts from the same
+    seed, so uncertainty starts from the random draw.
+    """
+    z_kind = "vae" if "vae" in features else "raw"
+    orders: dict[tuple[str, int], np.ndarray] = {}
+    for strategy in strategies:
+        for repeat, pool_idx in enumerate(pools):
+            order, _ = acquisition_order(strategy, features[z_kind][pool_idx], y[pool_idx],
+                                         budgets, seed=derive_seed(seed, "draw", repeat),
+                                         proba_fn=None)
+            orders[(strategy, repeat)] = order
+    return orders, z_kind

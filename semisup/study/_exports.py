@@ -1,5 +1,5 @@
 """Study folder exports, all written atomically: cells.csv/.parquet, curves.csv, study.json,
-candidates.npz."""
+candidates.npz, the data card."""
 
 from __future__ import annotations
 
@@ -14,7 +14,9 @@ import pandas as pd
 from .._atomic import atomic_path, atomic_write_bytes, atomic_write_text
 from ._metrics import summarize_curves
 
-__all__ = ["FIXED_CELL_COLUMNS", "cells_frame", "write_candidates", "write_exports"]
+__all__ = [
+    "FIXED_CELL_COLUMNS", "cells_frame", "write_candidates", "write_data_card", "write_exports",
+]
 
 #: cells.csv columns fixed by DEVELOPERS.md (extras follow them).
 FIXED_CELL_COLUMNS = (
@@ -22,8 +24,8 @@ FIXED_CELL_COLUMNS = (
     "macro_f1", "log_loss", "seconds", "error",
 )
 _EXTRA_COLUMNS = (
-    "accuracy_low", "accuracy_high", "per_class_recall", "seed", "params", "tuning_note",
-    "n_unlabeled_used", "tune_seconds", "fit_seconds",
+    "n_eval", "fold", "accuracy_low", "accuracy_high", "per_class_recall", "seed", "params",
+    "tuning_note", "n_unlabeled_used", "tune_seconds", "fit_seconds",
 )
 
 
@@ -71,7 +73,8 @@ def write_exports(
     atomic_write_text(paths["cells_csv"], _csv_text(cells))
     with atomic_path(paths["cells_parquet"]) as tmp:
         cells.to_parquet(tmp, index=False)
-    atomic_write_text(paths["curves_csv"], _csv_text(summarize_curves(cells, metrics)))
+    curves = summarize_curves(cells, metrics, evaluation=info.get("evaluation"))
+    atomic_write_text(paths["curves_csv"], _csv_text(curves))
     atomic_write_text(paths["study_json"],
                       json.dumps(info, indent=2, sort_keys=False, default=_json_default) + "\n")
     return paths
@@ -92,6 +95,25 @@ def write_candidates(path: Path, row_ids, representation, proba, *, method, n_la
         representation_kind=np.asarray(representation_kind),
     )
     return atomic_write_bytes(path, buf.getvalue())
+
+
+def write_data_card(out: Path, spec: Any, injected: bool, info: dict) -> None:
+    """data_card.md / .json beside the exports (not when the dataset was given directly)."""
+    if injected or not Path(spec.data).is_file():
+        info.setdefault("notes", []).append("data card not written (dataset given directly)")
+        return
+    try:
+        from ..data import make_card, write_card
+    except ImportError:
+        info.setdefault("notes", []).append("data card not written (semisup.data.make_card "
+                                            "unavailable)")
+        return
+    card = make_card(
+        spec.data, label_column=spec.label_column, id_column=spec.id_column,
+        unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
+        delimiter=spec.delimiter, encoding=spec.encoding,
+    )
+    write_card(card, Path(out) / "data_card.md")
 
 
 def _json_default(obj: Any) -> Any:

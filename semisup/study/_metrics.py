@@ -3,12 +3,17 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
-__all__ = ["METRICS", "holdout_metrics", "summarize_curves", "wilson_interval"]
+__all__ = [
+    "METRICS", "PROPORTION_METRICS", "holdout_metrics", "shared_evaluation_variance",
+    "summarize_curves", "wilson_interval",
+]
 
 #: Metrics measured on the holdout for every cell (higher is better except log_loss).
 METRICS = ("accuracy", "balanced_accuracy", "macro_f1", "log_loss")
@@ -72,17 +77,51 @@ def holdout_metrics(y_true: np.ndarray, proba: np.ndarray, n_classes: int) -> di
     }
 
 
-def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0.95):
+#: Metrics that are proportions over evaluation rows (their sampling variance is taken as
+#: binomial, exact for accuracy and an approximation for the other two).
+PROPORTION_METRICS = ("accuracy", "balanced_accuracy", "macro_f1")
+
+
+def shared_evaluation_variance(p: float, n_rows_evaluated: int, folds: int,
+                               n_repeats: int) -> float:
+    """Evaluation-sample variance of a mean over repeats that the repeats' spread misses.
+
+    ``n_repeats`` repeats are scored on ``folds`` disjoint evaluation sets per cycle that
+    together hold ``n_rows_evaluated`` rows (``folds = 1``: one holdout or test file shared by
+    every repeat). The evaluation noise of the mean of a proportion ``p`` is about the binomial
+    ``p (1 - p) / n_rows_evaluated``; the sample variance of the repeats holds only the part
+    that differs between folds, so the mean's variance misses
+    ``p (1 - p) / n_rows_evaluated * (R - folds) / (R - 1)`` when repeats of different cycles
+    see the same rows (taking the same row's error as fully correlated across cycles, the
+    conservative end). Zero when ``1 < R <= folds`` (every repeat has its own rows); the whole
+    binomial variance with one shared holdout or a single repeat.
+    """
+    if n_rows_evaluated <= 0 or n_repeats < 1:
+        return 0.0
+    binomial = p * (1.0 - p) / n_rows_evaluated
+    if n_repeats == 1:  # no spread at all: the evaluation sample's own variance
+        return binomial
+    return binomial * max(0.0, (n_repeats - folds) / (n_repeats - 1))
+
+
+def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0.95, *,
+                     evaluation: Mapping[str, Any] | None = None):
     """Measured curve points: per method, strategy, metric and budget, mean and interval.
 
     ``low``/``high`` is a Student-t interval for the across-repeat mean
-    (``mean +- t * sd / sqrt(n_repeats)``), kept inside the metric's range; ``sd``, ``min`` and
-    ``max`` show the spread of single draws. With one repeat, ``low == high == mean``. Only
-    ``status == "ok"`` cells count.
+    (``mean +- t * sqrt(sd**2 / n_repeats + v_eval)``), kept inside the metric's range;
+    ``sd``, ``min`` and ``max`` show the spread of single draws. ``v_eval`` is the evaluation
+    rows' sampling variance that the spread cannot hold (:func:`shared_evaluation_variance`),
+    for the proportion metrics when ``evaluation`` (study.json's ``evaluation`` block: its
+    ``folds`` and ``n_rows_evaluated``) is given; zero for cross-fitting with no more repeats
+    than folds, where each repeat is scored on its own rows. With one repeat the half-width is
+    ``z * sqrt(v_eval)`` (zero without ``evaluation``). Only ``status == "ok"`` cells count.
     """
     cols = ["method", "strategy", "metric", "n_labels", "mean", "low", "high", "measured",
             "sd", "min", "max", "n_repeats"]
     ok = cells[cells["status"] == "ok"] if len(cells) else cells
+    n_eval = int(evaluation.get("n_rows_evaluated") or 0) if evaluation else 0
+    folds = int(evaluation.get("folds") or 1) if evaluation else 1
     rows = []
     if len(ok):
         for (method, strategy, n_labels), grp in ok.groupby(
@@ -94,11 +133,15 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
                     continue
                 mean = float(vals.mean())
                 sd = float(vals.std(ddof=1)) if len(vals) > 1 else 0.0
+                v_eval = 0.0
+                if n_eval and metric in PROPORTION_METRICS:
+                    p = min(max(mean, 0.0), 1.0)
+                    v_eval = shared_evaluation_variance(p, n_eval, folds, len(vals))
                 if len(vals) > 1:
                     t = float(stats.t.ppf(0.5 + confidence / 2, len(vals) - 1))
-                    half = t * sd / math.sqrt(len(vals))
+                    half = t * math.sqrt(sd * sd / len(vals) + v_eval)
                 else:
-                    half = 0.0
+                    half = float(stats.norm.ppf(0.5 + confidence / 2)) * math.sqrt(v_eval)
                 low, high = mean - half, mean + half
                 if metric == "log_loss":
                     low = max(low, 0.0)

@@ -19,10 +19,12 @@ from .._errors import ConfigError
 from ..selection import STRATEGIES
 from ._metrics import METRICS
 
-__all__ = ["StudySpec"]
+__all__ = ["EVALUATIONS", "StudySpec"]
 
 _KIND_VALUES = ("numeric", "categorical", "drop", "text")
 _PRETRAIN_KINDS = ("vae", "mixture")
+#: Evaluation protocols (DEVELOPERS.md "The study protocol").
+EVALUATIONS = ("cross-fit", "holdout", "test-file")
 
 
 @dataclass(frozen=True)
@@ -50,10 +52,22 @@ class StudySpec:
         Row selection strategies to simulate: random, representative, uncertainty.
     seed : int
         Study seed; every random choice derives from it.
+    evaluation : str
+        ``"cross-fit"`` (default): each repeat evaluates on its own stratified fold of the
+        labeled rows and draws its budgets from the other folds, so every labeled row is
+        evaluated; ``"holdout"``: one stratified holdout shared by every repeat;
+        ``"test-file"``: the labeled rows of ``test_data`` only, never trained or tuned on.
+    folds : int
+        Folds of the labeled rows for ``"cross-fit"`` (repeats beyond it start a new,
+        differently seeded fold assignment).
     holdout : float or int
-        Fraction (0 < f < 1) or count of labeled rows kept for evaluation only.
+        For ``"holdout"``: fraction (0 < f < 1) or count of labeled rows kept for evaluation.
+    test_data : str or None
+        For ``"test-file"``: a labeled table with the same columns and classes as ``data``
+        (relative paths in a TOML file are relative to that file's folder).
     transductive : bool
-        Let the unsupervised stage see the holdout's features (never its labels).
+        Let the semi-supervised methods (and, with a holdout or a test file, the unsupervised
+        stage) see the evaluation rows' features (never their labels).
     metrics : tuple of str
         Metrics written to curves.csv (all are measured for every cell).
     max_unlabeled : int
@@ -78,7 +92,10 @@ class StudySpec:
     trials: int = 4
     strategies: tuple[str, ...] = ("random",)
     seed: int = 0
+    evaluation: str = "cross-fit"
+    folds: int = 5
     holdout: float | int = 0.3
+    test_data: str | None = None
     transductive: bool = False
     metrics: tuple[str, ...] = METRICS
     max_unlabeled: int = 20_000
@@ -117,7 +134,7 @@ class StudySpec:
                 value = merged
             if key == "unlabeled_markers" and not value:
                 continue
-            if key == "data":
+            if key in ("data", "test_data"):
                 value = str(value)
             values[key] = value
         return cls.from_dict(values)
@@ -135,6 +152,9 @@ class StudySpec:
                     f"{where} needs {required!r} (give it in the TOML file or on the command line)"
                 )
         clean = {k: _check(k, v) for k, v in values.items()}
+        if clean.get("test_data") is not None and "evaluation" not in clean:
+            clean["evaluation"] = "test-file"  # a test file given alone means evaluate on it
+        _check_evaluation(clean.get("evaluation", "cross-fit"), clean.get("test_data"))
         return cls(**clean)
 
     # ------------------------------------------------------------------ identity
@@ -153,7 +173,19 @@ class StudySpec:
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
     def replace(self, **changes: Any) -> StudySpec:
-        return dataclasses.replace(self, **{k: _check(k, v) for k, v in changes.items()})
+        new = dataclasses.replace(self, **{k: _check(k, v) for k, v in changes.items()})
+        _check_evaluation(new.evaluation, new.test_data)
+        return new
+
+
+def _check_evaluation(evaluation: str, test_data: str | None) -> None:
+    if evaluation == "test-file" and test_data is None:
+        raise ConfigError("study option 'evaluation' = 'test-file' needs a labeled test file; "
+                          "give it with --test-file FILE or 'test_data'")
+    if evaluation != "test-file" and test_data is not None:
+        raise ConfigError(f"study option 'test_data' is given but 'evaluation' is "
+                          f"{evaluation!r}; use evaluation 'test-file' or leave out the test "
+                          "file")
 
 
 def _read_toml(path: Path) -> dict[str, Any]:
@@ -176,10 +208,11 @@ def _read_toml(path: Path) -> dict[str, Any]:
         raise ConfigError(
             f"unknown key {unknown[0]!r} in {path}; allowed: {', '.join(StudySpec.keys())}"
         )
-    if "data" in values and isinstance(values["data"], str):
-        data = Path(values["data"])
-        if not data.is_absolute():
-            values["data"] = str((path.parent / data).resolve())
+    for key in ("data", "test_data"):
+        if key in values and isinstance(values[key], str):
+            data = Path(values[key])
+            if not data.is_absolute():
+                values[key] = str((path.parent / data).resolve())
     return values
 
 
@@ -216,6 +249,18 @@ def _check(key: str, value: Any) -> Any:
         if not isinstance(value, (str, Path)) or not str(value):
             raise _bad(key, value, "give a non-empty text value")
         return str(value)
+    if key == "test_data":
+        if value is None:
+            return None
+        if not isinstance(value, (str, Path)) or not str(value):
+            raise _bad(key, value, "give the path of a labeled test file")
+        return str(value)
+    if key == "evaluation":
+        if value not in EVALUATIONS:
+            raise _bad(key, value, f"allowed: {', '.join(EVALUATIONS)}")
+        return value
+    if key == "folds":
+        return _int(key, value, 2)
     if key in ("id_column", "delimiter", "encoding"):
         if value is not None and not isinstance(value, str):
             raise _bad(key, value, "give a text value")

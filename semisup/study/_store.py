@@ -29,6 +29,7 @@ CREATE TABLE IF NOT EXISTS cells (
     params TEXT,
     tuning TEXT,
     n_unlabeled_used INTEGER,
+    n_eval INTEGER, fold INTEGER,
     seconds REAL, tune_seconds REAL, fit_seconds REAL,
     error TEXT,
     finished_at REAL NOT NULL,
@@ -41,8 +42,8 @@ CREATE TABLE IF NOT EXISTS cells (
 CELL_COLUMNS = (
     "method", "n_labels", "repeat", "strategy", "seed", "status", "accuracy", "accuracy_low",
     "accuracy_high", "balanced_accuracy", "macro_f1", "log_loss", "per_class_recall", "params",
-    "tuning", "n_unlabeled_used", "seconds", "tune_seconds", "fit_seconds", "error",
-    "finished_at", "attempts",
+    "tuning", "n_unlabeled_used", "n_eval", "fold", "seconds", "tune_seconds", "fit_seconds",
+    "error", "finished_at", "attempts",
 )
 
 

@@ -1,0 +1,228 @@
+"""The study's design: the data, the evaluation rows, the budgets, the methods, the fingerprint.
+
+Everything here is decided before any model is fitted, and everything that decides a cell's
+numbers goes into the fingerprint, so a resumed study never mixes cells of two designs.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .._errors import ConfigError, DataError
+from .._seeding import derive_seed
+from ._draws import crossfit_folds, default_budgets, split_holdout
+from ._spec import StudySpec
+from ._testfile import load_test_rows
+
+__all__ = ["StudyDesign", "make_design"]
+
+
+@dataclass
+class StudyDesign:
+    """What :func:`make_design` decides.
+
+    Row indices index the rows of ``ds``; with a test file, ``ds`` is the table followed by
+    the test file's rows (``n_table_rows`` tells where they start). ``evals[f]`` / ``pools[f]``
+    are the evaluation rows and the training pool of fold ``f``; repeat ``r`` uses fold
+    ``repeat_fold[r]``.
+    """
+
+    spec: StudySpec  # resolved: method names and budgets filled in
+    ds: Any
+    y: np.ndarray
+    n_classes: int
+    n_table_rows: int
+    labeled: np.ndarray
+    unlabeled_idx: np.ndarray
+    protocol: str
+    n_folds: int
+    evals: dict[int, np.ndarray]
+    pools: dict[int, np.ndarray]
+    repeat_fold: list[int]
+    representation_rows: np.ndarray
+    final_train_idx: np.ndarray
+    budgets: list[int]
+    methods: dict[str, Any]
+    kinds: set[str]
+    fingerprint: str
+    test: Any = None
+
+    def eval_idx(self, repeat: int) -> np.ndarray:
+        return self.evals[self.repeat_fold[repeat]]
+
+    def pool_idx(self, repeat: int) -> np.ndarray:
+        return self.pools[self.repeat_fold[repeat]]
+
+    @property
+    def n_rows_evaluated(self) -> int:
+        used = {self.repeat_fold[r] for r in range(len(self.repeat_fold))}
+        return int(len(np.unique(np.concatenate([self.evals[f] for f in used]))))
+
+
+def _load_dataset(spec: StudySpec):
+    from ..data import load_dataset
+
+    return load_dataset(
+        spec.data, label_column=spec.label_column, id_column=spec.id_column,
+        unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
+        delimiter=spec.delimiter, encoding=spec.encoding,
+    )
+
+
+def _default_method_names() -> list[str]:
+    from .. import methods as m
+
+    fn = getattr(m, "default_methods", None)
+    specs = fn() if fn is not None else m.list_methods()
+    names = [s if isinstance(s, str) else s.name for s in specs]
+    if not names:
+        raise ConfigError("no methods are registered; name them with --methods or 'methods'")
+    return names
+
+
+def _data_digest(ds) -> str:
+    if getattr(ds, "sha256", None):
+        return str(ds.sha256)
+    h = hashlib.sha256()
+    h.update(np.ascontiguousarray(ds.X).tobytes())
+    h.update(np.ascontiguousarray(ds.y).tobytes())
+    return h.hexdigest()
+
+
+def _fingerprint(resolved: StudySpec, kinds: set[str], ds, injected_representation: bool,
+                 test: Any) -> str:
+    # The tables' paths are left out (their content hashes are in): moving a file keeps the
+    # study.
+    facts = {k: v for k, v in resolved.to_dict().items() if k not in ("data", "test_data")}
+    if test is not None:
+        facts["test_data_sha256"] = test.sha256
+    # The unsupervised stages' parameters with their defaults filled in: a new default in a
+    # later release must not resume cells measured on the old representation.
+    if kinds and not injected_representation:  # an injected stand-in has its own parameters
+        from ..pretrain import representation_params
+
+        facts.pop("pretrain", None)  # replaced by the resolved parameters below
+        facts["pretrain_resolved"] = {
+            kind: representation_params(kind, dict(resolved.pretrain.get(kind, {})))
+            for kind in sorted(kinds)
+        }
+    return hashlib.sha256(
+        (json.dumps(facts, sort_keys=True, default=str) + _data_digest(ds)).encode("utf-8")
+    ).hexdigest()
+
+
+def _check_folds(spec: StudySpec, y_lab: np.ndarray, class_names: list[str]) -> None:
+    k = spec.folds
+    counts = np.bincount(y_lab, minlength=len(class_names))
+    present = np.flatnonzero(counts > 0)
+    worst = int(present[np.argmin(counts[present])])
+    n = int(counts[worst])
+    if n >= k:
+        return
+    name = class_names[worst]
+    lower = f"lower --folds to {n}, " if n >= 2 else ""
+    raise DataError(
+        f"{spec.data}: class {name!r} has {n} labeled row(s), fewer than the {k} cross-fit "
+        f"folds (every fold must hold every class); label at least {k - n} more row(s) of "
+        f"{name!r}, {lower}or use --evaluation holdout"
+    )
+
+
+def _crossfit(spec: StudySpec, ds, y, labeled):
+    """Fold assignments: repeat r uses fold r % K of cycle r // K (a fresh seeded assignment)."""
+    k = spec.folds
+    _check_folds(spec, y[labeled], list(ds.class_names))
+    keys = np.asarray(ds.row_ids, dtype=str)[labeled]
+    evals: dict[int, np.ndarray] = {}
+    pools: dict[int, np.ndarray] = {}
+    for cycle in range((spec.repeats + k - 1) // k):
+        fold = crossfit_folds(y[labeled], keys, k, derive_seed(spec.seed, "folds", cycle))
+        for j in range(k):
+            evals[cycle * k + j] = labeled[fold == j]
+            pools[cycle * k + j] = labeled[fold != j]
+    return evals, pools, list(range(spec.repeats))
+
+
+def make_design(spec: StudySpec, dataset: Any = None, *,
+                injected_representation: bool = False) -> StudyDesign:
+    """Read the data (unless ``dataset`` is given) and fix the study's design.
+
+    Raises :class:`DataError` / :class:`ConfigError` with one line for data or options the
+    study cannot use.
+    """
+    from ..methods import get_method
+
+    ds = dataset if dataset is not None else _load_dataset(spec)
+    y = np.asarray(ds.y, dtype=np.int64)
+    n_classes = len(ds.class_names)
+    n_table = len(y)
+    labeled = np.flatnonzero(y >= 0)
+    unlabeled_idx = np.flatnonzero(y < 0)
+    if n_classes < 2 or len(np.unique(y[labeled])) < 2:
+        raise DataError(
+            f"{spec.data}: label column {spec.label_column!r} needs labeled rows of at least "
+            "two classes for a study"
+        )
+    names = list(spec.methods) if spec.methods else _default_method_names()
+    methods = {n: get_method(n) for n in names}
+
+    test = None
+    protocol = spec.evaluation
+    where = "labeled rows of the smallest training pool"
+    if protocol == "cross-fit":
+        evals, pools, repeat_fold = _crossfit(spec, ds, y, labeled)
+        # Features of every row, never a label: see DEVELOPERS.md "The study protocol".
+        rep_rows = np.sort(np.concatenate([unlabeled_idx, labeled]))
+        final = labeled
+        n_folds = spec.folds
+    elif protocol == "holdout":
+        hold_pos, pool_pos = split_holdout(y[labeled], spec.holdout,
+                                           derive_seed(spec.seed, "holdout"))
+        evals, pools = {0: labeled[hold_pos]}, {0: labeled[pool_pos]}
+        repeat_fold = [0] * spec.repeats
+        parts = [unlabeled_idx, pools[0]] + ([evals[0]] if spec.transductive else [])
+        rep_rows = np.sort(np.concatenate(parts))
+        final = pools[0]
+        n_folds = 1
+        where = "labeled rows outside the holdout"
+    else:  # test-file
+        test = load_test_rows(spec, ds)
+        ds = dataclasses.replace(
+            ds, X=np.concatenate([np.asarray(ds.X, dtype=np.float32), test.X]),
+            y=np.concatenate([y, test.y]),
+            row_ids=np.concatenate([np.asarray(ds.row_ids, dtype=object), test.row_ids]),
+        )
+        y = np.asarray(ds.y, dtype=np.int64)
+        test_idx = np.arange(n_table, len(y))
+        evals, pools = {0: test_idx}, {0: labeled}
+        repeat_fold = [0] * spec.repeats
+        parts = [unlabeled_idx, labeled] + ([test_idx] if spec.transductive else [])
+        rep_rows = np.sort(np.concatenate(parts))
+        final = labeled
+        n_folds = 1
+        where = "labeled rows of the table"
+
+    n_pool = min(len(pools[f]) for f in set(repeat_fold))
+    budgets = list(spec.budgets) if spec.budgets else default_budgets(n_classes, n_pool)
+    too_big = [b for b in budgets if b > n_pool]
+    if too_big:
+        raise ConfigError(
+            f"study option 'budgets': {too_big[0]} is larger than the pool ({n_pool} {where}); "
+            f"use budgets up to {n_pool}"
+        )
+    resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
+    kinds = {m.representation for m in methods.values()} - {"raw"}
+    fingerprint = _fingerprint(resolved, kinds, ds, injected_representation, test)
+    return StudyDesign(
+        spec=resolved, ds=ds, y=y, n_classes=n_classes, n_table_rows=n_table, labeled=labeled,
+        unlabeled_idx=unlabeled_idx, protocol=protocol, n_folds=n_folds, evals=evals,
+        pools=pools, repeat_fold=repeat_fold, representation_rows=rep_rows,
+        final_train_idx=final, budgets=budgets, methods=methods, kinds=kinds,
+        fingerprint=fingerprint, test=test,
+    )

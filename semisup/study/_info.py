@@ -1,0 +1,189 @@
+"""What study.json says about a study: data facts, evaluation rows, warnings, timing."""
+
+from __future__ import annotations
+
+import statistics
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+__all__ = [
+    "MIN_HOLDOUT_PER_CLASS", "PROTOCOL_NOTES", "evaluation_facts", "protocol_notes", "study_info",
+]
+
+#: Below this many holdout labels in a class, estimates are called loose (common practice,
+#: no source: the usual "about 30" rule for a normal approximation).
+MIN_HOLDOUT_PER_CLASS = 30
+
+_EVALUATION_NOTES = {
+    "cross-fit": [
+        "cross-fitted evaluation: the labeled rows are dealt into stratified folds (a seeded "
+        "hash of each row id orders each class); repeat r is evaluated on fold r % folds and "
+        "draws its budgets from the other folds only, so every labeled row is evaluated and "
+        "none is trained or tuned on in the repeat that evaluates it; repeats beyond the fold "
+        "count start a fresh, differently seeded fold assignment",
+        "unsupervised stage fitted once per study on the features of every row of the table "
+        "(unlabeled and labeled rows, never a label), as the model is used later on rows whose "
+        "features it has seen; cached under cache/, reused by every cell",
+    ],
+    "holdout": [
+        "holdout carved once from the labeled rows, stratified by class, never trained or "
+        "tuned on, shared by every repeat",
+        "unsupervised stage fitted once per study on the unlabeled rows and the pool's features "
+        "(plus the holdout's features only when transductive), cached under cache/, reused by "
+        "every cell",
+    ],
+    "test-file": [
+        "evaluation on the labeled rows of a separate test file only, shared by every repeat; "
+        "its labels are never trained or tuned on",
+        "unsupervised stage fitted once per study on the table's features (plus the test "
+        "file's features only when transductive), cached under cache/, reused by every cell",
+    ],
+}
+
+_COMMON_NOTES = [
+    "per repeat the labeled draws are nested (a budget's rows contain every smaller budget's "
+    "rows) and stratified, with every class present once the budget reaches the class count; "
+    "all methods share the same draws",
+    "every method gets the same number of optuna trials (TPE sampler seeded from the study "
+    "seed), tuned by stratified cross-validation inside the labeled draw only; the first trial "
+    "is the default parameters; with no class of two labels tuning is skipped",
+    "semi-supervised methods see the unlabeled rows (and the pool rows outside the draw, labels "
+    "hidden; the evaluation rows' features only when transductive) during tuning and fitting, "
+    "capped at max_unlabeled rows per cell (seeded sample)",
+    "metrics on the repeat's evaluation rows: accuracy with a Wilson 95% interval, balanced "
+    "accuracy, macro-F1, log-loss over all study classes (probabilities clipped to "
+    "[1e-15, 1-1e-15]), per-class recall; curves.csv gives the across-repeat mean with a "
+    "Student-t 95% interval, widened by the evaluation rows' binomial variance where repeats "
+    "share evaluation rows",
+]
+
+
+def protocol_notes(protocol: str) -> list[str]:
+    """The protocol lines study.json records for evaluation ``protocol``."""
+    return [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES]
+
+
+#: The default (cross-fit) protocol's notes.
+PROTOCOL_NOTES = protocol_notes("cross-fit")
+
+
+def _counts(y: np.ndarray, idx: np.ndarray, names: list[str]) -> dict[str, int]:
+    return dict(zip(names, map(int, np.bincount(y[idx], minlength=len(names))), strict=True))
+
+
+def evaluation_facts(design: Any) -> dict[str, Any]:
+    """study.json's ``evaluation`` block (field names in DEVELOPERS.md)."""
+    spec, y = design.spec, design.y
+    names = list(design.ds.class_names)
+    repeats = range(len(design.repeat_fold))
+    n_eval = [int(len(design.eval_idx(r))) for r in repeats]
+    n_pool = [int(len(design.pool_idx(r))) for r in repeats]
+    rep_rows = design.representation_rows
+    test = design.test
+    return {
+        "protocol": design.protocol,
+        "folds": int(design.n_folds),
+        "cycles": (len(design.repeat_fold) + design.n_folds - 1) // design.n_folds
+        if design.protocol == "cross-fit" else 1,
+        "shared_across_repeats": design.protocol != "cross-fit",
+        "n_labeled": int(len(design.labeled)),
+        "n_rows_evaluated": design.n_rows_evaluated,
+        "n_eval_min": min(n_eval), "n_eval_max": max(n_eval),
+        "n_pool_min": min(n_pool), "n_pool_max": max(n_pool),
+        "per_repeat": [{"repeat": r, "fold": int(design.repeat_fold[r]), "n_eval": n_eval[r],
+                        "n_pool": n_pool[r]} for r in repeats],
+        "evaluated_class_counts": _counts(
+            y, np.unique(np.concatenate([design.eval_idx(r) for r in repeats])), names),
+        "representation_fit": {
+            "n_rows": int(len(rep_rows)),
+            "includes_evaluation_features": bool(np.isin(
+                np.concatenate([design.eval_idx(r) for r in repeats]), rep_rows).any()),
+            "includes_labels": False,
+        },
+        "transductive_methods": bool(spec.transductive),
+        "test_file": None if test is None else {
+            "path": test.path, "sha256": test.sha256, "n_rows": int(len(test.y)),
+            "class_counts": _counts(test.y, np.arange(len(test.y)), names),
+        },
+    }
+
+
+def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: dict,
+               rep_seconds: dict, order_kind: str, jobs: int, cluster: Any) -> dict[str, Any]:
+    """The content of study.json (the runner adds the candidates and this run's timing)."""
+    spec, ds, y = design.spec, design.ds, design.y
+    labeled, unlabeled_idx, budgets = design.labeled, design.unlabeled_idx, design.budgets
+    names = list(ds.class_names)
+    evaluation = evaluation_facts(design)
+    # The smallest evaluation set and pool of a repeat (with a holdout or a test file every
+    # repeat has the same ones).
+    small_r = min(range(spec.repeats), key=lambda r: len(design.eval_idx(r)))
+    pool_r = min(range(spec.repeats), key=lambda r: len(design.pool_idx(r)))
+    hold_counts = np.bincount(y[design.eval_idx(small_r)], minlength=len(names))
+    pool_counts = np.bincount(y[design.pool_idx(pool_r)], minlength=len(names))
+    eval_counts = np.array(list(evaluation["evaluated_class_counts"].values()))
+    warnings_: list[str] = []
+    ok = cells[cells["status"] == "ok"]
+    widths = (ok["accuracy_high"] - ok["accuracy_low"]).to_numpy() if len(ok) else []
+    width = float(statistics.median(widths)) if len(widths) else None
+    small = [names[i] for i, n in enumerate(eval_counts) if n < MIN_HOLDOUT_PER_CLASS]
+    if small:
+        w = f"; median Wilson 95% interval width on accuracy of one cell {width:.3f}" if width \
+            else ""
+        what = {"cross-fit": "labeled rows (every one is evaluated once per fold cycle)",
+                "holdout": "holdout labels", "test-file": "test file rows"}[design.protocol]
+        lead = "holdout" if design.protocol == "holdout" else "evaluation rows"
+        warnings_.append(
+            f"{lead} too small for tight estimates: {len(small)} class(es) have fewer than "
+            f"{MIN_HOLDOUT_PER_CLASS} {what} (smallest {int(eval_counts.min())}, "
+            f"{evaluation['n_rows_evaluated']} rows evaluated in all){w}"
+        )
+    missing = [names[i] for i, n in enumerate(eval_counts) if n == 0]
+    if missing:
+        warnings_.append(f"class(es) {', '.join(missing)} have no evaluation rows and are not "
+                         "evaluated; label more rows of them")
+    if min(budgets) < len(names):
+        warnings_.append(f"budget {min(budgets)} is below the class count {len(names)}: those "
+                         "draws cannot hold every class")
+    for kind, err in rep_errors.items():
+        warnings_.append(f"unsupervised stage {kind!r} failed, its methods were not run: {err}")
+    counts = cells["status"].value_counts().to_dict() if len(cells) else {}
+    if counts.get("failed"):
+        warnings_.append(f"{counts['failed']} cell(s) failed; see the error column of cells.csv")
+    timing = {
+        "pretrain_seconds": rep_seconds,
+        "cells_seconds_total": float(cells["seconds"].fillna(0).sum()),
+        "tune_seconds_total": float(cells["tune_seconds"].fillna(0).sum()),
+        "fit_seconds_total": float(cells["fit_seconds"].fillna(0).sum()),
+    }
+    n_table = design.n_table_rows
+    return {
+        "spec": spec.to_dict(),
+        "fingerprint": design.fingerprint,
+        "data": {
+            "source": str(ds.source) if getattr(ds, "source", None) else spec.data,
+            "sha256": getattr(ds, "sha256", None),
+            "n_rows": int(n_table), "n_labeled": int(len(labeled)),
+            "n_unlabeled": int(len(unlabeled_idx)), "n_features": int(ds.X.shape[1]),
+            "class_names": names,
+            "class_counts": _counts(y, labeled, names),
+        },
+        # Kept for readers of the fixed-holdout layout: the smallest evaluation set of a repeat.
+        "holdout": {"n_rows": int(hold_counts.sum()),
+                    "class_counts": dict(zip(names, map(int, hold_counts), strict=True)),
+                    "median_accuracy_interval_width": width},
+        "pool": {"n_rows": int(pool_counts.sum()),
+                 "class_counts": dict(zip(names, map(int, pool_counts), strict=True))},
+        "evaluation": evaluation,
+        "budgets": [int(b) for b in budgets],
+        "max_unlabeled_per_cell": spec.max_unlabeled,
+        "selection_representation": order_kind,
+        "status_counts": {k: int(v) for k, v in counts.items()},
+        "protocol": protocol_notes(design.protocol),
+        "warnings": warnings_,
+        "representation": {"diagnostics": diagnostics, "errors": rep_errors},
+        "timing": timing,
+        "execution": {"jobs": jobs, "cluster": None if cluster is None else str(cluster)},
+    }
