@@ -144,8 +144,8 @@ def run_table(name: str, work: Path, *, jobs: int, replan: bool) -> dict:
         full.to_csv(truth_csv, index=False)
     truth_spec = StudySpec.build(None, {
         "data": str(truth_csv), "label_column": LABEL, "id_column": ID,
-        "budgets": budgets, "repeats": TRUTH_REPEATS, "holdout": n_eval,
-        "transductive": True, "seed": 1})
+        "budgets": budgets, "repeats": TRUTH_REPEATS, "evaluation": "holdout",
+        "holdout": n_eval, "transductive": True, "seed": 1})
     t0 = time.perf_counter()
     truth = run_study(truth_spec, folder / "truth", jobs=jobs, progress=False).cells
     times["truth"] = time.perf_counter() - t0

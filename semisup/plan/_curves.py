@@ -148,10 +148,25 @@ def _bounds(family: str, n_min: float, n_max: float) -> tuple[np.ndarray, np.nda
     return np.concatenate([[0.0, 0.0], lo]), np.concatenate([[1.0, np.inf], hi])
 
 
-def _power_jac(n: np.ndarray, p: np.ndarray) -> np.ndarray:
-    _a, b, c = p
-    npow = np.power(n, -c)
-    return np.column_stack([np.ones_like(n), npow, -b * np.log(n) * npow])
+def _jacobian(family: str, n: np.ndarray, p: np.ndarray) -> np.ndarray:
+    """d error / d parameters of each family at budgets ``n`` (analytic)."""
+    one = np.ones_like(n)
+    if family == "power_law":
+        _a, b, c = p
+        npow = np.power(n, -c)
+        return np.column_stack([one, npow, -b * np.log(n) * npow])
+    if family == "exponential":
+        _a, b, k = p
+        g = np.exp(-n / k)
+        return np.column_stack([one, g, b * g * n / k ** 2])
+    _a, b, k, d = p
+    t = np.power(n / k, d)
+    log_ratio = np.log(n / k)
+    if family == "mmf":
+        g = 1.0 / (1.0 + t)
+        return np.column_stack([one, g, b * d * t * g * g / k, -b * t * log_ratio * g * g])
+    g = np.exp(-t)  # weibull
+    return np.column_stack([one, g, b * g * d * t / k, -b * g * t * log_ratio])
 
 
 def _solve(family: str, n: np.ndarray, err: np.ndarray, sw: np.ndarray, start: np.ndarray,
@@ -161,29 +176,14 @@ def _solve(family: str, n: np.ndarray, err: np.ndarray, sw: np.ndarray, start: n
     def resid(p):
         return sw * (func(n, *p) - err)
 
-    if family == "power_law":
-        def jac(p):
-            return sw[:, None] * _power_jac(n, p)
-    else:
-        jac = "3-point"
+    def jac(p):
+        return sw[:, None] * _jacobian(family, n, p)
+
     lo, hi = bounds
     start = np.clip(start, lo, np.minimum(hi, 1e6))
     # Keep the start strictly inside the box where the bound is open-ended (trf needs it).
     return least_squares(resid, start, jac=jac, bounds=bounds, method="trf",
                          xtol=tol, ftol=tol, gtol=tol, max_nfev=2000)
-
-
-def _power_starts(levels: np.ndarray, means: np.ndarray) -> list[np.ndarray]:
-    """Starting points: for each c, the (a, b) of a straight-line fit in n**(-c)."""
-    out = []
-    for c in (0.2, 0.5, 1.0, 2.0):
-        x = np.power(levels, -c)
-        if len(levels) >= 2 and np.ptp(x) > 0:
-            slope, icpt = np.polyfit(x, means, 1)
-        else:
-            slope, icpt = 0.0, float(means.mean())
-        out.append(np.array([min(max(icpt, 0.0), 1.0), max(slope, 0.0), c]))
-    return out
 
 
 def fit_learning_curve(
@@ -208,8 +208,8 @@ def fit_learning_curve(
     weights : array of shape (n_points,), optional
         Least-squares weights; default :func:`budget_weights` (more weight on larger budgets).
     start : the family's parameters, optional
-        Single starting point; default the best point of the profiled grid search of
-        :func:`fit_family_batch` (plus line-fit starts for the power law).
+        Starting point; default the best point of the profiled grid search of
+        :func:`fit_family_batch`.
     poor_rmse : float
         The family is replaced by the monotone fallback when the weighted RMS residual of
         the budget means exceeds ``max(poor_rmse, 2 * median standard error of the means)``
@@ -270,9 +270,8 @@ def fit_learning_curve(
     if start is not None:
         starts = [np.asarray(start, dtype=float)]
     else:
+        # the profiled grid search is global in the shape, so one polish from it suffices
         starts = [fit_family_batch(fam, levels, means[None, :], wsum[None, :])[0]]
-        if fam == "power_law":
-            starts.extend(_power_starts(levels, means))
     func = FAMILIES[fam].func
     best_x, best_cost = None, np.inf
     for s in starts:

@@ -165,37 +165,49 @@ def profile_ab(x: np.ndarray, y: np.ndarray, w: np.ndarray):
 
     The problem is a convex quadratic in two variables: the optimum is the unconstrained one
     when feasible, otherwise the best of the one-dimensional optima on the active bounds.
-    Returns ``(a, b, sse)``.
+    Everything follows from six weighted sums, of which only those involving ``x`` need the
+    full broadcast shape. Returns ``(a, b, sse)``.
     """
-    sw = w.sum(-1)
-    safe = np.where(sw > 0, sw, 1.0)
-    mx = (w * x).sum(-1) / safe
-    my = (w * y).sum(-1) / safe
-    sxx = (w * (x - mx[..., None]) ** 2).sum(-1)
-    sxy = (w * (x - mx[..., None]) * (y - my[..., None])).sum(-1)
+    sw, swy, swyy = w.sum(-1), (w * y).sum(-1), (w * y * y).sum(-1)
+    wx = w * x
+    swx, swxx, swxy = wx.sum(-1), (wx * x).sum(-1), (wx * y).sum(-1)
+    shape = np.broadcast_shapes(swx.shape, sw.shape)
+    sw, swy, swyy = (np.broadcast_to(v, shape) for v in (sw, swy, swyy))
+
+    def sse(a, b):
+        with np.errstate(over="ignore", invalid="ignore"):
+            val = (swyy - 2 * a * swy - 2 * b * swxy + a * a * sw + 2 * a * b * swx
+                   + b * b * swxx)
+        return np.where(np.isfinite(val), val, np.inf)
+
     with np.errstate(divide="ignore", invalid="ignore"):
-        b_free = np.where(sxx > 1e-300, sxy / np.where(sxx > 1e-300, sxx, 1.0), 0.0)
-    a_free = my - b_free * mx
-    wxx = (w * x * x).sum(-1)
-    wxx = np.where(wxx > 0, wxx, 1.0)
-    cands = [
-        (a_free, b_free),
-        (np.clip(my, 0.0, 1.0), np.zeros_like(my)),
-        (np.zeros_like(my), np.maximum((w * x * y).sum(-1) / wxx, 0.0)),
-        (np.ones_like(my), np.maximum((w * x * (y - 1.0)).sum(-1) / wxx, 0.0)),
-    ]
+        det = sw * swxx - swx * swx
+        ok = det > 1e-300 * np.maximum(sw * swxx, 1e-300)
+        safe = np.where(ok, det, 1.0)
+        b_free = np.where(ok, (sw * swxy - swx * swy) / safe, 0.0)
+        a_free = np.where(ok, (swxx * swy - swx * swxy) / safe,
+                          np.where(sw > 0, swy / np.where(sw > 0, sw, 1.0), 0.0))
+        pos = swxx > 0
+        sxx = np.where(pos, swxx, 1.0)
+        cands = [
+            (a_free, b_free),
+            (np.clip(np.where(sw > 0, swy / np.where(sw > 0, sw, 1.0), 0.0), 0.0, 1.0),
+             np.zeros(shape)),
+            (np.zeros(shape), np.where(pos, np.maximum(swxy / sxx, 0.0), 0.0)),
+            (np.ones(shape), np.where(pos, np.maximum((swxy - swx) / sxx, 0.0), 0.0)),
+        ]
     best_a, best_b, best_sse = None, None, None
     for k, (a, b) in enumerate(cands):
-        sse = (w * (y - a[..., None] - b[..., None] * x) ** 2).sum(-1)
+        val = sse(a, b)
         if k == 0:
-            sse = np.where((b >= 0) & (a >= 0) & (a <= 1), sse, np.inf)
-            best_a, best_b, best_sse = a, b, sse
+            val = np.where((b >= 0) & (a >= 0) & (a <= 1), val, np.inf)
+            best_a, best_b, best_sse = a, b, val
             continue
-        better = sse < best_sse
+        better = val < best_sse
         best_a = np.where(better, a, best_a)
         best_b = np.where(better, b, best_b)
-        best_sse = np.where(better, sse, best_sse)
-    return best_a, best_b, best_sse
+        best_sse = np.where(better, val, best_sse)
+    return best_a, best_b, np.maximum(best_sse, 0.0)
 
 
 def _profile(family: Family, logn: np.ndarray, y: np.ndarray, w: np.ndarray,
@@ -213,7 +225,7 @@ def fit_family_batch(
     weights: np.ndarray,
     *,
     grid_points: int | None = None,
-    refine_steps: int = 40,
+    refine_steps: int = 30,
 ) -> np.ndarray:
     """Fit many curves of one family at once by profiling out (a, b).
 
@@ -223,10 +235,10 @@ def fit_family_batch(
     levels : array of shape (n_levels,), the distinct budgets.
     means : array of shape (n_fits, n_levels), weighted mean error at each budget.
     weights : array of shape (n_fits, n_levels), total weight at each budget (0 = absent).
-    grid_points : points of the shape grid per shape parameter (default 251 for one shape
-        parameter, 25 per axis for two).
-    refine_steps : golden-section steps (one shape parameter) or 1/3 zoom rounds divided by
-        10 (two shape parameters) after the grid.
+    grid_points : points of the shape grid per shape parameter (default 101 for one shape
+        parameter, 15 per axis for two).
+    refine_steps : golden-section steps (one shape parameter) or, divided by 5, rounds of
+        a 5 x 5 local grid halving its spacing each round (two shape parameters).
 
     Returns
     -------
@@ -242,7 +254,7 @@ def fit_family_batch(
     lo, hi = fam.box(float(levels.min()), float(levels.max()))
     n_fits = y.shape[0]
     if fam.n_shape == 1:
-        pts = grid_points or 251
+        pts = grid_points or 101
         grid = np.linspace(lo[0], hi[0], pts)
         sse = _profile(fam, logn, y, w, np.broadcast_to(grid[None, :, None], (n_fits, pts, 1)))
         k = np.argmin(sse, axis=1)
@@ -252,20 +264,20 @@ def fit_family_batch(
         theta = _golden(lambda t: _profile(fam, logn, y, w, t[:, None, None])[:, 0],
                         a_lo, a_hi, refine_steps)[:, None]
     else:
-        pts = grid_points or 25
+        pts = grid_points or 15
         g0 = np.linspace(lo[0], hi[0], pts)
         g1 = np.linspace(lo[1], hi[1], pts)
         mesh = np.stack(np.meshgrid(g0, g1, indexing="ij"), axis=-1).reshape(-1, 2)
         sse = _profile(fam, logn, y, w, np.broadcast_to(mesh[None], (n_fits, *mesh.shape)))
         best = mesh[np.argmin(sse, axis=1)]                        # (B, 2)
         step = np.array([g0[1] - g0[0], g1[1] - g1[0]])
-        offs = np.linspace(-1.0, 1.0, 7)
+        offs = np.linspace(-1.0, 1.0, 5)
         local = np.stack(np.meshgrid(offs, offs, indexing="ij"), axis=-1).reshape(-1, 2)
-        for _ in range(max(1, refine_steps // 10)):
-            cand = np.clip(best[:, None, :] + local[None] * step, lo, hi)   # (B, 49, 2)
+        for _ in range(max(1, refine_steps // 5)):
+            cand = np.clip(best[:, None, :] + local[None] * step, lo, hi)   # (B, 25, 2)
             sse = _profile(fam, logn, y, w, cand)
             best = cand[np.arange(n_fits), np.argmin(sse, axis=1)]
-            step = step / 3.0
+            step = step / 2.0
         theta = best
     args = [theta[:, j:j + 1] for j in range(fam.n_shape)]
     a, b, _ = profile_ab(fam.shape(logn, *args), y, w)

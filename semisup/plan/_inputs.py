@@ -149,14 +149,27 @@ class StudyFacts:
     #: out a different fold) or "test_file" (a separate labeled file, evaluated only)
     protocol: str = "holdout"
     n_eval: int | None = None
+    n_rows_evaluated: int | None = None
+    folds: int | None = None
+    n_repeats: int | None = None
+    evaluation: dict | None = None
 
     @property
-    def shared_eval_rows(self) -> int | None:
-        """Rows of the one evaluation set every repeat is scored on (its sampling error is
-        not in the spread over repeats); None under cross-fitting, where each repeat is
-        scored on its own fold and the spread already holds that error."""
+    def shared_eval_rows(self) -> float | None:
+        """Effective size of the evaluation rows that all repeats share.
+
+        Their sampling error moves every repeat together, so the spread over repeats cannot
+        contain it and the plan adds it as ``p (1 - p) / shared_eval_rows``. A fixed holdout
+        or a test file: its size. Cross-fitting with at most one repeat per fold: None (each
+        repeat is scored on its own fold; the spread already holds that error). With more
+        repeats than folds the repeats of one fold share rows: the study's own
+        ``p (1 - p) / n_rows_evaluated * (R - folds) / (R - 1)`` as an effective size.
+        """
         if self.protocol == "cross_fit":
-            return None
+            r, k, n = self.n_repeats, self.folds, self.n_rows_evaluated
+            if not (r and k and n) or r <= k:
+                return None
+            return n * (r - 1) / (r - k)
         return self.n_eval if self.n_eval is not None else self.n_holdout
 
 
@@ -181,8 +194,13 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
         proto = str(evaluation.get("protocol") or "holdout").strip().lower().replace("-", "_")
         facts.protocol = {"crossfit": "cross_fit", "cross_fitted": "cross_fit",
                           "test": "test_file"}.get(proto, proto)
-        facts.n_eval = _as_int(_lookup([evaluation], "n_test", "n_eval", "n_rows",
-                                       "n_holdout", "rows"))
+        facts.n_eval = _as_int(evaluation.get("n_eval_min"))
+        facts.n_rows_evaluated = _as_int(evaluation.get("n_rows_evaluated"))
+        facts.folds = _as_int(evaluation.get("folds"))
+        per_repeat = evaluation.get("per_repeat")
+        facts.n_repeats = (len(per_repeat) if isinstance(per_repeat, list) and per_repeat
+                           else _as_int(_lookup(sources, "repeats")))
+    facts.evaluation = dict(evaluation) if isinstance(evaluation, Mapping) else None
     data = study.get("data") if isinstance(study, Mapping) else None
     counts = _lookup([data or {}, *sources], "labeled_class_counts", "class_counts")
     if isinstance(counts, Mapping):
@@ -202,7 +220,11 @@ def data_warnings(facts: StudyFacts) -> list[str]:
     Thresholds (holdout under 100 rows, class ratio 5 or more) are common practice, no source.
     """
     out = list(facts.warnings)
-    if facts.n_holdout is not None and facts.n_holdout < 100:
+    if facts.protocol == "cross_fit":
+        if facts.n_rows_evaluated is not None and facts.n_rows_evaluated < 100:
+            out.append(f"the study evaluated only {facts.n_rows_evaluated} labeled rows in "
+                       "all, so every measured metric is noisy")
+    elif facts.n_holdout is not None and facts.n_holdout < 100:
         out.append(f"the holdout has only {facts.n_holdout} rows, so every measured metric "
                    "is noisy (one row moves accuracy by "
                    f"{1 / max(facts.n_holdout, 1):.3f})")

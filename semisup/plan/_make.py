@@ -146,10 +146,12 @@ class Plan:
         return "\n".join(lines)
 
 
-def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str) -> list[dict]:
-    """The study's measured points (Student-t interval of the mean over repeats), at the
-    plan's interval level and with the plan's extra curve columns."""
-    points = summarize_curves(df, metrics=[metric], confidence=INTERVAL)
+def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str,
+                   evaluation: dict | None) -> list[dict]:
+    """The study's measured points (Student-t interval of the mean over repeats, plus the
+    evaluation rows' variance the repeats share), at the plan's interval level and with the
+    plan's extra curve columns."""
+    points = summarize_curves(df, metrics=[metric], confidence=INTERVAL, evaluation=evaluation)
     return [{"method": method, "strategy": strategy, "metric": metric,
              "n_labels": int(p["n_labels"]), "mean": p["mean"], "low": p["low"],
              "high": p["high"], "measured": True, "extrapolated": False, "fit": "",
@@ -328,7 +330,7 @@ def make_plan(
             sub = grp[grp[m].notna()]
             if sub.empty or (method, strategy, m) not in fc.bands:
                 continue
-            curve_rows.extend(_measured_rows(sub, method, strategy, m))
+            curve_rows.extend(_measured_rows(sub, method, strategy, m, facts.evaluation))
             curve_rows.extend(_fitted_rows(fc.bands[(method, strategy, m)],
                                            fc.displays[(method, strategy, m)], method,
                                            strategy, m))
