@@ -138,6 +138,19 @@ class Plan:
                     f"predicted {_fmt(pred['mean'])} [{_fmt(pred['low'])}, {_fmt(pred['high'])}]"
                     f", measured {_fmt(b['measured'])}, error {b['error']:+.3f}, "
                     f"{'covered' if b['covered'] else 'NOT covered'}.")
+        ev = self.evidence
+        cal = ev.get("calibration") or {}
+        if cal:
+            wins = ", ".join(f"{k} {v}" for k, v in sorted((ev.get("family_wins") or {}).items()))
+            text = (f"calibrated on {cal.get('n_backtests')} backtest forecasts: metric shift "
+                    f"{cal.get('metric_shift_per_doubling', 0.0):+.4f} and extra sd "
+                    f"{(cal.get('extra_sd_at') or {}).get('2x', 0.0):.4f} per doubling"
+                    if cal.get("calibrated") else f"not calibrated ({cal.get('reason', '')})")
+            lines.append(f"Forecast: curve families weighted by their backtests (winning "
+                         f"family per curve: {wins or 'none'}); intervals {text}.")
+        note = (ev.get("selection") or {}).get("note")
+        if note:
+            lines.append(f"Overlap: {note}.")
         lines.append(f"Rows to label next: {len(self.label_next)} "
                      f"({self.label_next_strategy} selection) in label_next.csv.")
         for w in self.warnings:
@@ -207,7 +220,8 @@ def _rivals(chosen: Option | None, fc: Forecasts, metric: str) -> list[Option]:
     return sorted(overlapping(chosen, at), key=lambda o: -o.mean)
 
 
-def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str) -> str:
+def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
+                  reached: bool) -> str:
     if chosen is None or not rivals:
         return ""
     names = ", ".join(f"{o.method} ({o.strategy}) {_fmt(o.mean)} [{_fmt(o.low)}, "
@@ -216,7 +230,8 @@ def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str) -> s
     return (f"at {chosen.n_labels} labels the {INTERVAL:.0%} intervals of {names}{more} overlap "
             f"that of {chosen.method} ({chosen.strategy}) {_fmt(chosen.mean)} "
             f"[{_fmt(chosen.low)}, {_fmt(chosen.high)}]: the study cannot tell these "
-            f"{metric} values apart, so the cheapest option that is sure enough is preferred")
+            f"{metric} values apart"
+            + (", so the cheapest option that is sure enough is preferred" if reached else ""))
 
 
 def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: int | None, rivals: list[Option],
@@ -348,7 +363,8 @@ def make_plan(
         warnings.append("the chosen curve uses the monotone fallback, not a fitted curve "
                         "family")
     rivals = _rivals(chosen if chosen is not None else best, fc, metric)
-    note = _overlap_note(chosen if chosen is not None else best, rivals, metric)
+    note = _overlap_note(chosen if chosen is not None else best, rivals, metric,
+                         chosen is not None)
     for b in backtests:
         if b["covered"] is False:
             warnings.append(f"backtest of {b['method']} ({b['strategy']}): the interval did not "
