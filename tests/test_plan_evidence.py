@@ -108,3 +108,22 @@ def test_evidence_section_escapes_names_from_the_data(planned):
     assert "<script>" not in page and "&lt;script&gt;" in page
     assert "Paule-Mandel" in page and "winning curve family" in page
     assert evidence_section({"target": {}}) is None and evidence_html(None) == ""
+
+
+def test_cross_fit_band_is_floored_at_the_binomial_error_of_the_evaluated_rows(tmp_path):
+    # Noise-free repeats under cross-fitting: the spread over folds is zero, which no real
+    # evaluation on 400 rows can be (Bengio & Grandvalet 2004: the spread over folds
+    # underestimates). The band at a measured budget is then p +- z_0.95 sqrt(p(1-p)/400)
+    # (binomial standard error of a proportion; normal quantile from scipy.stats).
+    from scipy.stats import norm
+
+    folder = write_study(tmp_path, budgets=BUDGETS, noise=0.0)
+    study = json.loads((folder / "study.json").read_text())
+    study["evaluation"] = {"protocol": "cross-fit", "folds": 5, "n_rows_evaluated": 400,
+                           "per_repeat": [{}] * 5}
+    (folder / "study.json").write_text(json.dumps(study))
+    plan = make_plan(folder, PlanRequest("accuracy", 0.9, 1.0), select_rows=stand_in_select_rows,
+                     n_boot=2000)
+    o = next(o for o in plan.options if o.method == "latent-logreg" and o.n_labels == 160)
+    half = norm.ppf(0.95) * np.sqrt(o.mean * (1 - o.mean) / 400)
+    assert (o.high - o.low) / 2 == pytest.approx(half, rel=0.15)

@@ -63,6 +63,15 @@ class Backtest:
         }
 
 
+def _finite_cells(n, values, repeat):
+    """Flat float budgets and values and the repeat ids of the cells with a finite value."""
+    n = np.asarray(n, dtype=float).ravel()
+    values = np.asarray(values, dtype=float).ravel()
+    repeat = np.asarray(repeat).ravel()
+    keep = np.isfinite(values)
+    return n[keep], values[keep], repeat[keep]
+
+
 def backtest_curve(
     n: np.ndarray,
     metric: np.ndarray,
@@ -74,11 +83,7 @@ def backtest_curve(
 ) -> Backtest:
     """Refit the curve of a higher-is-better ``metric`` without its largest budget, predict
     that budget, and compare with the measured mean there."""
-    n = np.asarray(n, dtype=float).ravel()
-    metric = np.asarray(metric, dtype=float).ravel()
-    repeat = np.asarray(repeat).ravel()
-    keep = np.isfinite(metric)
-    n, metric, repeat = n[keep], metric[keep], repeat[keep]
+    n, metric, repeat = _finite_cells(n, metric, repeat)
     levels = np.unique(n)
     nan = float("nan")
     if levels.size < 3:
@@ -155,11 +160,7 @@ def rolling_origin(
     list of :class:`OriginForecast`, smallest origin first; an origin with no later budget in
     reach, or where no family has enough budgets, is left out.
     """
-    n = np.asarray(n, dtype=float).ravel()
-    err = np.asarray(err, dtype=float).ravel()
-    repeat = np.asarray(repeat).ravel()
-    keep = np.isfinite(err)
-    n, err, repeat = n[keep], err[keep], repeat[keep]
+    n, err, repeat = _finite_cells(n, err, repeat)
     levels = np.unique(n)
     rng = np.random.default_rng(seed)
     out = []

@@ -150,9 +150,17 @@ def weigh_curve(model: CurveModel, pooled: Mapping[str, tuple[float, int]], *,
 
 
 def forecast_band(model: CurveModel, grid: np.ndarray, cal: Calibration, *, n_boot: int,
-                  seed: int, interval: float, eval_rows: int | None
-                  ) -> tuple[CurveBand, np.ndarray]:
+                  seed: int, interval: float, eval_rows: float | None,
+                  eval_floor_rows: int | None = None) -> tuple[CurveBand, np.ndarray]:
     """The weighted, calibrated band of a weighed curve on ``grid``.
+
+    ``eval_rows``: size of an evaluation set shared by every repeat (its binomial error is
+    added). ``eval_floor_rows``: under cross-fitting, the labeled rows evaluated in all; the
+    spread over a handful of folds is a downward-biased estimate of the evaluation error of
+    their mean (Bengio & Grandvalet 2004, "No unbiased estimator of the variance of K-fold
+    cross-validation"), so where the band's variance is below the binomial
+    ``p (1 - p) / eval_floor_rows`` the difference is added as one shared shift per resample
+    (a floor, not a second copy of the evaluation error).
 
     Returns ``(band, own_var)``: the band (error rates) and, per grid budget, the variance of
     the samples without the shared evaluation noise (what the method's own uncertainty is,
@@ -176,5 +184,9 @@ def forecast_band(model: CurveModel, grid: np.ndarray, cal: Calibration, *, n_bo
                                      spread_factor=factor)
     own_var = np.var(samp, axis=0)
     samp = samp + eval_noise(point, eval_rows, n_boot, rng)
+    if eval_floor_rows:
+        p = np.clip(point, 0.0, 1.0)
+        short = p * (1 - p) / eval_floor_rows - np.var(samp, axis=0)
+        samp = samp + rng.standard_normal((n_boot, 1)) * np.sqrt(np.clip(short, 0.0, None))
     point = np.clip(point, 0.0, 1.0)
     return band_from_samples(fit, grid, point, samp, interval), own_var

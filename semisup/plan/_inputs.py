@@ -172,6 +172,13 @@ class StudyFacts:
             return n * (r - 1) / (r - k)
         return self.n_eval if self.n_eval is not None else self.n_holdout
 
+    @property
+    def eval_floor_rows(self) -> int | None:
+        """Under cross-fitting, the labeled rows evaluated over the whole study: the binomial
+        error of a proportion on that many rows is the least evaluation error the curve's
+        level can have (a floor for the spread over few folds); None otherwise."""
+        return self.n_rows_evaluated if self.protocol == "cross_fit" else None
+
 
 def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
     """Pull the facts the plan needs out of study.json (and data_card.json as a fallback)."""

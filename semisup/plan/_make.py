@@ -234,6 +234,25 @@ def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
             + (", so the cheapest option that is sure enough is preferred" if reached else ""))
 
 
+def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
+    if facts.protocol == "cross_fit":
+        text = ("each repeat was scored on its own fold, so the spread over repeats holds the "
+                "evaluation rows' sampling error")
+        if eval_rows:
+            text += (f"; repeats of the same fold share rows, an effective {eval_rows:.0f} "
+                     "shared rows' binomial error is added")
+        if facts.eval_floor_rows:
+            text += (f"; where the spread is below the binomial error of the "
+                     f"{facts.eval_floor_rows} rows evaluated in all (few folds underestimate "
+                     "it), the band is widened to it")
+        return text
+    if eval_rows:
+        return (f"every repeat was scored on the same {eval_rows:.0f} rows; their binomial "
+                "sampling error is added to every interval")
+    return ("the number of evaluation rows is unknown (no study.json), so no evaluation error "
+            "is added beyond the spread over repeats")
+
+
 def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: int | None, rivals: list[Option],
               note: str) -> dict:
     """The plan's evidence: backtests per ratio, calibration, curve families, the choice."""
@@ -250,10 +269,8 @@ def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: int | None, rivals: l
         "evaluation": {
             "protocol": facts.protocol,
             "shared_eval_rows": eval_rows,
-            "note": ("each repeat was scored on its own fold, so the spread over repeats "
-                     "already holds the evaluation rows' sampling error" if eval_rows is None
-                     else f"every repeat was scored on the same {eval_rows} rows; their "
-                          "binomial sampling error is added to every interval"),
+            "eval_floor_rows": facts.eval_floor_rows,
+            "note": _evaluation_note(facts, eval_rows),
         },
         "calibration": cal,
         "backtest_by_ratio": fc.by_ratio,
@@ -333,7 +350,7 @@ def make_plan(
     eval_rows = facts.shared_eval_rows
     fc = forecast_all(
         cells, metric, metrics_present, seed=facts.seed, interval=INTERVAL, n_boot=n_boot,
-        eval_rows=eval_rows, labels_owned=labels_owned,
+        eval_rows=eval_rows, eval_floor_rows=facts.eval_floor_rows, labels_owned=labels_owned,
         option_args={"target": request.target, "confidence": request.confidence,
                      "label_price": label_price, "labels_owned": labels_owned,
                      "cost_per_round": request.cost_per_round,

@@ -12,6 +12,9 @@ calibration are pooled over them):
 5. per strategy and budget: shrink the methods' predictions toward their mean (``_honest``);
 6. options of each curve (``_choose``).
 
+Under cross-fitting the band's variance is floored at the binomial error of the evaluated
+rows (see ``forecast_band``).
+
 The report-only metrics reuse the family weights and the calibration of the plan's metric
 for the same curve (their backtests would cost as much again and the metrics move
 together).
@@ -140,7 +143,8 @@ def forecast_all(
     seed: int,
     interval: float,
     n_boot: int,
-    eval_rows: int | None,
+    eval_rows: float | None,
+    eval_floor_rows: int | None = None,
     labels_owned: int,
     option_args: dict,
 ) -> Forecasts:
@@ -185,7 +189,8 @@ def forecast_all(
         band, var = forecast_band(m, grid, cal, n_boot=n_boot,
                                   seed=derive_seed(seed, "plan", "bootstrap", k[0], k[1],
                                                    metric),
-                                  interval=interval, eval_rows=eval_rows)
+                                  interval=interval, eval_rows=eval_rows,
+                                  eval_floor_rows=eval_floor_rows)
         bands[(*k, metric)], own_var[k], displays[(*k, metric)] = band, var, display
     bands, factors = _shrink(bands, own_var, keys, metric)
 
@@ -206,7 +211,8 @@ def forecast_all(
             band, _ = forecast_band(om, grid, cal, n_boot=max(n_boot // 2, 1),
                                     seed=derive_seed(seed, "plan", "bootstrap", k[0], k[1],
                                                      other),
-                                    interval=interval, eval_rows=eval_rows)
+                                    interval=interval, eval_rows=eval_rows,
+                                    eval_floor_rows=eval_floor_rows)
             bands[(*k, other)], displays[(*k, other)] = band, display
 
     options: list[Option] = []
