@@ -42,7 +42,6 @@ import json
 import logging
 import os
 import platform
-import resource
 import sys
 import tempfile
 import time
@@ -105,16 +104,10 @@ def stratified_rows(y: pd.Series, k: int, seed: int) -> np.ndarray:
     return np.array(sorted(out))
 
 
-def _cpu() -> float:
-    """CPU seconds of this process and its finished children (the study's workers)."""
-    own = resource.getrusage(resource.RUSAGE_SELF)
-    kids = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return own.ru_utime + own.ru_stime + kids.ru_utime + kids.ru_stime
-
-
 class _Timer:
-    """Wall and CPU seconds of a step; kept in ``times.json`` so that a rerun that only
-    resumes a finished study reports the time the study first took."""
+    """Wall seconds of a step and the machine's load average after it; kept in
+    ``times.json`` so that a rerun that only resumes a finished study reports the time the
+    study first took."""
 
     def __init__(self, folder: Path):
         self.path = folder / "times.json"
@@ -125,12 +118,12 @@ class _Timer:
         self.times: dict[str, float] = {}
 
     def run(self, step: str, fn, *, resumable: bool):
-        w0, c0 = time.perf_counter(), _cpu()
+        w0 = time.perf_counter()
         out = fn()
-        wall, cpu = time.perf_counter() - w0, _cpu() - c0
+        wall, load = time.perf_counter() - w0, os.getloadavg()[1]
         if resumable and step in self.saved and wall < 0.5 * self.saved[step]:
-            wall, cpu = self.saved[step], self.saved.get(step + "_cpu", cpu)
-        self.times[step], self.times[step + "_cpu"] = wall, cpu
+            wall, load = self.saved[step], self.saved.get(step + "_load", float("nan"))
+        self.times[step], self.times[step + "_load"] = wall, load
         self.path.write_text(json.dumps({**self.saved, **self.times}, indent=1))
         return out
 
@@ -251,29 +244,27 @@ def render(results: list[dict], wall: float) -> str:
         "",
         "| table | rows | classes | largest budget | eval rows | MAE 2x | MAE 4x | bias 2x | "
         "bias 4x | coverage | half-width 2x | half-width 4x | regret (chosen) | "
-        "rank regret 2x / 4x | chosen | minutes (wall / CPU) |",
+        "rank regret 2x / 4x | chosen | minutes (load) |",
         "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|---|---:|",
     ]
     for r in results:
         p2, p4 = r["per_ratio"].get(2, {}), r["per_ratio"].get(4, {})
         t = r["times"]
         mins = (t["study"] + t["plan"] + t["truth"]) / 60
-        cpu = sum(t.get(k + "_cpu", float("nan")) for k in ("study", "plan", "truth")) / 60
+        load = t.get("study_load", float("nan"))
         lines.append(
             f"| {r['table']} | {r['n_rows']} | {r['n_classes']} | {r['n_max']} | "
             f"{r['n_eval']} | {_f(p2.get('mae'))} | {_f(p4.get('mae'))} | "
             f"{_f(p2.get('bias'), 3)} | {_f(p4.get('bias'), 3)} | {_f(r['coverage'], 2)} | "
             f"{_f(p2.get('half'))} | {_f(p4.get('half'))} | {_f(r['regret'])} | "
             f"{_f(p2.get('rank_regret'))} / {_f(p4.get('rank_regret'))} | {r['chosen']} | "
-            f"{mins:.1f} / {cpu:.1f} |")
+            f"{mins:.1f} ({load:.0f}) |")
     cov = [r["coverage"] for r in results if r["coverage"] is not None]
     mae2 = [r["per_ratio"].get(2, {}).get("mae") for r in results]
     mae4 = [r["per_ratio"].get(4, {}).get("mae") for r in results]
     half2 = [r["per_ratio"].get(2, {}).get("half") for r in results]
     reg = [r["regret"] for r in results if np.isfinite(r["regret"])]
     g = GOALS
-    total_cpu = sum(r["times"].get(k + "_cpu", float("nan")) for r in results
-                    for k in ("study", "plan", "truth")) / 60
     lines += [
         "",
         f"all tables: MAE 2x mean {_f(np.nanmean(np.array(mae2, float)))} (goal <= "
@@ -291,9 +282,9 @@ def render(results: list[dict], wall: float) -> str:
         "evaluation set adjusted: " + (", ".join(
             f"{r['table']} {r['n_eval']} rows (table has {r['n_rows']}, 4x budget "
             f"{4 * r['n_max']})" for r in results if r["n_eval"] < N_EVAL) or "none"),
-        f"wall time {wall / 60:.1f} minutes; study + plan + truth per table in the last "
-        f"column, CPU minutes summed over processes: {total_cpu:.1f} (on an idle 2-core "
-        f"machine the wall time is about CPU / 2 = {total_cpu / 2:.1f} minutes)",
+        f"wall time of this run {wall / 60:.1f} minutes; last column: study + plan + truth "
+        "wall minutes per table when first computed, and the 5-minute load average after "
+        "its study (2 cores; above 2 the machine was shared)",
     ]
     return "\n".join(lines)
 
