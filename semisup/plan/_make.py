@@ -235,6 +235,7 @@ def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
 
 
 def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
+    """One sentence on how the evaluation rows' sampling error enters the intervals."""
     if facts.protocol == "cross_fit":
         text = ("each repeat was scored on its own fold, so the spread over repeats holds the "
                 "evaluation rows' sampling error")
@@ -253,8 +254,8 @@ def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
             "is added beyond the spread over repeats")
 
 
-def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: int | None, rivals: list[Option],
-              note: str) -> dict:
+def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals: list[Option],
+              note: str, pick: Option | None) -> dict:
     """The plan's evidence: backtests per ratio, calibration, curve families, the choice."""
     cal = fc.calibration.to_dict()
     extra = float(np.hypot(fc.calibration.sd_per_doubling, fc.calibration.shift_se))
@@ -284,6 +285,11 @@ def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: int | None, rivals: l
                               "Morris 1975)"),
             "overlap": [o.to_dict() for o in rivals],
             "note": note,
+            # share of each curve's own deviation from the methods' mean that is kept at the
+            # chosen (or best) budget: 1 = not shrunk
+            "shrinkage_factor": ({f"{m} ({s})": f[pick.n_labels]
+                                  for (m, s), f in fc.shrinkage.items()
+                                  if pick is not None and pick.n_labels in f}),
         },
     }
 
@@ -412,7 +418,8 @@ def make_plan(
                 labels_owned=labels_owned, label_price=label_price,
                 label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
                 curves=curves, n_max=n_max,
-                evidence=_evidence(fc, facts, eval_rows, rivals, note))
+                evidence=_evidence(fc, facts, eval_rows, rivals, note,
+                                   chosen if chosen is not None else best))
     atomic_write_text(study_dir / "curves.csv", curves.to_csv(index=False))
     atomic_write_text(study_dir / "label_next.csv", plan.label_next.to_csv(index=False))
     atomic_write_text(study_dir / "plan.json",

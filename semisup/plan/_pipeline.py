@@ -72,10 +72,9 @@ def _grid(levels: np.ndarray, extra: Iterable[float]) -> tuple[np.ndarray, np.nd
 def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: int) -> dict:
     """Leave the largest budget out: the weighted, calibrated forecast of it."""
     levels = model.levels
-    nan = None
     base = {"n_labels": int(levels[-1]) if levels.size else 0, "fit": "", "reason": "",
-            "predicted": {"mean": nan, "low": nan, "high": nan}, "measured": nan,
-            "covered": None, "error": nan}
+            "predicted": {"mean": None, "low": None, "high": None}, "measured": None,
+            "covered": None, "error": None}
     last = [o for o in model.origins if levels.size >= 2 and o.origin == levels[-2]]
     if not last or levels[-1] not in last[0].targets or not model.weights:
         base["reason"] = ("needs at least 4 measured budgets, the largest at most "
