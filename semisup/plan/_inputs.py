@@ -145,6 +145,39 @@ class StudyFacts:
     class_counts: dict[str, float] = field(default_factory=dict)
     batch_size: int | None = None
     warnings: list[str] = field(default_factory=list)
+    #: evaluation protocol: "holdout" (one fixed holdout), "cross_fit" (each repeat holds
+    #: out a different fold) or "test_file" (a separate labeled file, evaluated only)
+    protocol: str = "holdout"
+    n_eval: int | None = None
+    n_rows_evaluated: int | None = None
+    folds: int | None = None
+    n_repeats: int | None = None
+    evaluation: dict | None = None
+
+    @property
+    def shared_eval_rows(self) -> float | None:
+        """Effective size of the evaluation rows that all repeats share.
+
+        Their sampling error moves every repeat together, so the spread over repeats cannot
+        contain it and the plan adds it as ``p (1 - p) / shared_eval_rows``. A fixed holdout
+        or a test file: its size. Cross-fitting with at most one repeat per fold: None (each
+        repeat is scored on its own fold; the spread already holds that error). With more
+        repeats than folds the repeats of one fold share rows: the study's own
+        ``p (1 - p) / n_rows_evaluated * (R - folds) / (R - 1)`` as an effective size.
+        """
+        if self.protocol == "cross_fit":
+            r, k, n = self.n_repeats, self.folds, self.n_rows_evaluated
+            if not (r and k and n) or r <= k:
+                return None
+            return n * (r - 1) / (r - k)
+        return self.n_eval if self.n_eval is not None else self.n_holdout
+
+    @property
+    def eval_floor_rows(self) -> int | None:
+        """Under cross-fitting, the labeled rows evaluated over the whole study: the binomial
+        error of a proportion on that many rows is the least evaluation error the curve's
+        level can have (a floor for the spread over few folds); None otherwise."""
+        return self.n_rows_evaluated if self.protocol == "cross_fit" else None
 
 
 def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
@@ -163,6 +196,18 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
         if isinstance(holdout, float) and 0 < holdout < 1:
             holdout = None  # a fraction, not a size
     facts.n_holdout = _as_int(holdout)
+    evaluation = study.get("evaluation") if isinstance(study, Mapping) else None
+    if isinstance(evaluation, Mapping):
+        proto = str(evaluation.get("protocol") or "holdout").strip().lower().replace("-", "_")
+        facts.protocol = {"crossfit": "cross_fit", "cross_fitted": "cross_fit",
+                          "test": "test_file"}.get(proto, proto)
+        facts.n_eval = _as_int(evaluation.get("n_eval_min"))
+        facts.n_rows_evaluated = _as_int(evaluation.get("n_rows_evaluated"))
+        facts.folds = _as_int(evaluation.get("folds"))
+        per_repeat = evaluation.get("per_repeat")
+        facts.n_repeats = (len(per_repeat) if isinstance(per_repeat, list) and per_repeat
+                           else _as_int(_lookup(sources, "repeats")))
+    facts.evaluation = dict(evaluation) if isinstance(evaluation, Mapping) else None
     data = study.get("data") if isinstance(study, Mapping) else None
     counts = _lookup([data or {}, *sources], "labeled_class_counts", "class_counts")
     if isinstance(counts, Mapping):
@@ -182,7 +227,11 @@ def data_warnings(facts: StudyFacts) -> list[str]:
     Thresholds (holdout under 100 rows, class ratio 5 or more) are common practice, no source.
     """
     out = list(facts.warnings)
-    if facts.n_holdout is not None and facts.n_holdout < 100:
+    if facts.protocol == "cross_fit":
+        if facts.n_rows_evaluated is not None and facts.n_rows_evaluated < 100:
+            out.append(f"the study evaluated only {facts.n_rows_evaluated} labeled rows in "
+                       "all, so every measured metric is noisy")
+    elif facts.n_holdout is not None and facts.n_holdout < 100:
         out.append(f"the holdout has only {facts.n_holdout} rows, so every measured metric "
                    "is noisy (one row moves accuracy by "
                    f"{1 / max(facts.n_holdout, 1):.3f})")

@@ -20,11 +20,12 @@ from .._atomic import atomic_write_text
 from .._errors import PlanError
 from .._seeding import derive_seed
 from ..study import summarize_curves
-from ._backtest import Backtest, backtest_curve
-from ._bootstrap import CurveBand, bootstrap_curve
-from ._choose import Option, best_effort, budget_grid, choose, curve_options
+from ._bootstrap import CurveBand
+from ._choose import Option, best_effort, choose
 from ._costs import expected_label_price
-from ._curves import MAX_EXTRAPOLATION, fit_learning_curve
+from ._curves import MAX_EXTRAPOLATION
+from ._families import FAMILIES
+from ._honest import overlapping
 from ._inputs import (
     StudyFacts,
     data_warnings,
@@ -34,6 +35,7 @@ from ._inputs import (
     study_facts,
 )
 from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
+from ._pipeline import Forecasts, forecast_all
 from ._request import METRICS, PlanRequest
 
 __all__ = ["CURVE_COLUMNS", "Plan", "make_plan"]
@@ -67,6 +69,7 @@ class Plan:
     label_next_strategy: str
     curves: pd.DataFrame = field(repr=False)
     n_max: dict[str, int] = field(default_factory=dict)
+    evidence: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         r = self.request
@@ -85,6 +88,7 @@ class Plan:
             "best": None if self.best is None else self.best.to_dict(),
             "options": [o.to_dict() for o in self.options],
             "backtest": self.backtest,
+            **self.evidence,
             "label_next": {"strategy": self.label_next_strategy,
                            "n_rows": int(len(self.label_next))},
             "warnings": list(self.warnings),
@@ -134,6 +138,19 @@ class Plan:
                     f"predicted {_fmt(pred['mean'])} [{_fmt(pred['low'])}, {_fmt(pred['high'])}]"
                     f", measured {_fmt(b['measured'])}, error {b['error']:+.3f}, "
                     f"{'covered' if b['covered'] else 'NOT covered'}.")
+        ev = self.evidence
+        cal = ev.get("calibration") or {}
+        if cal:
+            wins = ", ".join(f"{k} {v}" for k, v in sorted((ev.get("family_wins") or {}).items()))
+            text = (f"calibrated on {cal.get('n_backtests')} backtest forecasts: metric shift "
+                    f"{cal.get('metric_shift_per_doubling', 0.0):+.4f} and extra sd "
+                    f"{(cal.get('extra_sd_at') or {}).get('2x', 0.0):.4f} per doubling"
+                    if cal.get("calibrated") else f"not calibrated ({cal.get('reason', '')})")
+            lines.append(f"Forecast: curve families weighted by their backtests (winning "
+                         f"family per curve: {wins or 'none'}); intervals {text}.")
+        note = (ev.get("selection") or {}).get("note")
+        if note:
+            lines.append(f"Overlap: {note}.")
         lines.append(f"Rows to label next: {len(self.label_next)} "
                      f"({self.label_next_strategy} selection) in label_next.csv.")
         for w in self.warnings:
@@ -142,10 +159,12 @@ class Plan:
         return "\n".join(lines)
 
 
-def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str) -> list[dict]:
-    """The study's measured points (Student-t interval of the mean over repeats), at the
-    plan's interval level and with the plan's extra curve columns."""
-    points = summarize_curves(df, metrics=[metric], confidence=INTERVAL)
+def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str,
+                   evaluation: dict | None) -> list[dict]:
+    """The study's measured points (Student-t interval of the mean over repeats, plus the
+    evaluation rows' variance the repeats share), at the plan's interval level and with the
+    plan's extra curve columns."""
+    points = summarize_curves(df, metrics=[metric], confidence=INTERVAL, evaluation=evaluation)
     return [{"method": method, "strategy": strategy, "metric": metric,
              "n_labels": int(p["n_labels"]), "mean": p["mean"], "low": p["low"],
              "high": p["high"], "measured": True, "extrapolated": False, "fit": "",
@@ -172,12 +191,107 @@ def _owned(request: PlanRequest, facts: StudyFacts, warnings: list[str]) -> int:
     if request.labels_owned is not None:
         return int(request.labels_owned)
     if facts.n_labeled is not None:
-        # A budget counts training labels; the holdout's labels are spent on evaluation and
-        # stay there, so they do not count towards any budget.
+        # A budget counts training labels. A fixed holdout's labels are spent on evaluation
+        # and stay there, so they do not count towards any budget; under cross-fitting (or
+        # with a separate test file) every labeled row of the table can train the model.
+        if facts.protocol in ("cross_fit", "test_file"):
+            return int(facts.n_labeled)
         return max(0, int(facts.n_labeled) - int(facts.n_holdout or 0))
     warnings.append("the number of labels owned is unknown (no n_labeled in study.json); "
                     "assumed 0, pass --labels-owned to set it")
     return 0
+
+
+def _rivals(chosen: Option | None, fc: Forecasts, metric: str) -> list[Option]:
+    """Other curves' predictions at the chosen budget whose interval overlaps the chosen's."""
+    if chosen is None:
+        return []
+    at = []
+    for (method, strategy, m), band in fc.bands.items():
+        if m != metric:
+            continue
+        i = np.flatnonzero(band.grid == chosen.n_labels)
+        if i.size == 0:
+            continue
+        j = int(i[0])
+        at.append(Option(method, strategy, chosen.n_labels, float(1 - band.point[j]),
+                         float(1 - band.high[j]), float(1 - band.low[j]), float("nan"),
+                         float("nan"), bool(band.extrapolated[j]), fit=band.fit.kind))
+    return sorted(overlapping(chosen, at), key=lambda o: -o.mean)
+
+
+def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
+                  reached: bool) -> str:
+    if chosen is None or not rivals:
+        return ""
+    names = ", ".join(f"{o.method} ({o.strategy}) {_fmt(o.mean)} [{_fmt(o.low)}, "
+                      f"{_fmt(o.high)}]" for o in rivals[:4])
+    more = f" and {len(rivals) - 4} more" if len(rivals) > 4 else ""
+    return (f"at {chosen.n_labels} labels the {INTERVAL:.0%} intervals of {names}{more} overlap "
+            f"that of {chosen.method} ({chosen.strategy}) {_fmt(chosen.mean)} "
+            f"[{_fmt(chosen.low)}, {_fmt(chosen.high)}]: the study cannot tell these "
+            f"{metric} values apart"
+            + (", so the cheapest option that is sure enough is preferred" if reached else ""))
+
+
+def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
+    """One sentence on how the evaluation rows' sampling error enters the intervals."""
+    if facts.protocol == "cross_fit":
+        text = ("each repeat was scored on its own fold, so the spread over repeats holds the "
+                "evaluation rows' sampling error")
+        if eval_rows:
+            text += (f"; repeats of the same fold share rows, an effective {eval_rows:.0f} "
+                     "shared rows' binomial error is added")
+        if facts.eval_floor_rows:
+            text += (f"; where the spread is below the binomial error of the "
+                     f"{facts.eval_floor_rows} rows evaluated in all (few folds underestimate "
+                     "it), the band is widened to it")
+        return text
+    if eval_rows:
+        return (f"every repeat was scored on the same {eval_rows:.0f} rows; their binomial "
+                "sampling error is added to every interval")
+    return ("the number of evaluation rows is unknown (no study.json), so no evaluation error "
+            "is added beyond the spread over repeats")
+
+
+def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals: list[Option],
+              note: str, pick: Option | None) -> dict:
+    """The plan's evidence: backtests per ratio, calibration, curve families, the choice."""
+    cal = fc.calibration.to_dict()
+    extra = float(np.hypot(fc.calibration.sd_per_doubling, fc.calibration.shift_se))
+    cal["extra_sd_at"] = {"2x": extra, "4x": 2 * extra}
+    cal["metric_shift_at"] = {"2x": -fc.calibration.shift_per_doubling,
+                              "4x": -2 * fc.calibration.shift_per_doubling}
+    winners: dict[str, int] = {}
+    for cm in fc.curve_models:
+        if cm["winner"]:
+            winners[cm["winner"]] = winners.get(cm["winner"], 0) + 1
+    return {
+        "evaluation": {
+            "protocol": facts.protocol,
+            "shared_eval_rows": eval_rows,
+            "eval_floor_rows": facts.eval_floor_rows,
+            "note": _evaluation_note(facts, eval_rows),
+        },
+        "calibration": cal,
+        "backtest_by_ratio": fc.by_ratio,
+        "backtests": fc.records,
+        "curve_families": {name: fam.formula for name, fam in FAMILIES.items()},
+        "curve_models": fc.curve_models,
+        "family_wins": winners,
+        "selection": {
+            "winners_curse": ("each method's prediction at a budget is shrunk toward the "
+                              "mean of the methods (positive-part James-Stein, Efron & "
+                              "Morris 1975)"),
+            "overlap": [o.to_dict() for o in rivals],
+            "note": note,
+            # share of each curve's own deviation from the methods' mean that is kept at the
+            # chosen (or best) budget: 1 = not shrunk
+            "shrinkage_factor": ({f"{m} ({s})": f[pick.n_labels]
+                                  for (m, s), f in fc.shrinkage.items()
+                                  if pick is not None and pick.n_labels in f}),
+        },
+    }
 
 
 def make_plan(
@@ -233,55 +347,34 @@ def make_plan(
     warnings.extend(data_warnings(facts))
 
     metrics_present = [m for m in METRICS if m in cells.columns and cells[m].notna().any()]
+    for m in metrics_present:
+        vals = cells[m].dropna()
+        if np.any((vals < 0) | (vals > 1)):
+            bad = cells.loc[vals.index[(vals < 0) | (vals > 1)][0], "method"]
+            raise PlanError(f"{study_dir / 'cells.csv'} column {m!r} has values outside "
+                            f"[0, 1] for method {bad!r}; rerun the study")
+    eval_rows = facts.shared_eval_rows
+    fc = forecast_all(
+        cells, metric, metrics_present, seed=facts.seed, interval=INTERVAL, n_boot=n_boot,
+        eval_rows=eval_rows, eval_floor_rows=facts.eval_floor_rows, labels_owned=labels_owned,
+        option_args={"target": request.target, "confidence": request.confidence,
+                     "label_price": label_price, "labels_owned": labels_owned,
+                     "cost_per_round": request.cost_per_round,
+                     "batch_size": facts.batch_size})
+    warnings.extend(fc.warnings)
     curve_rows: list[dict] = []
-    options: list[Option] = []
-    backtests: list[dict] = []
-    n_max: dict[str, int] = {}
     for (method, strategy), grp in cells.groupby(["method", "strategy"], sort=True):
         for m in metrics_present:
             sub = grp[grp[m].notna()]
-            if sub.empty:
+            if sub.empty or (method, strategy, m) not in fc.bands:
                 continue
-            curve_rows.extend(_measured_rows(sub, method, strategy, m))
-            n = sub["n_labels"].to_numpy(dtype=float)
-            vals = sub[m].to_numpy(dtype=float)
-            if np.any((vals < 0) | (vals > 1)):
-                raise PlanError(f"{study_dir / 'cells.csv'} column {m!r} has values outside "
-                                f"[0, 1] for method {method!r}; rerun the study")
-            rep = sub["repeat"].astype(str).to_numpy()
-            levels = np.unique(n)
-            limit = MAX_EXTRAPOLATION * levels[-1]
-            display = np.unique(np.concatenate([
-                np.round(np.geomspace(levels[0], limit, 40)), levels]))
-            extra = list(display)
-            if m == metric:
-                extra.append(labels_owned)
-            grid = budget_grid(levels, limit, extra=extra)
-            fit = fit_learning_curve(n, 1.0 - vals)
-            seed = derive_seed(facts.seed, "plan", "bootstrap", method, strategy, m)
-            band = bootstrap_curve(n, 1.0 - vals, rep, grid, fit=fit, seed=seed,
-                                   n_boot=n_boot if m == metric else max(n_boot // 2, 1),
-                                   interval=INTERVAL, holdout_rows=facts.n_holdout)
-            curve_rows.extend(_fitted_rows(band, display, method, strategy, m))
-            if m != metric:
-                continue
-            n_max[f"{method} ({strategy})"] = int(levels[-1])
-            if fit.flagged:
-                warnings.append(f"{method} ({strategy}): {fit.reason}; a monotone "
-                                "interpolation is used instead, flat beyond the largest "
-                                "measured budget")
-            show = list(levels) + [levels[-1] * f for f in (1.5, 2, 3, 4)]
-            if levels[0] <= labels_owned <= limit:
-                show.append(labels_owned)
-            options.extend(curve_options(
-                band, method=method, strategy=strategy, target=request.target,
-                confidence=request.confidence, label_price=label_price,
-                labels_owned=labels_owned, cost_per_round=request.cost_per_round,
-                batch_size=facts.batch_size, show=show))
-            bt: Backtest = backtest_curve(
-                n, vals, rep, n_boot=n_boot, interval=INTERVAL,
-                seed=derive_seed(facts.seed, "plan", "backtest", method, strategy, m))
-            backtests.append({"method": method, "strategy": strategy, **bt.to_dict()})
+            curve_rows.extend(_measured_rows(sub, method, strategy, m, facts.evaluation))
+            curve_rows.extend(_fitted_rows(fc.bands[(method, strategy, m)],
+                                           fc.displays[(method, strategy, m)], method,
+                                           strategy, m))
+    options = fc.options
+    backtests = fc.backtest
+    n_max = {f"{k[0]} ({k[1]})": int(mdl.levels[-1]) for k, mdl in fc.models.items()}
 
     chosen, runner_up = choose(options, request.confidence)
     best = chosen if chosen is not None else best_effort(options)
@@ -290,7 +383,11 @@ def make_plan(
         warnings.append(f"the chosen budget ({chosen.n_labels}) lies beyond the largest measured "
                         "budget; its prediction is extrapolated and its interval widened")
     if chosen is not None and chosen.flagged:
-        warnings.append("the chosen curve uses the monotone fallback, not the power law")
+        warnings.append("the chosen curve uses the monotone fallback, not a fitted curve "
+                        "family")
+    rivals = _rivals(chosen if chosen is not None else best, fc, metric)
+    note = _overlap_note(chosen if chosen is not None else best, rivals, metric,
+                         chosen is not None)
     for b in backtests:
         if b["covered"] is False:
             warnings.append(f"backtest of {b['method']} ({b['strategy']}): the interval did not "
@@ -320,7 +417,9 @@ def make_plan(
                 best=best, options=options, backtest=backtests, warnings=warnings,
                 labels_owned=labels_owned, label_price=label_price,
                 label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
-                curves=curves, n_max=n_max)
+                curves=curves, n_max=n_max,
+                evidence=_evidence(fc, facts, eval_rows, rivals, note,
+                                   chosen if chosen is not None else best))
     atomic_write_text(study_dir / "curves.csv", curves.to_csv(index=False))
     atomic_write_text(study_dir / "label_next.csv", plan.label_next.to_csv(index=False))
     atomic_write_text(study_dir / "plan.json",

@@ -1,0 +1,249 @@
+"""Every curve of a study, forecast together: backtests, family weights, calibration, bands,
+shrinkage against the winner's curse, options and the evidence the plan states.
+
+Order (all curves of the plan's metric at once, because the family errors and the
+calibration are pooled over them):
+
+1. per (method, strategy): fit every family, rolling-origin backtests (``_forecast``);
+2. pool the family errors, weigh each curve's families (``_ensemble``);
+3. fit the calibration to the weighted curves' backtest records (``_calibrate``);
+4. per curve: the weighted, calibrated band on the budget grid; the shared evaluation
+   set's binomial error is added only when every repeat was scored on the same rows;
+5. per strategy and budget: shrink the methods' predictions toward their mean (``_honest``);
+6. options of each curve (``_choose``).
+
+Under cross-fitting the band's variance is floored at the binomial error of the evaluated
+rows (see ``forecast_band``).
+
+The report-only metrics reuse the family weights and the calibration of the plan's metric
+for the same curve (their backtests would cost as much again and the metrics move
+together).
+
+Pure: a cells table and numbers in, records out.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .._seeding import derive_seed
+from ._bootstrap import CurveBand, band_from_samples, small_sample_factor
+from ._calibrate import Calibration, calibrate, calibrated_samples, ratio_table
+from ._choose import Option, budget_grid, curve_options
+from ._curves import MAX_EXTRAPOLATION
+from ._ensemble import combine, ensemble_records, pool_errors
+from ._forecast import CurveModel, forecast_band, prepare_curve, weigh_curve
+from ._honest import shrink_toward_mean
+
+__all__ = ["SHOW_MULTIPLES", "Forecasts", "forecast_all"]
+
+#: Multiples of the largest measured budget every curve lists as options.
+SHOW_MULTIPLES = (1.5, 2, 3, 4)
+
+
+@dataclass
+class Forecasts:
+    """What :func:`forecast_all` returns."""
+
+    bands: dict[tuple[str, str, str], CurveBand]
+    models: dict[tuple[str, str], CurveModel]
+    calibration: Calibration
+    options: list[Option]
+    records: list[dict]
+    by_ratio: list[dict]
+    curve_models: list[dict]
+    backtest: list[dict]
+    displays: dict[tuple[str, str, str], np.ndarray] = field(default_factory=dict)
+    shrinkage: dict[tuple[str, str], dict[int, float]] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+
+
+def _grid(levels: np.ndarray, extra: Iterable[float]) -> tuple[np.ndarray, np.ndarray]:
+    limit = MAX_EXTRAPOLATION * levels[-1]
+    display = np.unique(np.concatenate([np.round(np.geomspace(levels[0], limit, 40)), levels]))
+    shown = [round(levels[-1] * f) for f in SHOW_MULTIPLES]
+    return budget_grid(levels, limit, extra=[*display, *shown, *extra]), display
+
+
+def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: int) -> dict:
+    """Leave the largest budget out: the weighted, calibrated forecast of it."""
+    levels = model.levels
+    base = {"n_labels": int(levels[-1]) if levels.size else 0, "fit": "", "reason": "",
+            "predicted": {"mean": None, "low": None, "high": None}, "measured": None,
+            "covered": None, "error": None}
+    last = [o for o in model.origins if levels.size >= 2 and o.origin == levels[-2]]
+    if not last or levels[-1] not in last[0].targets or not model.weights:
+        base["reason"] = ("needs at least 4 measured budgets, the largest at most "
+                          f"{MAX_EXTRAPOLATION:g}x the next one")
+        if levels.size:
+            base["measured"] = float(1 - model.err[model.n == levels[-1]].mean())
+        return base
+    o = last[0]
+    j = int(np.flatnonzero(o.targets == levels[-1])[0])
+    point, samp = combine(o.points, o.samples, model.weights)
+    rng = np.random.default_rng(seed)
+    point, samp = calibrated_samples(point[j:j + 1], samp[:, j:j + 1], o.targets[j:j + 1],
+                                     o.origin, cal, rng,
+                                     spread_factor=small_sample_factor(o.n_repeats, interval))
+    tail = (1 - interval) / 2 * 100
+    low_e = min(float(np.percentile(samp, tail)), float(point[0]))
+    high_e = max(float(np.percentile(samp, 100 - tail)), float(point[0]))
+    mean, measured = 1 - float(point[0]), 1 - float(o.measured[j])
+    low, high = 1 - high_e, 1 - low_e
+    base.update({"predicted": {"mean": mean, "low": low, "high": high}, "measured": measured,
+                 "covered": bool(low - 1e-9 <= measured <= high + 1e-9),
+                 "error": mean - measured,
+                 "fit": max(model.weights, key=lambda f: model.weights[f]),
+                 "calibrated": cal.calibrated})
+    return base
+
+
+def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str
+            ) -> tuple[dict, dict]:
+    """James-Stein shrinkage across the methods of each strategy at each common budget."""
+    factors: dict[tuple[str, str], dict[int, float]] = {k: {} for k in keys}
+    strategies = sorted({s for _, s in keys})
+    for strategy in strategies:
+        ks = [k for k in keys if k[1] == strategy]
+        if len(ks) < 4:
+            continue
+        common = set(bands[(*ks[0], metric)].grid.tolist())
+        for k in ks[1:]:
+            common &= set(bands[(*k, metric)].grid.tolist())
+        common_arr = np.array(sorted(common))
+        if common_arr.size == 0:
+            continue
+        idx = {k: np.searchsorted(bands[(*k, metric)].grid, common_arr) for k in ks}
+        mu = np.array([bands[(*k, metric)].point[idx[k]] for k in ks])        # (K, G)
+        var = np.array([own_var[k][idx[k]] for k in ks])
+        shifts = {k: np.zeros_like(bands[(*k, metric)].point) for k in ks}
+        for g in range(common_arr.size):
+            shrunk, fac, _ = shrink_toward_mean(mu[:, g], var[:, g])
+            for i, k in enumerate(ks):
+                shifts[k][idx[k][g]] = shrunk[i] - mu[i, g]
+                factors[k][int(common_arr[g])] = float(fac[i])
+        for k in ks:
+            b = bands[(*k, metric)]
+            bands[(*k, metric)] = band_from_samples(
+                b.fit, b.grid, np.clip(b.point + shifts[k], 0, 1), b.samples + shifts[k],
+                b.interval, b.n_failed)
+    return bands, factors
+
+
+def forecast_all(
+    cells: pd.DataFrame,
+    metric: str,
+    metrics: Iterable[str],
+    *,
+    seed: int,
+    interval: float,
+    n_boot: int,
+    eval_rows: float | None,
+    eval_floor_rows: int | None = None,
+    labels_owned: int,
+    option_args: dict,
+) -> Forecasts:
+    """Forecast every (method, strategy) curve of ``cells`` for ``metric`` (and the
+    report-only ``metrics``), and list the options of the plan's metric.
+
+    ``option_args`` are the keyword arguments of ``curve_options`` other than the band,
+    method, strategy and ``show``.
+    """
+    groups = {k: g for k, g in cells.groupby(["method", "strategy"], sort=True)}
+    keys = [k for k, g in groups.items() if g[metric].notna().any()]
+    models: dict[tuple[str, str], CurveModel] = {}
+    for k in keys:
+        sub = groups[k][groups[k][metric].notna()]
+        models[k] = prepare_curve(
+            sub["n_labels"].to_numpy(float), 1.0 - sub[metric].to_numpy(float),
+            sub["repeat"].astype(str).to_numpy(),
+            seed=derive_seed(seed, "plan", "backtest", k[0], k[1], metric))
+    pooled = pool_errors(m.errors for m in models.values())
+    for m in models.values():
+        weigh_curve(m, pooled)
+    records = []
+    raw_records = []
+    for k, m in models.items():
+        if not m.weights:
+            continue
+        for r in ensemble_records(m.origins, m.weights,
+                                  small_sample_factor(m.n_repeats, interval)):
+            raw_records.append(r)
+            records.append({"method": k[0], "strategy": k[1], "origin": int(r.origin),
+                            "n_labels": int(r.n_labels), "ratio": r.ratio,
+                            "predicted": 1 - r.predicted, "measured": 1 - r.measured,
+                            "error": r.measured - r.predicted, "sd": r.sd,
+                            "measured_se": r.measured_se})
+    cal = calibrate(raw_records)
+
+    bands: dict[tuple[str, str, str], CurveBand] = {}
+    own_var: dict[tuple[str, str], np.ndarray] = {}
+    displays: dict[tuple[str, str, str], np.ndarray] = {}
+    for k, m in models.items():
+        grid, display = _grid(m.levels, [labels_owned])
+        band, var = forecast_band(m, grid, cal, n_boot=n_boot,
+                                  seed=derive_seed(seed, "plan", "bootstrap", k[0], k[1],
+                                                   metric),
+                                  interval=interval, eval_rows=eval_rows,
+                                  eval_floor_rows=eval_floor_rows)
+        bands[(*k, metric)], own_var[k], displays[(*k, metric)] = band, var, display
+    bands, factors = _shrink(bands, own_var, keys, metric)
+
+    for other in metrics:
+        if other == metric:
+            continue
+        for k, g in groups.items():
+            sub = g[g[other].notna()]
+            if sub.empty:
+                continue
+            om = prepare_curve(sub["n_labels"].to_numpy(float), 1.0 - sub[other].to_numpy(float),
+                               sub["repeat"].astype(str).to_numpy(), seed=0, backtest=False)
+            plan_model = models.get(k)
+            prior = ({f: (v, 1) for f, v in plan_model.mse.items()}
+                     if plan_model is not None and plan_model.mse else pooled)
+            weigh_curve(om, prior)
+            grid, display = _grid(om.levels, [])
+            band, _ = forecast_band(om, grid, cal, n_boot=max(n_boot // 2, 1),
+                                    seed=derive_seed(seed, "plan", "bootstrap", k[0], k[1],
+                                                     other),
+                                    interval=interval, eval_rows=eval_rows,
+                                    eval_floor_rows=eval_floor_rows)
+            bands[(*k, other)], displays[(*k, other)] = band, display
+
+    options: list[Option] = []
+    backtest: list[dict] = []
+    curve_models: list[dict] = []
+    warnings: list[str] = []
+    for k, m in models.items():
+        band = bands[(*k, metric)]
+        levels = m.levels
+        show = list(levels) + [round(levels[-1] * f) for f in SHOW_MULTIPLES]
+        if levels[0] <= labels_owned <= MAX_EXTRAPOLATION * levels[-1]:
+            show.append(labels_owned)
+        options.extend(curve_options(band, method=k[0], strategy=k[1], show=show,
+                                     **option_args))
+        bt = _last_backtest(m, cal, interval,
+                            derive_seed(seed, "plan", "last-backtest", k[0], k[1]))
+        backtest.append({"method": k[0], "strategy": k[1], **bt})
+        fit = m.fit
+        curve_models.append({
+            "method": k[0], "strategy": k[1], "metric": metric,
+            "fit": fit.kind if fit is not None else "",
+            "winner": (max(m.weights, key=lambda f: m.weights[f]) if m.weights else ""),
+            "weights": dict(m.weights), "backtest_mse": dict(m.mse),
+            "n_backtests": int(max((e.size for e in m.errors.values()), default=0)),
+            "flagged": bool(getattr(fit, "flagged", False)),
+            "reason": getattr(fit, "reason", ""),
+        })
+        if fit is not None and getattr(fit, "flagged", False):
+            warnings.append(f"{k[0]} ({k[1]}): {fit.reason}; a monotone interpolation is used "
+                            "instead, flat beyond the largest measured budget")
+    if not cal.calibrated:
+        warnings.append(f"intervals are not calibrated: {cal.reason}")
+    return Forecasts(bands, models, cal, options, records,
+                     ratio_table(raw_records, cal, interval), curve_models, backtest,
+                     displays, factors, warnings)
