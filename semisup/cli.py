@@ -299,14 +299,10 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     print(result.summary())
     print(f"wrote model folder {path}")
     if args.pseudo_labels is not None:
-        from ._atomic import atomic_path
-
         frame = result.pseudo_labels
-        if frame is None:
+        if result.write_pseudo_labels(args.pseudo_labels) is None:
             print("the table has no unlabeled rows; no pseudo-labels written")
         else:
-            with atomic_path(args.pseudo_labels) as tmp:
-                frame.to_csv(tmp, index=False)
             print(f"wrote {len(frame)} pseudo-labels ({int(frame['accepted'].sum())} accepted at "
                   f"{args.confidence_cut:g}) to {args.pseudo_labels}")
     return EXIT_OK

@@ -49,6 +49,16 @@ class FitResult:
     pseudo_labels: pd.DataFrame | None = None
     notes: list[str] = field(default_factory=list)
 
+    def write_pseudo_labels(self, path: str | os.PathLike[str]) -> Path | None:
+        """Write the pool's pseudo-labels as CSV (atomically); None when there is no pool."""
+        from .._atomic import atomic_path
+
+        if self.pseudo_labels is None:
+            return None
+        with atomic_path(path) as tmp:
+            self.pseudo_labels.to_csv(tmp, index=False)
+        return Path(path)
+
     def summary(self) -> str:
         r = self.report
         lines = [f"fitted {r['method']} on {r['n_labeled']} labeled rows"

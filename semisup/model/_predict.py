@@ -207,6 +207,7 @@ def predict_file(
     hashes = np.zeros(0, dtype=np.uint64)
     ignored: list[str] = []
     state: dict[str, Any] = {}
+    checked = False
     text_columns = (id_column,) if id_column else ()
     with atomic_path(out) as tmp:
         mode = "wb" if fmt == "parquet" else "w"
@@ -215,12 +216,15 @@ def predict_file(
             try:
                 for frame in read_chunks(data, chunk_rows=chunk_rows, delimiter=delimiter,
                                          encoding=encoding, text_columns=text_columns):
-                    if n_rows == 0:
+                    if not checked:
+                        checked = True
                         check_columns(frame.columns, model.schema, source=source,
                                       id_column=id_column, id_required=required)
                         used = set(model.schema) | set(model.encoder.feature_names_in_)
                         ignored = [c for c in frame.columns if c not in used
                                    and c not in (id_column, model.manifest.get("label_column"))]
+                    if not len(frame):
+                        continue
                     ids = _ids(frame, id_column, n_rows, source, text_file)
                     if id_column is not None:
                         hashes = _check_unique(ids, hashes, id_column, source)
