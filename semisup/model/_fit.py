@@ -317,10 +317,11 @@ def fit_model(
     log.info("cross-fitting %s on the labeled rows for the confidence table", name)
     oof, cf_note = crossfit_proba(m, params, derive_seed(seed, "crossfit"), X_lab, y_lab, X_unl,
                                   n_classes, max_folds=crossfit_folds)
-    scores = np.asarray(density.score_samples(X_enc), dtype=np.float64)
+    model = FittedModel({"classes": list(ds.class_names), "density": {}}, ds.encoder,
+                        estimator, representation, density)
+    scores = model.density_scores(X_enc)
     threshold = float(np.quantile(scores, FLAG_QUANTILE))
-    model = FittedModel({"classes": list(ds.class_names), "density": {"threshold": threshold}},
-                        ds.encoder, estimator, representation, density)
+    model.manifest["density"]["threshold"] = threshold
     pool_frame = model.output_frame(np.asarray(ds.row_ids)[unlabeled], X_enc[unlabeled]) \
         if len(unlabeled) else None
     pool_top = pool_frame["top_probability"].to_numpy() if pool_frame is not None else None
@@ -355,7 +356,7 @@ def fit_model(
             "study_fingerprint": info.get("fingerprint"), "study_dir": str(folder),
         },
         "density": {
-            "kind": density_kind, "score": "ELBO (nats per row)" if elbo else
+            "kind": density_kind, "score": "ELBO at the posterior mean (nats per row)" if elbo else
             "log-density (nats per row)", "threshold": threshold, "quantile": FLAG_QUANTILE,
             "training_quantiles": {str(q): float(np.quantile(scores, q))
                                    for q in (0.001, 0.01, 0.05, 0.5)},

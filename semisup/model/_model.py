@@ -48,6 +48,22 @@ def encoder_from_state(state: dict[str, Any]) -> Any:
     return enc
 
 
+def _flag_scorer(density: Any) -> Any:
+    """The density model as the flag uses it: a VAE's ELBO is taken at the posterior mean
+    (one deterministic decoder pass, z = mu) instead of averaging 16 reparameterisation draws,
+    which made the flag 16x the cost of the rest of prediction (benchmarks/bench_predict.py)
+    and gave a noisier per-row score."""
+    draws = getattr(density, "score_draws_", None)
+    if draws is None:
+        return density
+    import copy
+
+    scorer = copy.copy(density)  # shallow: shares the network, no copy of the weights
+    draws = np.asarray(draws)
+    scorer.score_draws_ = np.zeros((1, draws.shape[1]), dtype=draws.dtype)
+    return scorer
+
+
 class FittedModel:
     """The chosen method fitted on every label, ready to score new rows.
 
@@ -72,6 +88,7 @@ class FittedModel:
         self.estimator = estimator
         self.representation = representation
         self.density = density
+        self._scorer: tuple[Any, Any] | None = None
 
     # -- facts -----------------------------------------------------------------------------
     @property
@@ -125,10 +142,13 @@ class FittedModel:
                            len(self.classes))
 
     def density_scores(self, X: np.ndarray) -> np.ndarray | None:
-        """Per-row log-density (mixture) or ELBO (VAE) of encoded rows, in nats."""
+        """Per-row log-density (mixture) or ELBO at the posterior mean (VAE) of encoded rows,
+        in nats; low means unlike the training rows."""
         if self.density is None:
             return None
-        return np.asarray(self.density.score_samples(X), dtype=np.float64)
+        if self._scorer is None or self._scorer[0] is not self.density:
+            self._scorer = (self.density, _flag_scorer(self.density))
+        return np.asarray(self._scorer[1].score_samples(X), dtype=np.float64)
 
     def predict_proba(self, frame: pd.DataFrame) -> np.ndarray:
         """Class probabilities, shape (n_rows, n_classes), columns in ``classes`` order."""
