@@ -68,32 +68,36 @@ def _with_model_copy(root: Path, name: str, edit) -> Path:
     return copy
 
 
-def _no_plan(root, study):
-    copy = root / "study-no-plan"
+def _study_copy(root, study, name, edit):
+    """A copy of the study folder with one file edited (the original stays untouched)."""
+    copy = root / name
     if not copy.exists():
         shutil.copytree(study, copy)
-        (copy / "plan.json").unlink()
+        edit(copy)
     return copy
+
+
+def _edit_json(path, key, value):
+    data = json.loads(path.read_text())
+    if isinstance(value, dict):
+        data[key].update(value)
+    else:
+        data[key] = value
+    path.write_text(json.dumps(data))
+
+
+def _no_plan(root, study):
+    return _study_copy(root, study, "study-no-plan", lambda c: (c / "plan.json").unlink())
 
 
 def _plan_without_choice(root, study):
-    copy = root / "study-no-choice"
-    if not copy.exists():
-        shutil.copytree(study, copy)
-        plan = json.loads((copy / "plan.json").read_text())
-        plan["chosen"] = None
-        (copy / "plan.json").write_text(json.dumps(plan))
-    return copy
+    return _study_copy(root, study, "study-no-choice",
+                       lambda c: _edit_json(c / "plan.json", "chosen", None))
 
 
 def _moved_table(root, study):
-    copy = root / "study-moved"
-    if not copy.exists():
-        shutil.copytree(study, copy)
-        info = json.loads((copy / "study.json").read_text())
-        info["spec"]["data"] = str(root / "gone.csv")
-        (copy / "study.json").write_text(json.dumps(info))
-    return copy
+    return _study_copy(root, study, "study-moved", lambda c: _edit_json(
+        c / "study.json", "spec", {"data": str(root / "gone.csv")}))
 
 
 FIT_CASES = {
