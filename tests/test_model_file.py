@@ -146,6 +146,15 @@ def test_foreign_folders_and_files(tmp_path):
     (tmp_path / "other" / "manifest.json").write_text('{"name": "something else"}')
     with pytest.raises(ModelFileError, match="not a semisup model manifest"):
         load_model(tmp_path / "other")
+    (tmp_path / "other" / "manifest.json").write_text(json.dumps({
+        "format": "semisup-model", "format_version": 1, "method": "x", "classes": [],
+        "features": [], "encoder": {}, "files": "classifier.skops"}))
+    with pytest.raises(ModelFileError, match="not a table of file checksums"):
+        load_model(tmp_path / "other")
+    (tmp_path / "other" / "manifest.json").write_text(json.dumps({
+        "format": "semisup-model", "format_version": 99}))
+    with pytest.raises(ModelFileError, match="newer than this semisup"):
+        load_model(tmp_path / "other")
 
 
 def test_save_replaces_an_old_model_but_not_other_folders(parts, tmp_path):

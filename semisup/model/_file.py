@@ -151,6 +151,14 @@ def read_manifest(path: str | os.PathLike[str]) -> dict[str, Any]:
         if key not in manifest:
             raise ModelFileError(f"{manifest_path} lacks {key!r}; the folder is damaged, fit the "
                                  "model again")
+    files = manifest["files"]
+    if not isinstance(files, dict) or not all(isinstance(k, str) and isinstance(v, str)
+                                              for k, v in files.items()):
+        raise ModelFileError(f"{manifest_path}: 'files' is not a table of file checksums; the "
+                             "folder is damaged, fit the model again")
+    if not isinstance(manifest["classes"], list) or not isinstance(manifest["features"], list):
+        raise ModelFileError(f"{manifest_path}: 'classes' / 'features' are not lists; the "
+                             "folder is damaged, fit the model again")
     return manifest
 
 
