@@ -142,3 +142,24 @@ def test_out_of_distribution_flag(study):
     numeric = [c for c, k in model.schema.items() if k == "numeric"]
     far[numeric] = far[numeric] * 25.0  # rows no wine in the table resembles
     assert model.out_of_distribution(far).mean() >= 0.95
+
+
+def test_supervised_svm_matches_scikit_learn(study):
+    # Reference: scikit-learn's CalibratedClassifierCV (sigmoid, ensemble=False, stratified
+    # folds = min(3, smallest class count)) around SVC with the wrapper's gamma rule
+    # gamma_factor / (n_features * X.var()).
+    from sklearn.calibration import CalibratedClassifierCV
+    from sklearn.model_selection import StratifiedKFold
+    from sklearn.svm import SVC
+
+    result = fit_model(study, method="supervised-svm")
+    frame, _ = wine_frame()
+    X, rows, codes = _encoded(result.model, frame)
+    p = result.report["params"]
+    X_lab = X[rows].astype(np.float64)
+    gamma = p["gamma_factor"] / (X_lab.shape[1] * X_lab.var())
+    folds = int(min(3, np.bincount(codes).min()))
+    ref = CalibratedClassifierCV(SVC(C=p["C"], kernel="rbf", gamma=gamma), method="sigmoid",
+                                 cv=StratifiedKFold(folds), ensemble=False).fit(X_lab, codes)
+    np.testing.assert_allclose(result.model.predict_proba(frame),
+                               ref.predict_proba(X.astype(np.float64)), rtol=0, atol=1e-12)
