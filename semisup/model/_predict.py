@@ -139,17 +139,25 @@ def _ids(frame: pd.DataFrame, id_column: str | None, first_row: int, source: str
     return ids.to_numpy(dtype=object)
 
 
-def _write_chunk(handle: Any, frame: pd.DataFrame, first: bool, fmt: str, state: dict) -> None:
-    if fmt == "parquet":
-        import pyarrow as pa
-        import pyarrow.parquet as pq
+def _write_chunk(handle: Any, frame: pd.DataFrame, fmt: str, state: dict) -> None:
+    """Append one chunk; pyarrow's writers (its CSV writer is ~10x faster than pandas'
+    ``to_csv`` and writes floats that read back exactly)."""
+    import pyarrow as pa
 
-        table = pa.Table.from_pandas(frame, preserve_index=False)
-        if state.get("writer") is None:
+    table = pa.Table.from_pandas(frame, preserve_index=False)
+    if state.get("writer") is None:
+        if fmt == "parquet":
+            import pyarrow.parquet as pq
+
             state["writer"] = pq.ParquetWriter(handle, table.schema)
-        state["writer"].write_table(table)
-    else:
-        frame.to_csv(handle, index=False, header=first, sep="\t" if fmt == "tsv" else ",")
+        else:
+            import pyarrow.csv as pcsv
+
+            options = pcsv.WriteOptions(delimiter="\t" if fmt == "tsv" else ",",
+                                        quoting_style="needed")
+            state["writer"] = pcsv.CSVWriter(handle, table.schema, write_options=options)
+        state["schema"] = table.schema
+    state["writer"].write_table(table.cast(state["schema"]))
 
 
 def predict_file(
@@ -210,9 +218,7 @@ def predict_file(
     checked = False
     text_columns = (id_column,) if id_column else ()
     with atomic_path(out) as tmp:
-        mode = "wb" if fmt == "parquet" else "w"
-        kwargs = {} if fmt == "parquet" else {"encoding": "utf-8", "newline": ""}
-        with open(tmp, mode, **kwargs) as handle:  # noqa: PTH123
+        with open(tmp, "wb") as handle:  # noqa: PTH123
             try:
                 for frame in read_chunks(data, chunk_rows=chunk_rows, delimiter=delimiter,
                                          encoding=encoding, text_columns=text_columns):
@@ -231,7 +237,7 @@ def predict_file(
                     X = model.encode(frame, counts, source=source, text_file=text_file,
                                      first_row=n_rows)
                     result = model.output_frame(ids, X)
-                    _write_chunk(handle, result, n_rows == 0, fmt, state)
+                    _write_chunk(handle, result, fmt, state)
                     top = np.argmax(result.iloc[:, 2:2 + len(model.classes)].to_numpy(), axis=1)
                     predicted += np.bincount(top, minlength=len(model.classes))
                     n_flagged += int(result["out_of_distribution"].sum())
