@@ -163,3 +163,20 @@ def test_supervised_svm_matches_scikit_learn(study):
                                  cv=StratifiedKFold(folds), ensemble=False).fit(X_lab, codes)
     np.testing.assert_allclose(result.model.predict_proba(frame),
                                ref.predict_proba(X.astype(np.float64)), rtol=0, atol=1e-12)
+
+
+def test_stage_rows_reproduce_the_study_cache_key(study, tmp_path):
+    # With study.json's pointer to the cache entry removed, the fit recomputes the rows the
+    # study fitted its VAE on; the content-hash cache then finds the study's entry again.
+    import shutil
+
+    copy = tmp_path / "study"
+    shutil.copytree(study, copy)
+    info = json.loads((copy / "study.json").read_text())
+    for diag in info["representation"]["diagnostics"].values():
+        diag.pop("cache_path", None)
+    (copy / "study.json").write_text(json.dumps(info))
+    entries = sorted(p.name for p in (copy / "cache").iterdir())
+    result = fit_model(copy, method="latent-logreg")
+    assert result.report["unsupervised_stage"] == "reused from the study's cache"
+    assert sorted(p.name for p in (copy / "cache").iterdir()) == entries  # nothing refitted

@@ -167,12 +167,13 @@ def _study_estimate(folder: Path, plan: dict | None, method: str) -> dict[str, A
 
 
 def _stage_rows(spec: Any, y: np.ndarray) -> np.ndarray:
-    """The rows the study fitted its unsupervised stage on (all but the holdout, unless
-    transductive)."""
+    """The rows the study fitted its unsupervised stage on: every row, except the holdout's
+    under the holdout protocol unless transductive (specs without an ``evaluation`` key are
+    holdout studies)."""
     from ..study import split_holdout
 
     labeled = np.flatnonzero(y >= 0)
-    if spec.transductive:
+    if spec.transductive or getattr(spec, "evaluation", "holdout") != "holdout":
         return np.arange(len(y))
     hold_pos, _ = split_holdout(y[labeled], spec.holdout, derive_seed(spec.seed, "holdout"))
     keep = np.ones(len(y), dtype=bool)
