@@ -295,3 +295,19 @@ def test_formats_and_chunks_give_the_same_predictions(env, fmt):
     assert (a["predicted"] == b["predicted"]).mean() > 0.99
     direct = model.predict_proba(frame)
     assert (a[[f"proba_{c}" for c in model.classes]].to_numpy() == direct).all()
+
+
+def test_duplicate_id_in_a_later_chunk_is_refused(env):
+    from semisup._errors import DataError
+    from semisup.model import load_model, predict_file
+
+    root, _, model_dir = env
+
+    def dup_late(f):
+        f.loc[150, ID] = "w003"
+        return f
+
+    data = _table(root, "dup-late.csv", dup_late)
+    with pytest.raises(DataError, match="duplicate id 'w003'"):
+        predict_file(load_model(model_dir), data, root / "dup-late-pred.csv", chunk_rows=20)
+    assert not (root / "dup-late-pred.csv").exists()

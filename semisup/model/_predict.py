@@ -212,7 +212,7 @@ def predict_file(
     predicted = np.zeros(len(model.classes), dtype=np.int64)
     n_rows = n_flagged = 0
     top_sum = 0.0
-    hashes = np.zeros(0, dtype=np.uint64)
+    seen_ids: set = set()
     ignored: list[str] = []
     state: dict[str, Any] = {}
     checked = False
@@ -233,7 +233,7 @@ def predict_file(
                         continue
                     ids = _ids(frame, id_column, n_rows, source, text_file)
                     if id_column is not None:
-                        hashes = _check_unique(ids, hashes, id_column, source)
+                        _check_unique(ids, seen_ids, id_column, source)
                     X = model.encode(frame, counts, source=source, text_file=text_file,
                                      first_row=n_rows)
                     result = model.output_frame(ids, X)
@@ -258,13 +258,15 @@ def predict_file(
     )
 
 
-def _check_unique(ids: np.ndarray, seen: np.ndarray, id_column: str, source: str) -> np.ndarray:
-    h = pd.util.hash_array(ids)
-    dup_here = pd.Series(ids).duplicated().to_numpy()
-    dup_before = np.isin(h, seen) if len(seen) else np.zeros(len(h), dtype=bool)
-    bad = dup_here | dup_before
-    if bad.any():
-        value = ids[int(np.flatnonzero(bad)[0])]
-        raise DataError(f"{source}: id column {id_column!r} has duplicate id {value!r}; make ids "
-                        "unique or pass --id-column '' to number the rows")
-    return np.union1d(seen, h)
+def _check_unique(ids: np.ndarray, seen: set, id_column: str, source: str) -> None:
+    """Refuse an id repeated in this chunk or seen in an earlier one; ``seen`` grows."""
+    values = ids.tolist()
+    chunk = set(values)
+    if len(chunk) != len(values) or not chunk.isdisjoint(seen):
+        here: set = set()
+        for value in values:
+            if value in here or value in seen:
+                raise DataError(f"{source}: id column {id_column!r} has duplicate id {value!r}; "
+                                "make ids unique or pass --id-column '' to number the rows")
+            here.add(value)
+    seen |= chunk
