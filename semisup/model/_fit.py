@@ -19,6 +19,7 @@ import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -121,6 +122,29 @@ def read_study(study_dir: str | os.PathLike[str]) -> tuple[dict, dict | None]:
             raise StoreError(f"{plan_path} cannot be read ({type(exc).__name__}); run "
                              "'semisup plan' again") from None
     return info, plan
+
+
+def _spec_view(values: dict, folder: Path, spec_cls: Any) -> SimpleNamespace:
+    """The study's resolved spec as recorded in study.json (already checked when the study
+    ran), with the spec's defaults for keys an older study did not record. Not re-validated:
+    a spec's ``to_dict`` need not be accepted by a later release's checks."""
+    import dataclasses
+
+    out: dict[str, Any] = {}
+    for f in dataclasses.fields(spec_cls):
+        if f.default is not dataclasses.MISSING:
+            out[f.name] = f.default
+        elif f.default_factory is not dataclasses.MISSING:  # type: ignore[misc]
+            out[f.name] = f.default_factory()  # type: ignore[misc]
+    out.update(values)
+    for key in ("data", "label_column"):
+        if not out.get(key):
+            raise StoreError(f"{folder}/study.json: the spec lacks {key!r}; run the study again "
+                             "to rewrite it")
+    out["unlabeled_markers"] = tuple(out.get("unlabeled_markers") or ())
+    out["kinds"] = dict(out.get("kinds") or {})
+    out["pretrain"] = {k: dict(v) for k, v in (out.get("pretrain") or {}).items()}
+    return SimpleNamespace(**out)
 
 
 def _choose_method(folder: Path, plan: dict | None, method: str | None) -> str:
@@ -268,10 +292,7 @@ def fit_model(
     t0 = time.perf_counter()
     folder = Path(study_dir)
     info, plan = read_study(folder)
-    try:
-        spec = StudySpec.from_dict(info["spec"], where=f"{folder}/study.json")
-    except ConfigError as exc:
-        raise StoreError(f"{folder}/study.json: {exc}") from None
+    spec = _spec_view(info["spec"], folder, StudySpec)
     name = _choose_method(folder, plan, method)
     m = get_method(name)
     log.info("fitting %s for study %s", name, folder)
