@@ -49,6 +49,9 @@ _LAZY = {
     "make_plan": "semisup.plan",
     "write_report": "semisup.report",
     "run_demo": "semisup.demo",
+    # the final model
+    "fit_model": "semisup.model",
+    "load_model": "semisup.model",
 }
 
 __all__ = [

@@ -160,7 +160,45 @@ def build_parser() -> argparse.ArgumentParser:
                                    "study folder (and its plan, if made).")
     p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
     _add_common(p)
+    _add_model_parsers(sub)
     return parser
+
+
+def _add_model_parsers(sub) -> None:
+    p = sub.add_parser("fit", help="train the plan's chosen method on every label; save a model",
+                       description="Fit the method the plan chose (or --method) on every labeled "
+                                   "row of the study's table, tuned with the study's budget, "
+                                   "and write a model folder (no pickle).")
+    p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
+    p.add_argument("--out", type=Path, required=True, metavar="MODEL",
+                   help="model folder to write (an older model folder there is replaced)")
+    p.add_argument("--method", metavar="NAME", help="fit this method instead of the plan's")
+    p.add_argument("--data", type=Path, metavar="FILE",
+                   help="the study's table, if it moved since the study")
+    p.add_argument("--pseudo-labels", type=Path, metavar="FILE.csv",
+                   help="also write class, probabilities and flags for the table's unlabeled "
+                        "rows, with an 'accepted' column at --confidence-cut")
+    p.add_argument("--confidence-cut", type=float, default=0.9, metavar="P",
+                   help="top probability a pseudo-label needs; the fit reports its "
+                        "cross-fitted accuracy (default 0.9)")
+    _add_common(p)
+
+    p = sub.add_parser("predict", help="classes, probabilities and flags for new rows",
+                       description="Apply a model folder to a table (CSV, TSV or Parquet), chunk "
+                                   "by chunk; writes row_id, predicted, proba_<class>, "
+                                   "top_probability, density_score, out_of_distribution.")
+    p.add_argument("model", type=Path, metavar="MODEL", help="model folder from 'semisup fit'")
+    p.add_argument("data", type=Path, metavar="DATA", help="table to score")
+    p.add_argument("--out", type=Path, required=True, metavar="FILE.csv",
+                   help="predictions (.csv, .tsv or .parquet)")
+    p.add_argument("--id-column", metavar="COL", default=None,
+                   help="column of row ids (default: the training table's id column; '' numbers "
+                        "the rows)")
+    p.add_argument("--delimiter", metavar="CHAR", help="field separator (default: sniffed)")
+    p.add_argument("--encoding", metavar="NAME", help="text encoding (default: utf-8)")
+    p.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
+                   help="rows scored at a time; bounds memory (default 100000)")
+    _add_common(p)
 
 
 def _parse_pairs(items: Sequence[str] | None, what: str) -> dict[str, str]:
@@ -305,7 +343,38 @@ def _cmd_report(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _cmd_fit(args: argparse.Namespace) -> int:
+    from .model import fit_model
+
+    result = fit_model(args.study_dir, method=args.method, data=args.data,
+                       confidence_cut=args.confidence_cut)
+    path = result.model.save(args.out)
+    print(result.summary())
+    print(f"wrote model folder {path}")
+    if args.pseudo_labels is not None:
+        frame = result.pseudo_labels
+        if result.write_pseudo_labels(args.pseudo_labels) is None:
+            print("the table has no unlabeled rows; no pseudo-labels written")
+        else:
+            print(f"wrote {len(frame)} pseudo-labels ({int(frame['accepted'].sum())} accepted at "
+                  f"{args.confidence_cut:g}) to {args.pseudo_labels}")
+    return EXIT_OK
+
+
+def _cmd_predict(args: argparse.Namespace) -> int:
+    from .model import load_model, predict_file
+
+    model = load_model(args.model)
+    kwargs = {} if args.id_column is None else {"id_column": args.id_column}
+    summary = predict_file(model, args.data, args.out, delimiter=args.delimiter,
+                           encoding=args.encoding, chunk_rows=args.chunk_rows, **kwargs)
+    print(summary.summary())
+    return EXIT_OK
+
+
 _COMMANDS = {
+    "fit": _cmd_fit,
+    "predict": _cmd_predict,
     "demo": _cmd_demo,
     "card": _cmd_card,
     "study": _cmd_study,

@@ -1,0 +1,228 @@
+"""The model folder: manifest.json + skops files + weights-only torch tensors; never pickle.
+
+Layout of a folder written by :func:`save_model`::
+
+    manifest.json            what the model is (see FittedModel.manifest) and the SHA-256 of
+                             every other file
+    classifier.skops         the fitted classifier (skops; only trusted classes are rebuilt)
+    classifier.pt            tensors of any network inside it (torch, weights_only=True)
+    representation.skops/.pt the unsupervised stage the classifier reads, when it has one
+    density.skops/.pt        the model whose density / ELBO flags unfamiliar rows
+
+A changed, missing or foreign file raises :class:`ModelFileError` with one line. The
+checksums catch damage and edits, not a forger who rewrites the manifest too; the trust rules
+of the loaders (skops' trusted types, ``weights_only``) are what keep a crafted file from
+running code.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import logging
+import os
+import shutil
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from .. import __version__
+from .._atomic import atomic_write_bytes, atomic_write_text
+from ._errors import ModelFileError
+from ._model import FittedModel, encoder_from_state
+from ._persist import dump_estimator, load_estimator
+
+__all__ = ["FORMAT", "FORMAT_VERSION", "load_model", "save_model"]
+
+log = logging.getLogger(__name__)
+
+FORMAT = "semisup-model"
+FORMAT_VERSION = 1
+_PARTS = ("classifier", "representation", "density")
+
+
+def _sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
+
+
+def _is_model_folder(path: Path) -> bool:
+    try:
+        manifest = json.loads((path / "manifest.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(manifest, dict) and manifest.get("format") == FORMAT
+
+
+def save_model(model: FittedModel, path: str | os.PathLike[str]) -> Path:
+    """Write ``model`` to the folder ``path`` (replacing an older model folder there).
+
+    The folder is assembled under a temporary name beside ``path`` and renamed into place,
+    so an interrupted save leaves the old model (or nothing).
+    """
+    target = Path(path)
+    if target.exists() and not (target.is_dir() and (_is_model_folder(target)
+                                                     or not any(target.iterdir()))):
+        raise ModelFileError(f"{target} exists and is not a semisup model folder; choose another "
+                             "--out (an older model folder there would be replaced)")
+    parts = {"classifier": model.estimator, "representation": model.representation}
+    if model.density is not None and model.density is not model.representation:
+        parts["density"] = model.density
+    files: dict[str, bytes] = {}
+    for name, obj in parts.items():
+        if obj is None:
+            continue
+        data, weights = dump_estimator(obj)
+        files[f"{name}.skops"] = data
+        if weights is not None:
+            files[f"{name}.pt"] = weights
+    manifest = dict(model.manifest)
+    manifest.update({"format": FORMAT, "format_version": FORMAT_VERSION,
+                     "semisup_version": __version__})
+    manifest["density"] = dict(manifest.get("density") or {})
+    if model.density is not None:
+        manifest["density"]["part"] = "density" if "density" in parts else "representation"
+    manifest["files"] = {name: _sha256(data) for name, data in sorted(files.items())}
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", dir=target.parent))
+    try:
+        for name, data in files.items():
+            atomic_write_bytes(tmp / name, data)
+        atomic_write_text(tmp / "manifest.json", json.dumps(manifest, indent=1, sort_keys=True,
+                                                            default=_json_default) + "\n")
+        old = None
+        if target.exists():
+            old = target.with_name(f".{target.name}.old-{os.getpid()}")
+            os.replace(target, old)
+        os.replace(tmp, target)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+    finally:
+        if tmp.exists():
+            shutil.rmtree(tmp, ignore_errors=True)
+    log.info("model written to %s", target)
+    return target
+
+
+def _json_default(value: Any) -> Any:
+    import numpy as np
+
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, (set, tuple)):
+        return list(value)
+    if isinstance(value, Path):
+        return str(value)
+    raise TypeError(f"not JSON: {type(value).__name__}")
+
+
+def read_manifest(path: str | os.PathLike[str]) -> dict[str, Any]:
+    """The manifest of the model folder ``path``; foreign paths raise ModelFileError."""
+    folder = Path(path)
+    if not folder.exists():
+        raise ModelFileError(f"{folder}: no such model folder; give the folder that "
+                             "'semisup fit --out' wrote")
+    if not folder.is_dir():
+        raise ModelFileError(f"{folder} is a file, not a semisup model folder; give the folder "
+                             "that 'semisup fit --out' wrote")
+    manifest_path = folder / "manifest.json"
+    try:
+        text = manifest_path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ModelFileError(f"{folder} is not a semisup model folder (no manifest.json); give "
+                             "the folder that 'semisup fit --out' wrote") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ModelFileError(f"{manifest_path} cannot be read ({type(exc).__name__}); fit the "
+                             "model again") from None
+    try:
+        manifest = json.loads(text)
+    except ValueError as exc:
+        raise ModelFileError(f"{manifest_path} is not valid JSON ({exc.args[0][:60]}); the "
+                             "folder is damaged, fit the model again") from None
+    if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
+        raise ModelFileError(f"{manifest_path} is not a semisup model manifest; give the folder "
+                             "that 'semisup fit --out' wrote")
+    version = manifest.get("format_version")
+    if not isinstance(version, int) or version > FORMAT_VERSION:
+        raise ModelFileError(f"{folder} has model format {version!r}, newer than this semisup "
+                             f"{__version__} reads ({FORMAT_VERSION}); upgrade semisup")
+    for key in ("method", "classes", "features", "encoder", "files"):
+        if key not in manifest:
+            raise ModelFileError(f"{manifest_path} lacks {key!r}; the folder is damaged, fit the "
+                                 "model again")
+    files = manifest["files"]
+    if not isinstance(files, dict) or not all(isinstance(k, str) and isinstance(v, str)
+                                              for k, v in files.items()):
+        raise ModelFileError(f"{manifest_path}: 'files' is not a table of file checksums; the "
+                             "folder is damaged, fit the model again")
+    if not isinstance(manifest["classes"], list) or not isinstance(manifest["features"], list):
+        raise ModelFileError(f"{manifest_path}: 'classes' / 'features' are not lists; the "
+                             "folder is damaged, fit the model again")
+    return manifest
+
+
+def _read_part(folder: Path, name: str, manifest: dict) -> Any:
+    files = manifest["files"]
+    blobs: dict[str, bytes] = {}
+    for suffix in (".skops", ".pt"):
+        fname = name + suffix
+        if fname not in files:
+            continue
+        try:
+            data = (folder / fname).read_bytes()
+        except FileNotFoundError:
+            raise ModelFileError(f"{folder}: {fname} is missing; the folder is incomplete, fit "
+                                 "the model again") from None
+        if _sha256(data) != files[fname]:
+            raise ModelFileError(f"{folder / fname} does not match its checksum in manifest.json "
+                                 "(changed after it was written); fit the model again")
+        blobs[suffix] = data
+    if ".skops" not in blobs:
+        raise ModelFileError(f"{folder}: manifest.json lists no {name}.skops; the folder is "
+                             "damaged, fit the model again")
+    return load_estimator(blobs[".skops"], blobs.get(".pt"), where=str(folder / f"{name}.skops"))
+
+
+def load_model(path: str | os.PathLike[str]) -> FittedModel:
+    """Read a model folder written by ``semisup fit`` (or :func:`save_model`).
+
+    Nothing is unpickled: the classifier is rebuilt by skops from trusted classes only, and
+    network weights are read with ``torch.load(..., weights_only=True)``.
+
+    Returns
+    -------
+    FittedModel
+        With ``predict(frame)`` and ``predict_proba(frame)`` on a pandas DataFrame.
+
+    Raises
+    ------
+    ModelFileError
+        A missing, damaged, changed or foreign file (one line naming it).
+    """
+    folder = Path(path)
+    manifest = read_manifest(folder)
+    unknown = [f for f in manifest["files"] if f.rsplit(".", 1)[0] not in _PARTS
+               or not f.endswith((".skops", ".pt"))]
+    if unknown:
+        raise ModelFileError(f"{folder}/manifest.json lists unknown file {unknown[0]!r}; the "
+                             "folder was not written by semisup fit")
+    try:
+        encoder = encoder_from_state(manifest["encoder"])
+    except (KeyError, TypeError, ValueError) as exc:
+        raise ModelFileError(f"{folder}/manifest.json has a damaged encoder state "
+                             f"({type(exc).__name__}: {exc}); fit the model again") from None
+    estimator = _read_part(folder, "classifier", manifest)
+    names = {f.rsplit(".", 1)[0] for f in manifest["files"]}
+    representation = _read_part(folder, "representation", manifest) \
+        if "representation" in names else None
+    part = (manifest.get("density") or {}).get("part")
+    density = None
+    if part == "representation":
+        density = representation
+    elif part == "density":
+        density = _read_part(folder, "density", manifest)
+    if not hasattr(estimator, "predict_proba") or not hasattr(estimator, "classes_"):
+        raise ModelFileError(f"{folder}/classifier.skops is not a fitted classifier; fit the "
+                             "model again")
+    return FittedModel(manifest, encoder, estimator, representation, density)

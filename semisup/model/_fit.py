@@ -1,0 +1,393 @@
+"""fit_model: train a study's chosen (or a named) method on every label, as the study would.
+
+- Hyperparameters: tuned on all the labels with the study's own budget (``trials`` optuna
+  trials, stratified CV with at most ``cv_folds`` folds), through the study's tuning code.
+- Unsupervised stage: the study's own fit, read back from its ``cache/``; when the cache is
+  gone, refitted on the rows and with the parameters and seed the study used.
+- Semi-supervised methods also see the unlabeled rows (at most the study's ``max_unlabeled``,
+  a seeded sample).
+- Out-of-distribution flag: the unsupervised stage's per-row density (mixture) or ELBO (VAE);
+  rows scoring below the training table's 1st percentile are flagged.
+- Pseudo-labels: the cross-fitted accuracy above each confidence cut (see ``_crossfit``).
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import SimpleNamespace
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .. import __version__
+from .._errors import ConfigError, DataError, StoreError
+from .._seeding import derive_seed
+from ._crossfit import DEFAULT_CUTS, confidence_table, crossfit_proba
+from ._model import FittedModel, encoder_state
+
+__all__ = ["FLAG_QUANTILE", "FitResult", "fit_model", "read_study"]
+
+log = logging.getLogger(__name__)
+
+#: Rows whose density score is below this quantile of the training table's scores are flagged
+#: as unlike the training data (common practice, no source: a 1% false-flag rate on rows like
+#: the training rows).
+FLAG_QUANTILE = 0.01
+
+
+@dataclass
+class FitResult:
+    """What :func:`fit_model` returns: the model, its fit report and the pool's labels."""
+
+    model: FittedModel
+    report: dict[str, Any]
+    pseudo_labels: pd.DataFrame | None = None
+    notes: list[str] = field(default_factory=list)
+
+    def write_pseudo_labels(self, path: str | os.PathLike[str]) -> Path | None:
+        """Write the pool's pseudo-labels as CSV (atomically); None when there is no pool."""
+        from .._atomic import atomic_path
+
+        if self.pseudo_labels is None:
+            return None
+        with atomic_path(path) as tmp:
+            self.pseudo_labels.to_csv(tmp, index=False)
+        return Path(path)
+
+    def summary(self) -> str:
+        r = self.report
+        lines = [f"fitted {r['method']} on {r['n_labeled']} labeled rows"
+                 + (f" and {r['n_unlabeled_used']} unlabeled rows" if r["n_unlabeled_used"]
+                    else "")
+                 + f" ({r['seconds']:.1f} s); parameters {json.dumps(r['params'])}"]
+        est = r.get("study_estimate") or {}
+        if "plan" in est:
+            p = est["plan"]
+            lines.append(f"plan's estimate at {p['n_labels']} labels: {p['metric']} "
+                         f"{p['predicted']['mean']:.3f} ({p['predicted']['low']:.3f}-"
+                         f"{p['predicted']['high']:.3f})")
+        if "curve" in est:
+            c = est["curve"]
+            lines.append(f"study's measured accuracy at {c['n_labels']} labels: {c['mean']:.3f} "
+                         f"({c['low']:.3f}-{c['high']:.3f})")
+        cf = r["crossfit"]
+        if cf.get("accuracy") is not None:
+            lines.append(f"cross-fitted accuracy on all {cf['n_labeled']} labels: "
+                         f"{cf['accuracy']:.3f} ({cf['accuracy_low']:.3f}-"
+                         f"{cf['accuracy_high']:.3f}, Wilson 95%)")
+        cut = r["confidence_cut"]
+        row = next((c for c in cf["table"] if c["cut"] == cut), None)
+        if row is not None and row["accuracy"] is not None:
+            lines.append(
+                f"pseudo-labels at top probability >= {cut:g}: expected accuracy "
+                f"{row['accuracy']:.3f} ({row['accuracy_low']:.3f}-{row['accuracy_high']:.3f}), "
+                f"{row['coverage']:.0%} of labeled rows and {row.get('pool_share_above', 0):.0%} "
+                "of unlabeled rows reach the cut")
+        elif row is not None:
+            lines.append(f"no labeled row reached top probability >= {cut:g} when cross-fitted; "
+                         "lower --confidence-cut")
+        lines.extend(f"note: {n}" for n in self.notes)
+        return "\n".join(lines)
+
+
+def read_study(study_dir: str | os.PathLike[str]) -> tuple[dict, dict | None]:
+    """``(study.json, plan.json or None)`` of a study folder; clear errors otherwise."""
+    folder = Path(study_dir)
+    if not folder.is_dir():
+        raise StoreError(f"{folder}: no such study folder; give the folder 'semisup study --out' "
+                         "wrote")
+    path = folder / "study.json"
+    try:
+        info = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise StoreError(f"{folder} has no study.json; run 'semisup study' into it first (or "
+                         "give the study's folder)") from None
+    except (OSError, ValueError) as exc:
+        raise StoreError(f"{path} cannot be read ({type(exc).__name__}); run the study again to "
+                         "rewrite it") from None
+    if not isinstance(info, dict) or not isinstance(info.get("spec"), dict):
+        raise StoreError(f"{path} lacks the study spec; run the study again to rewrite it")
+    plan = None
+    plan_path = folder / "plan.json"
+    if plan_path.is_file():
+        try:
+            plan = json.loads(plan_path.read_text(encoding="utf-8"))
+        except (OSError, ValueError) as exc:
+            raise StoreError(f"{plan_path} cannot be read ({type(exc).__name__}); run "
+                             "'semisup plan' again") from None
+    return info, plan
+
+
+def _spec_view(values: dict, folder: Path, spec_cls: Any) -> SimpleNamespace:
+    """The study's resolved spec as recorded in study.json (already checked when the study
+    ran), with the spec's defaults for keys an older study did not record. Not re-validated:
+    a spec's ``to_dict`` need not be accepted by a later release's checks."""
+    import dataclasses
+
+    out: dict[str, Any] = {}
+    for f in dataclasses.fields(spec_cls):
+        if f.default is not dataclasses.MISSING:
+            out[f.name] = f.default
+        elif f.default_factory is not dataclasses.MISSING:  # type: ignore[misc]
+            out[f.name] = f.default_factory()  # type: ignore[misc]
+    out.update(values)
+    for key in ("data", "label_column"):
+        if not out.get(key):
+            raise StoreError(f"{folder}/study.json: the spec lacks {key!r}; run the study again "
+                             "to rewrite it")
+    out["unlabeled_markers"] = tuple(out.get("unlabeled_markers") or ())
+    out["kinds"] = dict(out.get("kinds") or {})
+    out["pretrain"] = {k: dict(v) for k, v in (out.get("pretrain") or {}).items()}
+    return SimpleNamespace(**out)
+
+
+def _choose_method(folder: Path, plan: dict | None, method: str | None) -> str:
+    if method:
+        return method
+    if plan is None:
+        raise ConfigError(f"{folder} has no plan.json; run 'semisup plan {folder} ...' first or "
+                          "name the method with --method")
+    chosen = plan.get("chosen")
+    if not isinstance(chosen, dict) or not chosen.get("method"):
+        options = [o.get("method") for o in plan.get("options") or [] if isinstance(o, dict)]
+        hint = f" (best option: {options[0]})" if options else ""
+        raise ConfigError(f"{folder}/plan.json chose no method (the target is not reachable)"
+                          f"{hint}; name one with --method")
+    return str(chosen["method"])
+
+
+def _study_estimate(folder: Path, plan: dict | None, method: str) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    chosen = (plan or {}).get("chosen")
+    if isinstance(chosen, dict) and chosen.get("method") == method:
+        out["plan"] = {
+            "metric": (plan.get("target") or {}).get("metric"),
+            "target": (plan.get("target") or {}).get("value"),
+            "n_labels": chosen.get("n_labels"), "strategy": chosen.get("strategy"),
+            "predicted": chosen.get("predicted"), "probability": chosen.get("probability"),
+            "extrapolated": chosen.get("extrapolated"),
+        }
+    curves = folder / "curves.csv"
+    if curves.is_file():
+        try:
+            c = pd.read_csv(curves)
+            measured = c["measured"].astype(str).str.lower().isin(("true", "1"))
+            sel = c[(c["method"] == method) & (c["metric"] == "accuracy") & measured
+                    & (c["strategy"] == "random")]
+            if len(sel):
+                r = sel.sort_values("n_labels").iloc[-1]
+                out["curve"] = {"metric": "accuracy", "n_labels": int(r["n_labels"]),
+                                "mean": float(r["mean"]), "low": float(r["low"]),
+                                "high": float(r["high"])}
+        except (KeyError, ValueError, OSError) as exc:
+            log.warning("curves.csv not used for the study's estimate: %s", exc)
+    return out
+
+
+def _stage_rows(spec: Any, y: np.ndarray) -> np.ndarray:
+    """The rows the study fitted its unsupervised stage on: every row, except the holdout's
+    under the holdout protocol unless transductive (specs without an ``evaluation`` key are
+    holdout studies)."""
+    from ..study import split_holdout
+
+    labeled = np.flatnonzero(y >= 0)
+    if spec.transductive or getattr(spec, "evaluation", "holdout") != "holdout":
+        return np.arange(len(y))
+    hold_pos, _ = split_holdout(y[labeled], spec.holdout, derive_seed(spec.seed, "holdout"))
+    keep = np.ones(len(y), dtype=bool)
+    keep[labeled[hold_pos]] = False
+    return np.flatnonzero(keep)
+
+
+def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict):
+    """The study's fitted stage ``kind``: from its cache entry, else refitted as it was."""
+    from ..pretrain import fit_representation
+    from ..pretrain._cache import load_entry
+
+    diag = ((info.get("representation") or {}).get("diagnostics") or {}).get(kind) or {}
+    key, cached = diag.get("cache_key"), diag.get("cache_path")
+    if key and cached:
+        entry = folder / "cache" / Path(str(cached)).name
+        try:
+            stage = load_entry(entry, str(key))
+        except StoreError as exc:
+            log.warning("%s", exc)
+            stage = None
+        if stage is not None and int(stage.n_features_in_) == ds.X.shape[1]:
+            log.info("%s stage reused from the study's cache (%s)", kind, entry)
+            return stage, "reused from the study's cache"
+    rows = _stage_rows(spec, np.asarray(ds.y))
+    log.info("fitting the %s stage on %d rows as the study did (no cache entry found)", kind,
+             len(rows))
+    stage, diag = fit_representation(
+        kind, ds.X[rows], blocks=ds.blocks, params=dict(spec.pretrain.get(kind, {})),
+        seed=derive_seed(spec.seed, "pretrain", kind), cache_dir=folder / "cache",
+    )
+    how = "reused from the study's cache" if diag.get("loaded_from_cache") else \
+        "refitted as the study did"
+    return stage, how
+
+
+def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict):
+    from ..data import load_dataset
+
+    path = Path(data) if data is not None else Path(spec.data)
+    if not path.exists():
+        raise DataError(f"the study's table {path} is not found; pass --data with its new path")
+    ds = load_dataset(path, label_column=spec.label_column, id_column=spec.id_column,
+                      unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
+                      delimiter=spec.delimiter, encoding=spec.encoding)
+    study_sha = (info.get("data") or {}).get("sha256")
+    notes = []
+    if study_sha and ds.sha256 and study_sha != ds.sha256:
+        notes.append(f"the table {path} changed since the study (new SHA-256); the model is "
+                     "trained on the table as it is now, the study's estimates describe the old "
+                     "one")
+        log.warning("%s", notes[-1])
+    return ds, notes
+
+
+def fit_model(
+    study_dir: str | os.PathLike[str],
+    *,
+    method: str | None = None,
+    data: str | os.PathLike[str] | None = None,
+    confidence_cut: float = 0.9,
+    crossfit_folds: int = 5,
+) -> FitResult:
+    """Fit the plan's chosen method (or ``method``) on every labeled row of the study's table.
+
+    Parameters
+    ----------
+    study_dir : path
+        A study folder (``study.json``, and ``plan.json`` unless ``method`` is given).
+    method : str, optional
+        A registered method name instead of the plan's choice.
+    data : path, optional
+        The study's table, when it moved since the study.
+    confidence_cut : float in (0, 1)
+        Top probability a pseudo-label needs; the report states its cross-fitted accuracy.
+    crossfit_folds : int
+        Most stratified folds for the cross-fitted estimates.
+
+    Returns
+    -------
+    FitResult
+        ``.model`` (save it with ``.model.save(path)``), ``.report``, ``.pseudo_labels`` (the
+        table's unlabeled rows: class, probabilities, flag, and ``accepted`` at the cut).
+    """
+    from ..methods import get_method
+    from ..study import StudySpec
+    from ..study._tuning import fit_method, tune_params
+
+    if isinstance(confidence_cut, bool) or not 0 < float(confidence_cut) < 1:
+        raise ConfigError(f"--confidence-cut {confidence_cut!r} is not allowed; give a "
+                          "probability between 0 and 1, e.g. 0.9")
+    t0 = time.perf_counter()
+    folder = Path(study_dir)
+    info, plan = read_study(folder)
+    spec = _spec_view(info["spec"], folder, StudySpec)
+    name = _choose_method(folder, plan, method)
+    m = get_method(name)
+    log.info("fitting %s for study %s", name, folder)
+    ds, notes = _load_data(spec, data, info)
+    y = np.asarray(ds.y, dtype=np.int64)
+    n_classes = len(ds.class_names)
+    labeled = np.flatnonzero(y >= 0)
+    unlabeled = np.flatnonzero(y < 0)
+    if n_classes < 2 or len(np.unique(y[labeled])) < 2:
+        raise DataError(f"{spec.data}: label column {spec.label_column!r} needs labeled rows of "
+                        "at least two classes to fit a model")
+
+    representation = None
+    stage_note = None
+    X_enc = np.asarray(ds.X, dtype=np.float32)
+    if m.representation != "raw":
+        representation, stage_note = _unsupervised_stage(m.representation, ds, spec, folder,
+                                                         info)
+        X = np.asarray(representation.transform(X_enc), dtype=np.float32)
+        density, density_kind = representation, m.representation
+    else:
+        X = X_enc
+        diags = (info.get("representation") or {}).get("diagnostics") or {}
+        density_kind = "vae" if "vae" in diags else "mixture"
+        log.info("fitting/reading the %s stage for the out-of-distribution flag", density_kind)
+        density, _ = _unsupervised_stage(density_kind, ds, spec, folder, info)
+
+    X_lab, y_lab = X[labeled], y[labeled]
+    X_unl = None
+    if m.semi_supervised and len(unlabeled):
+        sub = unlabeled
+        if len(sub) > spec.max_unlabeled:
+            rng = np.random.default_rng(derive_seed(spec.seed, "final", name, "unlabeled"))
+            sub = np.sort(rng.choice(sub, spec.max_unlabeled, replace=False))
+        X_unl = X[sub]
+    seed = derive_seed(spec.seed, "final", name)
+    log.info("tuning %s: %d trials on %d labels", name, spec.trials, len(labeled))
+    params, tuning = tune_params(m, X_lab, y_lab, X_unl, trials=spec.trials,
+                                 seed=derive_seed(seed, "tuning"), max_folds=spec.cv_folds,
+                                 n_classes=n_classes)
+    log.info("fitting %s with %s", name, params)
+    estimator = fit_method(m, params, seed, X_lab, y_lab, X_unl)
+
+    log.info("cross-fitting %s on the labeled rows for the confidence table", name)
+    oof, cf_note = crossfit_proba(m, params, derive_seed(seed, "crossfit"), X_lab, y_lab, X_unl,
+                                  n_classes, max_folds=crossfit_folds)
+    model = FittedModel({"classes": list(ds.class_names), "density": {}}, ds.encoder,
+                        estimator, representation, density)
+    scores = model.density_scores(X_enc)
+    threshold = float(np.quantile(scores, FLAG_QUANTILE))
+    model.manifest["density"]["threshold"] = threshold
+    pool_frame = model.output_frame(np.asarray(ds.row_ids)[unlabeled], X_enc[unlabeled]) \
+        if len(unlabeled) else None
+    pool_top = pool_frame["top_probability"].to_numpy() if pool_frame is not None else None
+    cut = float(confidence_cut)
+    table = confidence_table(oof, y_lab, (*DEFAULT_CUTS, cut), pool_top)
+    all_rows = confidence_table(oof, y_lab, (0.0,))[0]
+
+    elbo = density_kind == "vae"
+    counts = np.bincount(y_lab, minlength=n_classes)
+    report = {
+        "method": name, "family": m.family, "representation": m.representation,
+        "semi_supervised": bool(m.semi_supervised), "params": params, "seed": seed,
+        "tuning": tuning, "n_labeled": int(len(labeled)),
+        "n_unlabeled_used": 0 if X_unl is None else int(len(X_unl)),
+        "unsupervised_stage": stage_note,
+        "study_estimate": _study_estimate(folder, plan, name),
+        "crossfit": {"note": cf_note, "n_labeled": all_rows["n_labeled"],
+                     "accuracy": all_rows["accuracy"], "accuracy_low": all_rows["accuracy_low"],
+                     "accuracy_high": all_rows["accuracy_high"], "table": table},
+        "confidence_cut": cut, "seconds": time.perf_counter() - t0,
+    }
+    manifest = {
+        **report,
+        "classes": list(ds.class_names),
+        "label_column": spec.label_column, "id_column": spec.id_column,
+        "features": [{"column": c, "kind": k} for c, k in ds.encoder.kinds_.items()
+                     if k in ("numeric", "categorical")],
+        "encoder": encoder_state(ds.encoder),
+        "training_data": {
+            "source": str(ds.source), "sha256": ds.sha256, "n_rows": int(len(y)),
+            "class_counts": {c: int(n) for c, n in zip(ds.class_names, counts, strict=True)},
+            "study_fingerprint": info.get("fingerprint"), "study_dir": str(folder),
+        },
+        "density": {
+            "kind": density_kind, "score": "ELBO at the posterior mean (nats per row)" if elbo else
+            "log-density (nats per row)", "threshold": threshold, "quantile": FLAG_QUANTILE,
+            "training_quantiles": {str(q): float(np.quantile(scores, q))
+                                   for q in (0.001, 0.01, 0.05, 0.5)},
+        },
+        "semisup_version": __version__,
+    }
+    model.manifest = manifest
+    if pool_frame is not None:
+        pool_frame["accepted"] = (pool_frame["top_probability"] >= cut) & \
+            ~pool_frame["out_of_distribution"]
+    log.info("fit done in %.1f s", report["seconds"])
+    return FitResult(model=model, report=report, pseudo_labels=pool_frame, notes=notes)
