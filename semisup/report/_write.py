@@ -397,7 +397,7 @@ def _protocol_section(study: Mapping) -> Section:
     return s
 
 
-def write_report(study_dir: str | os.PathLike[str]) -> Path:
+def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Path:
     """Write ``report.html`` (one self-contained file) and ``figures/*.png`` for a study.
 
     Works with or without a plan (``plan.json``); returns the path of the HTML file.
