@@ -73,9 +73,13 @@ class BudgetFacts:
     currency: str = ""
 
 
-def interval_name(level: float | None, kind: str, n_repeats: Sequence[int] = ()) -> str:
-    """``"90% Student-t interval of the mean over 5 repeats"`` and the like."""
+def interval_name(level: float | None, kind: str, n_repeats: Sequence[int] = (), *,
+                  brief: bool = False) -> str:
+    """``"90% Student-t interval of the mean over 5 repeats"`` and the like; ``brief`` gives
+    the short form for a table header (``"90% Student-t interval"``)."""
     lvl = f"{level:.0%} " if level else ""
+    if brief:
+        return f"{lvl}{'Student-t' if kind == 'repeat' else 'bootstrap'} interval"
     if kind == "repeat":
         reps = sorted({int(n) for n in n_repeats if n and n > 0})
         over = ("" if not reps else f" over {reps[0]} repeats" if len(reps) == 1

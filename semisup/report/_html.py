@@ -27,7 +27,7 @@ h1{font-size:1.6em;margin:0 0 4px}h2{font-size:1.25em;margin:32px 0 8px;
 .decision.none{background:#fdf1ef;border-left-color:#d1495b}
 .decision p{margin:4px 0}
 .note{color:#5b6570;font-size:.92em}
-p,li,figcaption,caption{overflow-wrap:anywhere}td,th{overflow-wrap:break-word}
+p,li,figcaption,caption{overflow-wrap:anywhere}td,th{overflow-wrap:break-word}td:first-child{min-width:9.5em}
 .scroll{overflow-x:auto;max-width:100%;margin:8px 0 14px}
 .scroll:focus{outline:2px solid #1b6ca8}
 table{border-collapse:collapse;font-size:.9em}

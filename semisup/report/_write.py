@@ -202,12 +202,14 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
         if budget is not None and not part.empty:
             at = part[part["n_labels"].astype(int) == budget].sort_values(
                 "mean", ascending=False)
-            kind = interval_name(_measured_level(curves, plan), "repeat", _repeats(curves))
+            level = _measured_level(curves, plan)
+            kind = interval_name(level, "repeat", _repeats(curves))
             label = METRIC_LABELS.get(metric, metric)
             s.heading(f"{label[:1].upper() + label[1:]} at {count(budget)} training labels")
             s.para(f"Shown: {label} ({why}), at {count(budget)} labels ({where}). "
                    f"Interval: {kind}.", "note")
-            s.table(Table(["method", "strategy", f"mean {label}", kind],
+            s.table(Table(["method", "strategy", f"mean {label}",
+                           interval_name(level, "repeat", brief=True)],
                           [[r.method, r.strategy, num(r.mean), span(r.low, r.high)]
                            for r in at.itertuples(index=False)]))
     return s
@@ -391,7 +393,17 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
     options = list(plan.get("options") or [])
     chosen = plan.get("chosen") or {}
     key = (chosen.get("method"), chosen.get("strategy"), chosen.get("n_labels"))
-    options.sort(key=lambda o: (float(o.get("cost") or 0), o.get("n_labels") or 0))
+    confidence = float(plan.get("confidence") or 0)
+
+    def reaches(o: Mapping) -> bool:
+        return float(o.get("probability") or 0) >= confidence
+
+    # Options that reach the target with the asked confidence, cheapest first; then the
+    # others, most likely first (ordering only).
+    options.sort(key=lambda o: (not reaches(o),
+                                float(o.get("cost") or 0) if reaches(o)
+                                else -float(o.get("probability") or 0),
+                                o.get("n_labels") or 0))
     rows, hl = [], set()
     for i, o in enumerate(options[:_MAX_OPTIONS]):
         p = o.get("predicted") or {}
@@ -403,9 +415,12 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
                      "yes" if o.get("extrapolated") else "no"])
     if rows:
         more = len(options) - len(rows)
-        s.table(Table(["method", "strategy", "training labels", "predicted", kind,
+        brief = interval_name(plan.get("interval"), "bootstrap", brief=True)
+        s.table(Table(["method", "strategy", "training labels", "predicted", brief,
                        "probability of meeting the target", "cost", "extrapolated"], rows, hl,
-                      caption="Options, cheapest first (the plan's choice highlighted)"
+                      caption="Options: those that reach the target with the confidence asked "
+                              "for, cheapest first, then the others, most likely first (the "
+                              "plan's choice highlighted)"
                       + (f"; {more} more in plan.json" if more > 0 else "")))
     bt = plan.get("backtest") or []
     if bt:
@@ -421,7 +436,8 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
                          f"{float(err):+.3f}" if isinstance(err, (int, float)) else "\u2013",
                          "not possible: " + str(b.get("reason")) if covered is None
                          else ("yes" if covered else "NO")])
-        s.table(Table(["method", "strategy", "training labels", "predicted", kind,
+        s.table(Table(["method", "strategy", "training labels", "predicted",
+                       interval_name(plan.get("interval"), "bootstrap", brief=True),
                        "measured mean", "error", "interval covered"], brow))
         s.para("A curve whose interval did not cover its own held-back budget should not be "
                "trusted far beyond the measured range.", "note")
