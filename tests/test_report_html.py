@@ -268,3 +268,22 @@ def test_prices_carry_the_currency_and_intervals_their_kind(readable_report):
     assert f"EUR {cost:,.2f}" in text
     assert "90% bootstrap interval of the fitted curve" in text
     assert "0.020 &gt; 0.020" not in text
+
+
+def test_warnings_read_as_sentences_without_rounding_artefacts():
+    from semisup.report._text import warning_text
+
+    text = warning_text("x: the power law fits poorly (RMS residual 0.020 > 0.020); y")
+    assert text.startswith("X: ") and "0.020 > 0.020" not in text
+    assert "0.020, just above a limit that also rounds to 0.020" in text
+    assert warning_text("residual 0.023 > 0.021") == "Residual 0.023 > 0.021"  # left alone
+    assert warning_text("1.020 > 0.020") == "1.020 > 0.020"
+
+
+def test_numbers_are_formatted_for_people():
+    from semisup.report._text import count, money, percent, short, span
+
+    assert count(1234567.0) == "1,234,567" and percent(0.8) == "80%"
+    assert money(1234.5, "EUR") == "EUR 1,234.50" and money(2.5) == "2.50"
+    assert span(0.81234, 0.9) == "0.812 \u2013 0.900"
+    assert short({"elbo": {"train": -44.5}, "cv_folds": 3}) == "ELBO train: -44.5; CV folds: 3"

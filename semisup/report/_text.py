@@ -7,6 +7,7 @@ Nothing here escapes HTML: ``_html.py`` escapes every piece where it enters the 
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Mapping, Sequence
 
 from ._html import Table
@@ -22,6 +23,7 @@ __all__ = [
     "percent",
     "short",
     "span",
+    "warning_text",
 ]
 
 DASH = "\u2013"
@@ -123,8 +125,27 @@ def _plain(v: object, depth: int = 0) -> str:
     return str(v)
 
 
+_ACRONYMS = {"elbo": "ELBO", "rmse": "RMSE", "bic": "BIC", "vae": "VAE", "em": "EM",
+             "cv": "CV", "id": "id"}
+
+
 def _label(key: object) -> str:
-    return str(key).replace("_", " ")
+    words = str(key).replace("_", " ").split(" ")
+    return " ".join(_ACRONYMS.get(w.lower(), w) for w in words)
+
+
+_SAME_SIDES = re.compile(r"(?<![\d.])(\d+\.\d+) ([<>]) \1(?![\d.])")
+
+
+def warning_text(text: object) -> str:
+    """A warning as a sentence: first letter capitalised, and a comparison whose two sides
+    print alike after rounding ("0.020 > 0.020") said in words."""
+    def words(m: re.Match) -> str:
+        side = "above" if m.group(2) == ">" else "below"
+        return f"{m.group(1)}, just {side} a limit that also rounds to {m.group(1)}"
+
+    out = _SAME_SIDES.sub(words, str(text))
+    return out[:1].upper() + out[1:]
 
 
 def pairs(d: Mapping, limit: int = 30, prefix: str = "", depth: int = 0) -> list[list[str]]:

@@ -34,6 +34,7 @@ from ._text import (
     percent,
     short,
     span,
+    warning_text,
 )
 
 __all__ = ["CAUTIONS", "write_report"]
@@ -500,12 +501,16 @@ def _protocol_section(study: Mapping) -> Section:
         s.para("study.json does not describe the protocol.", "note")
     spec = study.get("spec")
     if isinstance(spec, Mapping) and spec:
-        s.heading("Study settings (TOML keys)")
+        s.heading("Study settings")
         s.table(Table(["setting", "value"], pairs(spec, limit=40)))
     rep = _find(study, "representation", "representations")
     if isinstance(rep, Mapping) and rep:
+        diag = rep.get("diagnostics") if isinstance(rep.get("diagnostics"), Mapping) else rep
+        errors = rep.get("errors") if diag is not rep else None
         s.heading("Unsupervised stage diagnostics")
-        s.table(Table(["item", "value"], pairs(rep, limit=60)))
+        s.table(Table(["item", "value"], pairs(diag, limit=60)))
+        if isinstance(errors, Mapping) and errors:
+            s.bullets([f"{k}: {short(v, 300)}" for k, v in errors.items()], "warn")
     return s
 
 
@@ -565,7 +570,8 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
         *([evidence] if evidence is not None else []),
         _label_section(label_next, plan),
         _protocol_section(study),
-        Section("warnings", "Warnings").bullets(warnings or ["none"], "warn"),
+        Section("warnings", "Warnings").bullets([warning_text(w) for w in warnings]
+                                                or ["None."], "warn"),
         Section("cautions", "Cautions").bullets(CAUTIONS, "caution"),
     ]
     content = ReportContent(
