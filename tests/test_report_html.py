@@ -249,7 +249,7 @@ def test_card_and_diagnostics_read_as_words_and_formatted_numbers(readable_repor
     assert "file size" in cells and "1.2 MB" in cells
     assert "model inputs after encoding" in cells and "8.0%" in cells
     assert not [c for c in cells if "{" in c or "}" in c], "a raw JSON dict in a table cell"
-    assert any("train: -44.48" in c for c in cells)
+    assert "VAE \u203a ELBO \u203a train" in cells and "-44.48" in cells
     # imbalance_ratio 3.0 is at the card's own threshold (semisup.data._card.IMBALANCE_RATIO)
     assert "Imbalanced labels" in text and "a note is added from" not in text
 
