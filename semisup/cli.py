@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import errno
+import dataclasses
 import logging
 import os
 import sys
@@ -66,7 +67,53 @@ def _add_table_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--encoding", metavar="NAME", help="text encoding (default: utf-8)")
 
 
+def _field_default(cls: type, name: str) -> object:
+    """The default of dataclass field ``name`` of ``cls`` (the value the code uses)."""
+    for f in dataclasses.fields(cls):
+        if f.name == name:
+            return f.default
+    raise KeyError(name)
+
+
+def help_defaults() -> dict[str, str]:
+    """The defaults the ``--help`` texts quote, read from the code that applies them.
+
+    ``tests/test_cli_help.py`` checks every entry against its source, so a changed default
+    changes the help with it.
+    """
+    import inspect
+
+    from .methods import default_methods
+    from .plan import METRICS, PlanRequest
+    from .selection import STRATEGIES
+    from .study import StudySpec
+    from .study._draws import default_budgets
+
+    n_points = inspect.signature(default_budgets).parameters["n_points"].default
+    holdout = _field_default(StudySpec, "holdout")
+    return {
+        "methods": ", ".join(default_methods()),
+        "budgets": f"a geometric grid of about {n_points} budgets from 2 x the number of "
+                   "classes up to the pool size (the labeled rows less one repeat's "
+                   "evaluation rows)",
+        "repeats": str(_field_default(StudySpec, "repeats")),
+        "trials": str(_field_default(StudySpec, "trials")),
+        "strategies": ", ".join(_field_default(StudySpec, "strategies")),  # type: ignore[arg-type]
+        "strategy_choices": ", ".join(STRATEGIES),
+        "seed": str(_field_default(StudySpec, "seed")),
+        "holdout": f"{holdout:g}",
+        "evaluation": str(_field_default(StudySpec, "evaluation")),
+        "folds": str(_field_default(StudySpec, "folds")),
+        "confidence": f"{_field_default(PlanRequest, 'confidence'):g}",
+        "cost_per_round": f"{_field_default(PlanRequest, 'cost_per_round'):g}",
+        "metrics": ", ".join(METRICS),
+    }
+
+
 def build_parser() -> argparse.ArgumentParser:
+    from .plan import PlanRequest
+
+    d = help_defaults()
     parser = _Parser(
         prog="semisup",
         description="How many labels to buy, which method to use, which rows to label first.",
@@ -88,7 +135,7 @@ def build_parser() -> argparse.ArgumentParser:
                                    "class counts, duplicates, suspected leakage.")
     _add_table_args(p)
     p.add_argument("--out", type=Path, metavar="FILE.md",
-                   help="card path (default: <data stem>.card.md beside the current folder); "
+                   help="card path (default: <data stem>.card.md in the current folder); "
                         "a .json twin is written beside it")
     _add_common(p)
 
@@ -101,24 +148,32 @@ def build_parser() -> argparse.ArgumentParser:
                    help="study spec (examples in experiments/)")
     p.add_argument("--out", type=Path, default=None, metavar="DIR",
                    help="study folder (default: <data stem>-study)")
-    p.add_argument("--methods", metavar="A,B,...", help="methods to compare (default: all)")
-    p.add_argument("--budgets", metavar="N,N,...", help="label budgets (default: geometric grid)")
-    p.add_argument("--repeats", type=int, metavar="N", help="draws per budget (default 5)")
-    p.add_argument("--trials", type=int, metavar="N", help="tuning trials per method and cell")
+    p.add_argument("--methods", metavar="A,B,...",
+                   help=f"methods to compare (default: {d['methods']}; README lists the rest)")
+    p.add_argument("--budgets", metavar="N,N,...",
+                   help=f"training-label budgets (default: {d['budgets']})")
+    p.add_argument("--repeats", type=int, metavar="N",
+                   help=f"independent draws per budget (default: {d['repeats']})")
+    p.add_argument("--trials", type=int, metavar="N",
+                   help=f"tuning trials per method and cell, the same for every method; 1 "
+                        f"means default settings only (default: {d['trials']})")
     p.add_argument("--strategies", metavar="S,S,...",
-                   help="row selection strategies to simulate: random, representative, "
-                        "uncertainty (default: random)")
-    p.add_argument("--seed", type=int, metavar="N", help="study seed (default 0)")
+                   help=f"row selection strategies to simulate: {d['strategy_choices']} "
+                        f"(default: {d['strategies']}; README explains them)")
+    p.add_argument("--seed", type=int, metavar="N",
+                   help=f"study seed; every random choice derives from it "
+                        f"(default: {d['seed']})")
     p.add_argument("--evaluation", choices=("cross-fit", "holdout", "test-file"),
-                   help="how cells are scored: cross-fit (default; each repeat evaluates its "
-                        "own fold of the labeled rows, so every labeled row is evaluated), "
-                        "holdout (one fixed share of the labeled rows), test-file (only the "
-                        "rows of --test-file)")
+                   help="how cells are scored: cross-fit (each repeat evaluates its own fold of "
+                        "the labeled rows, so every labeled row is evaluated), holdout (one "
+                        "fixed share of the labeled rows), test-file (only the rows of "
+                        f"--test-file) (default: {d['evaluation']})")
     p.add_argument("--folds", type=int, metavar="K",
-                   help="folds of the labeled rows for cross-fit evaluation (default 5)")
+                   help=f"folds of the labeled rows for cross-fit evaluation "
+                        f"(default: {d['folds']})")
     p.add_argument("--holdout", type=float, metavar="F",
-                   help="fraction of labeled rows kept as a fixed holdout (default 0.3; "
-                        "sets --evaluation holdout)")
+                   help=f"fraction (or, if >= 1, count) of labeled rows kept as a fixed holdout; "
+                        f"sets --evaluation holdout (default: {d['holdout']})")
     p.add_argument("--test-file", type=Path, metavar="FILE",
                    help="a labeled table with the same columns and classes, only ever "
                         "evaluated on (sets --evaluation test-file)")
@@ -139,13 +194,17 @@ def build_parser() -> argparse.ArgumentParser:
                                    "options; writes plan.json, curves.csv and label_next.csv.")
     p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
     p.add_argument("--target", required=True, metavar="METRIC=VALUE",
-                   help="e.g. accuracy=0.95 or macro_f1=0.85")
+                   help=f"metric to reach on the holdout, one of {d['metrics']}; "
+                        "e.g. accuracy=0.95 or macro_f1=0.85")
     p.add_argument("--cost-per-label", type=float, required=True, metavar="X",
-                   help="price of one label")
-    p.add_argument("--confidence", type=float, default=0.8, metavar="P",
-                   help="required probability of meeting the target (default 0.8)")
-    p.add_argument("--cost-per-round", type=float, default=0.0, metavar="X",
-                   help="fixed price of one labeling round (default 0)")
+                   help="price of one label (any currency; the report can name it)")
+    p.add_argument("--confidence", type=float,
+                   default=_field_default(PlanRequest, "confidence"), metavar="P",
+                   help="required probability of meeting the target "
+                        f"(default: {d['confidence']})")
+    p.add_argument("--cost-per-round", type=float,
+                   default=_field_default(PlanRequest, "cost_per_round"), metavar="X",
+                   help=f"fixed price of one labeling round (default: {d['cost_per_round']})")
     p.add_argument("--labels-owned", type=int, default=None, metavar="N",
                    help="training labels already paid for (default: the labeled rows in the "
                         "table less the holdout)")
@@ -159,6 +218,9 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Single-file HTML report with embedded figures, from a "
                                    "study folder (and its plan, if made).")
     p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
+    p.add_argument("--currency", default="", metavar="TEXT",
+                   help="currency written before prices in the report, e.g. EUR or '$' "
+                        "(default: none, prices read 'per label')")
     _add_common(p)
     _add_model_parsers(sub)
     return parser
@@ -338,7 +400,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
 def _cmd_report(args: argparse.Namespace) -> int:
     from .report import write_report
 
-    path = write_report(args.study_dir)
+    path = write_report(args.study_dir, currency=args.currency)
     print(f"wrote {path}")
     return EXIT_OK
 

@@ -15,6 +15,7 @@ from _plan_synth import TRUTH, stand_in_select_rows, write_study
 from semisup import StoreError
 from semisup.plan import PlanRequest, make_plan
 from semisup.report import CAUTIONS, curve_figure, write_report
+from semisup.study import summarize_curves
 
 EVIL = "<script>alert(1)</script>"
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
@@ -78,6 +79,8 @@ def test_report_is_self_contained(evil_report):
     assert pngs == ["curves_accuracy.png", "curves_balanced_accuracy.png", "curves_macro_f1.png"]
     for p in (folder / "figures").glob("*.png"):
         assert p.read_bytes().startswith(PNG_MAGIC)
+        svg = p.with_suffix(".svg").read_bytes()
+        assert b"<svg" in svg and b"<script" not in svg
 
 
 def test_report_has_every_section(evil_report):
@@ -93,6 +96,9 @@ def test_report_has_every_section(evil_report):
 
 def test_report_without_plan_says_how_to_make_one(tmp_path):
     folder = write_study(tmp_path / "s")
+    # The study writes its measured points to curves.csv (semisup.study.summarize_curves).
+    summarize_curves(pd.read_csv(folder / "cells.csv")).to_csv(folder / "curves.csv",
+                                                               index=False)
     text = write_report(folder).read_text(encoding="utf-8")
     assert "No plan has been made" in text and "semisup plan" in text
     assert "Plan and backtest" in text and "Decision:" not in text
@@ -114,7 +120,7 @@ def test_curve_figure_is_a_png_of_the_right_size():
         "low": [0.55, 0.65, 0.6, 0.7], "high": [0.65, 0.75, 0.62, 0.8],
         "measured": [True, True, False, False], "extrapolated": [False, False, False, True],
     })
-    png = curve_figure(curves, "accuracy", target=0.7)
+    png = curve_figure(curves, "accuracy", target=0.7).png
     assert png.startswith(PNG_MAGIC)
     # Width and height from the PNG header (IHDR), per the PNG specification.
     width, height = int.from_bytes(png[16:20], "big"), int.from_bytes(png[20:24], "big")
@@ -177,3 +183,107 @@ def test_render_html_escapes_every_piece():
     sec.table(Table([EVIL], [[EVIL], [1.5]], caption=EVIL))
     text = render_html(ReportContent(EVIL, EVIL, [sec]))
     assert EVIL not in text and text.count("&lt;script&gt;") >= 8
+
+
+def _cells_text(text: str) -> list[str]:
+    class Cells(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.inside, self.cells = False, []
+
+        def handle_starttag(self, tag, attrs):
+            if tag in ("td", "th"):
+                self.inside = True
+                self.cells.append("")
+
+        def handle_endtag(self, tag):
+            if tag in ("td", "th"):
+                self.inside = False
+
+        def handle_data(self, data):
+            if self.inside:
+                self.cells[-1] += data
+
+    parser = Cells()
+    parser.feed(text)
+    return parser.cells
+
+
+@pytest.fixture(scope="module")
+def readable_report(tmp_path_factory):
+    folder = write_study(tmp_path_factory.mktemp("readable") / "records-study",
+                         class_counts={"cat": 300, "dog": 100}, n_labeled=400, n_holdout=150)
+    study = json.loads((folder / "study.json").read_text(encoding="utf-8"))
+    study["data"]["source"] = "/data/intake/records_2024.csv"
+    study["pool"] = {"n_rows": 250}  # budgets 20..160 draw different rows, 320 would not
+    study["representation"] = {"diagnostics": {"vae": {"elbo": {"train": -44.48, "held_out":
+                                                                 -52.9},
+                                                        "recon": {"numeric": 0.31}}},
+                               "errors": {}}
+    (folder / "study.json").write_text(json.dumps(study), encoding="utf-8")
+    card = {"source": "/data/intake/records_2024.csv", "size_bytes": 1234567, "n_rows": 5000,
+            "n_encoded_features": 81, "labeled_fraction": 0.08, "imbalance_ratio": 3.0,
+            "imbalance_note": "Imbalanced ...", "kinds": {"numeric": ["x1"],
+                                                          "categorical": ["x2"]},
+            "columns": [{"name": "x1", "kind": "numeric", "dtype": "float64", "missing": 12,
+                         "missing_fraction": 0.0024, "distinct": 4990}]}
+    (folder / "data_card.json").write_text(json.dumps(card), encoding="utf-8")
+    make_plan(folder, PlanRequest("macro_f1", 0.8, 2.5, labels_owned=100, n_next=5),
+              select_rows=stand_in_select_rows, n_boot=30)
+    plan = json.loads((folder / "plan.json").read_text(encoding="utf-8"))
+    text = write_report(folder, currency="EUR").read_text(encoding="utf-8")
+    return folder, plan, text
+
+
+def test_title_names_the_data_file(readable_report):
+    _, _, text = readable_report
+    assert "<title>Label-budget study of records_2024.csv</title>" in text
+    assert "Label-budget study: study" not in text
+
+
+def test_card_and_diagnostics_read_as_words_and_formatted_numbers(readable_report):
+    _, _, text = readable_report
+    cells = _cells_text(text)
+    for raw in ("size_bytes", "n_encoded_features", "labeled_fraction", "imbalance_ratio"):
+        assert raw not in text, raw
+    assert "file size" in cells and "1.2 MB" in cells
+    assert "model inputs after encoding" in cells and "8.0%" in cells
+    assert not [c for c in cells if "{" in c or "}" in c], "a raw JSON dict in a table cell"
+    assert "VAE \u203a ELBO \u203a train" in cells and "-44.48" in cells
+    # imbalance_ratio 3.0 is at the card's own threshold (semisup.data._card.IMBALANCE_RATIO)
+    assert "Imbalanced labels" in text and "a note is added from" not in text
+
+
+def test_summary_shows_the_plan_metric_where_repeats_differ(readable_report):
+    _, _, text = readable_report
+    # The plan's metric (macro-F1) at 160 labels: the largest budget below the pool of 250.
+    assert "Macro-F1 at 160 training labels" in text
+    assert "90% Student-t interval of the mean over 5 repeats" in text
+
+
+def test_prices_carry_the_currency_and_intervals_their_kind(readable_report):
+    _, plan, text = readable_report
+    assert "price EUR 2.50 per label" in text
+    cost = plan["chosen"]["cost"] if plan["chosen"] else plan["best"]["cost"]
+    assert f"EUR {cost:,.2f}" in text
+    assert "90% bootstrap interval of the fitted curve" in text
+    assert "0.020 &gt; 0.020" not in text
+
+
+def test_warnings_read_as_sentences_without_rounding_artefacts():
+    from semisup.report._text import warning_text
+
+    text = warning_text("x: the power law fits poorly (RMS residual 0.020 > 0.020); y")
+    assert text.startswith("X: ") and "0.020 > 0.020" not in text
+    assert "0.020, just above a limit that also rounds to 0.020" in text
+    assert warning_text("residual 0.023 > 0.021") == "Residual 0.023 > 0.021"  # left alone
+    assert warning_text("1.020 > 0.020") == "1.020 > 0.020"
+
+
+def test_numbers_are_formatted_for_people():
+    from semisup.report._text import count, money, percent, short, span
+
+    assert count(1234567.0) == "1,234,567" and percent(0.8) == "80%"
+    assert money(1234.5, "EUR") == "EUR 1,234.50" and money(2.5) == "2.50"
+    assert span(0.81234, 0.9) == "0.812 \u2013 0.900"
+    assert short({"elbo": {"train": -44.5}, "cv_folds": 3}) == "ELBO train: -44.5; CV folds: 3"

@@ -10,6 +10,7 @@ from __future__ import annotations
 import base64
 import html
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
@@ -26,7 +27,10 @@ h1{font-size:1.6em;margin:0 0 4px}h2{font-size:1.25em;margin:32px 0 8px;
 .decision.none{background:#fdf1ef;border-left-color:#d1495b}
 .decision p{margin:4px 0}
 .note{color:#5b6570;font-size:.92em}
-table{border-collapse:collapse;margin:8px 0 14px;font-size:.9em}
+p,li,figcaption,caption{overflow-wrap:anywhere}td,th{overflow-wrap:break-word}td:first-child{min-width:9.5em}
+.scroll{overflow-x:auto;max-width:100%;margin:8px 0 14px}
+.scroll:focus{outline:2px solid #1b6ca8}
+table{border-collapse:collapse;font-size:.9em}
 caption{caption-side:top;text-align:left;padding:2px 0}
 th,td{border:1px solid #dde1e5;padding:4px 8px;text-align:left;vertical-align:top}
 th{background:#f1f3f5}td.num{text-align:right;font-variant-numeric:tabular-nums}
@@ -35,8 +39,13 @@ ul.warn li{color:#8a4b00}ul.caution li{color:#6b1f1f}
 figure{margin:12px 0 20px}figure img{max-width:100%;height:auto;border:1px solid #e3e6ea}
 figcaption{font-size:.88em;color:#5b6570}
 code{background:#f1f3f5;padding:1px 4px;border-radius:3px}
-nav a{margin-right:12px;color:#1b6ca8;text-decoration:none}
+nav ul{list-style:none;padding:0;margin:0;display:flex;flex-wrap:wrap;gap:4px 14px}
+nav a{color:#1b6ca8}
+@media (max-width:600px){main{padding:14px 12px 32px}h1{font-size:1.3em}}
 """
+
+#: Text of a cell that reads as a number (right-aligned): 1,234 / 0.812 / 80% / -0.013.
+_NUMERIC = re.compile(r"[<>+\-−]?\d[\d,]*(\.\d+)?%?")
 
 
 def esc(value: object) -> str:
@@ -117,7 +126,9 @@ class ReportContent:
 
 
 def _table_html(t: Table) -> str:
-    out = ["<table>"]
+    label = t.caption or ", ".join(str(h) for h in t.headers)
+    out = [f"<div class=\"scroll\" tabindex=\"0\" role=\"region\" aria-label=\"{esc(label)}\">"
+           "<table>"]
     if t.caption:
         out.append(f"<caption class=\"note\">{esc(t.caption)}</caption>")
     out.append("<thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in t.headers)
@@ -131,10 +142,11 @@ def _table_html(t: Table) -> str:
                 text = format(v, t.formats[j])
             else:
                 text = fmt(v)
+            num = num or (isinstance(v, str) and _NUMERIC.fullmatch(v.strip()) is not None)
             cells.append(f"<td class=\"num\">{esc(text)}</td>" if num
                          else f"<td>{esc(text)}</td>")
         out.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
-    out.append("</tbody></table>")
+    out.append("</tbody></table></div>")
     return "".join(out)
 
 
@@ -164,7 +176,8 @@ def _block_html(kind: str, payload: object) -> str:
 
 def render_html(content: ReportContent) -> str:
     """The whole page."""
-    nav = " ".join(f"<a href=\"#{esc(s.anchor)}\">{esc(s.title)}</a>" for s in content.sections)
+    nav = "".join(f"<li><a href=\"#{esc(s.anchor)}\">{esc(s.title)}</a></li>"
+                  for s in content.sections)
     body = []
     for s in content.sections:
         body.append(f"<section id=\"{esc(s.anchor)}\"><h2>{esc(s.title)}</h2>")
@@ -175,5 +188,6 @@ def render_html(content: ReportContent) -> str:
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
         f"<title>{esc(content.title)}</title><style>{_CSS}</style></head><body><main>"
         f"<h1>{esc(content.title)}</h1><p class=\"sub\">{esc(content.subtitle)}</p>"
-        f"<nav>{nav}</nav>" + "".join(body) + "</main></body></html>\n"
+        f"<nav aria-label=\"sections\"><ul>{nav}</ul></nav>"
+        + "".join(body) + "</main></body></html>\n"
     )

@@ -1,12 +1,15 @@
-"""Write report.html and figures/*.png for a study folder (I/O edge).
+"""Write report.html and figures/*.png (+ .svg) for a study folder (I/O edge).
 
 Reads what the study and the plan wrote (cells.csv, study.json, data_card.json, curves.csv,
-plan.json, label_next.csv); computes nothing new beyond grouping and averaging for display.
+plan.json, label_next.csv) and shows it; it computes no new statistic. Every number shown is
+read from those files and only formatted here (``_text.py``).
 """
 
 from __future__ import annotations
 
-import json
+import importlib
+import importlib.util
+import inspect
 import logging
 import os
 from collections.abc import Mapping
@@ -16,10 +19,23 @@ import pandas as pd
 
 from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
-from .._errors import PlanError, StoreError
+from .._errors import ConfigError, PlanError, StoreError
 from ..plan import METRICS, data_warnings, read_json, study_facts, tidy_cells
-from ._figures import METRIC_LABELS, curve_figure
+from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
+from ._text import (
+    card_rows,
+    columns_table,
+    count,
+    imbalance_text,
+    money,
+    num,
+    pairs,
+    percent,
+    short,
+    span,
+    warning_text,
+)
 
 __all__ = ["CAUTIONS", "write_report"]
 
@@ -35,6 +51,13 @@ CAUTIONS = (
 )
 _MAX_LABEL_ROWS = 50
 _MAX_OPTIONS = 40
+_REASONS = (
+    "Reasons: 'random draw' - picked at random; 'cluster C, rank R' - representative "
+    "selection, the (R+1)-th row nearest the centre of k-means cluster C in the unsupervised "
+    "representation (rank 0 = nearest; clusters visited largest first); 'margin M' - "
+    "uncertainty selection, the two most probable classes differ by M in predicted "
+    "probability (small = the model is unsure)."
+)
 
 
 def _read_csv(path: Path) -> pd.DataFrame | None:
@@ -59,60 +82,96 @@ def _find(src: Mapping, *names: str):
     return None
 
 
-def _scalar(v: object) -> bool:
-    return isinstance(v, (str, int, float, bool)) or v is None
+def _truthy(series: pd.Series) -> pd.Series:
+    if series.dtype == bool:
+        return series
+    return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
 
 
-def _text(value: object) -> object:
-    if _scalar(value):
-        return value
-    if isinstance(value, (list, tuple)) and all(_scalar(x) for x in value):
-        shown = [f"{x:.4g}" if isinstance(x, float) else str(x) for x in value[:30]]
-        return ", ".join(shown) + (" ..." if len(value) > 30 else "")
-    return _short(json.dumps(value, default=str))
-
-
-def _pairs(d: Mapping, limit: int = 30, prefix: str = "", depth: int = 0) -> list[list[object]]:
-    """Key/value rows of a mapping; nested mappings flattened to dotted keys (two levels),
-    anything deeper shortened to readable text."""
-    rows: list[list[object]] = []
-    for key, value in d.items():
-        if len(rows) >= limit:
-            rows.append(["...", "more in the JSON file"])
-            break
-        name = f"{prefix}{key}"
-        if isinstance(value, Mapping) and value and depth < 2:
-            rows.extend(_pairs(value, limit - len(rows), f"{name}.", depth + 1))
-        else:
-            rows.append([name, _text(value)])
-    return rows[: limit + 1]
-
-
-def _curves_table(study_dir: Path, cells: pd.DataFrame | None) -> pd.DataFrame | None:
+def _curves_table(study_dir: Path) -> pd.DataFrame | None:
+    """curves.csv as the study (measured points) or the plan (measured and fitted) wrote it."""
     curves = _read_csv(study_dir / "curves.csv")
     needed = {"method", "strategy", "metric", "n_labels", "mean", "low", "high", "measured"}
-    if curves is not None and needed <= set(curves.columns):
-        return curves
-    if cells is None:
+    if curves is None or not needed <= set(curves.columns):
         return None
-    ok = cells[cells["status"].astype(str).str.lower() == "ok"]
-    rows = []
-    for m in METRICS:
-        if m not in ok.columns:
-            continue
-        g = ok.groupby(["method", "strategy", "n_labels"])[m]
-        agg = g.agg(["mean", "min", "max"]).reset_index()
-        for r in agg.itertuples(index=False):
-            rows.append({"method": r.method, "strategy": r.strategy, "metric": m,
-                         "n_labels": r.n_labels, "mean": r.mean, "low": r.min, "high": r.max,
-                         "measured": True})
-    return pd.DataFrame(rows) if rows else None
+    curves = curves.copy()
+    curves["measured"] = _truthy(curves["measured"])
+    curves["method"] = curves["method"].astype(str)
+    curves["strategy"] = curves["strategy"].astype(str)
+    curves["metric"] = curves["metric"].astype(str)
+    return curves
 
 
-def _summary_section(study_dir: Path, study: Mapping, facts, cells, plan) -> Section:
+def _measured_level(curves: pd.DataFrame | None, plan: Mapping | None) -> float:
+    """Coverage of the measured points' intervals: curves.csv's own column (the plan writes
+    it), else the level the study's summarize_curves uses by default."""
+    if curves is not None and "interval" in curves.columns:
+        vals = pd.to_numeric(curves.loc[curves["measured"], "interval"], errors="coerce")
+        vals = vals.dropna()
+        if not vals.empty:
+            return float(vals.iloc[0])
+    from ..study import summarize_curves
+
+    return float(inspect.signature(summarize_curves).parameters["confidence"].default)
+
+
+def _repeats(curves: pd.DataFrame | None) -> list[int]:
+    if curves is None or "n_repeats" not in curves.columns:
+        return []
+    vals = pd.to_numeric(curves.loc[curves["measured"], "n_repeats"], errors="coerce")
+    return [int(v) for v in vals.dropna().unique()]
+
+
+def _families(methods) -> dict[str, str]:
+    from ..methods import get_method
+
+    out = {}
+    for m in methods:
+        try:
+            out[str(m)] = get_method(str(m)).family
+        except ConfigError:
+            out[str(m)] = "other"
+    return out
+
+
+def recommended_metric(plan: Mapping | None, card: Mapping) -> tuple[str, str]:
+    """The metric to lead with and why: the plan's target metric, else the one the data card
+    advises (balanced accuracy for imbalanced labels), else accuracy."""
+    target = ((plan or {}).get("target") or {}).get("metric")
+    if target in METRICS:
+        return str(target), "the plan's target metric"
+    named = card.get("recommended_metric")
+    if named in METRICS:
+        return str(named), "the metric the data card recommends"
+    from ..data._card import IMBALANCE_RATIO
+
+    ratio = card.get("imbalance_ratio")
+    if isinstance(ratio, (int, float)) and ratio >= IMBALANCE_RATIO:
+        return "balanced_accuracy", ("the data card finds the labeled classes imbalanced and "
+                                     "advises balanced accuracy")
+    return "accuracy", "the classes are roughly balanced"
+
+
+def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, str]:
+    """The largest measured budget whose repeats draw different rows (below the pool size)."""
+    budgets = sorted({int(b) for b in curves.loc[curves["measured"], "n_labels"]})
+    if not budgets:
+        return None, ""
+    pool = _find(study.get("pool") or {}, "n_rows") if isinstance(study.get("pool"),
+                                                                   Mapping) else None
+    below = [b for b in budgets if pool is None or b < int(pool)]
+    if not below:
+        return budgets[-1], "every budget uses the whole pool, so the repeats do not differ"
+    why = (f"the largest budget below the pool of {count(pool)} labeled training rows, so "
+           "the repeats draw different rows" if pool is not None else "the largest budget")
+    return below[-1], why
+
+
+def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan,
+                     card: Mapping, currency: str) -> Section:
     s = Section("summary", "Job summary")
     if plan:
-        s.decision(_decision_lines(plan), plan.get("chosen") is not None)
+        s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
     else:
         s.para("No plan has been made for this study yet. Make one with "
                f"'semisup plan {study_dir} --target accuracy=0.9 --cost-per-label 1' "
@@ -123,169 +182,191 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, plan) -> Sec
                          ("unlabeled rows", facts.n_unlabeled),
                          ("holdout rows (evaluation only)", facts.n_holdout)):
         if value is not None:
-            rows.append([label, value])
+            rows.append([label, count(value)])
     classes = _find(study, "class_names", "classes")
     if isinstance(classes, (list, tuple)):
         rows.append(["classes", ", ".join(str(c) for c in classes)])
     if cells is not None:
         rows.append(["methods", ", ".join(sorted(cells["method"].astype(str).unique()))])
-        rows.append(["label budgets", ", ".join(str(int(n)) for n in
-                                                sorted(cells["n_labels"].unique()))])
+        rows.append(["training-label budgets", ", ".join(
+            count(n) for n in sorted(cells["n_labels"].unique()))])
         rows.append(["selection strategies",
                      ", ".join(sorted(cells["strategy"].astype(str).unique()))])
         status = cells["status"].astype(str).str.lower().value_counts()
-        rows.append(["cells", ", ".join(f"{k}: {v}" for k, v in status.items())])
+        rows.append(["cells (method x budget x repeat x strategy)",
+                     ", ".join(f"{k}: {count(v)}" for k, v in status.items())])
     s.table(Table(["fact", "value"], rows))
+    if curves is not None and not curves.empty:
+        metric, why = recommended_metric(plan, card)
+        part = curves[curves["measured"] & (curves["metric"] == metric)]
+        budget, where = _summary_budget(study, curves)
+        if budget is not None and not part.empty:
+            at = part[part["n_labels"].astype(int) == budget].sort_values(
+                "mean", ascending=False)
+            level = _measured_level(curves, plan)
+            kind = interval_name(level, "repeat", _repeats(curves))
+            label = METRIC_LABELS.get(metric, metric)
+            s.heading(f"{label[:1].upper() + label[1:]} at {count(budget)} training labels")
+            s.para(f"Shown: {label} ({why}), at {count(budget)} labels ({where}). "
+                   f"Interval: {kind}.", "note")
+            s.table(Table(["method", "strategy", f"mean {label}",
+                           interval_name(level, "repeat", brief=True)],
+                          [[r.method, r.strategy, num(r.mean), span(r.low, r.high)]
+                           for r in at.itertuples(index=False)]))
     return s
 
 
-def _decision_lines(plan: Mapping) -> list[str]:
+def _describe(o: Mapping, metric: str, currency: str, kind: str) -> str:
+    p = o.get("predicted") or {}
+    extra = " (extrapolated)" if o.get("extrapolated") else ""
+    return (f"{o.get('method')} with {o.get('strategy')} selection at "
+            f"{count(o.get('n_labels'))} training labels: predicted {metric} {num(p.get('mean'))}"
+            f" ({kind} {span(p.get('low'), p.get('high'))}){extra}, probability of meeting "
+            f"the target {percent(o.get('probability'))}, cost {money(o.get('cost'), currency)}")
+
+
+def _decision_lines(plan: Mapping, currency: str = "") -> list[str]:
     target = plan.get("target") or {}
-    metric = str(target.get("metric", "metric"))
-    head = (f"Target: {metric} >= {target.get('value')} with probability >= "
-            f"{plan.get('confidence')}; cost per label {plan.get('cost_per_label')}.")
-
-    def describe(o: Mapping) -> str:
-        p = o.get("predicted") or {}
-        extra = " (extrapolated)" if o.get("extrapolated") else ""
-        return (f"{o.get('method')} with {o.get('strategy')} selection at {o.get('n_labels')} "
-                f"labels: predicted {metric} {_num(p.get('mean'))} "
-                f"[{_num(p.get('low'))}, {_num(p.get('high'))}]{extra}, probability "
-                f"{_num(o.get('probability'), 2)}, cost {_num(o.get('cost'), 2)}")
-
+    metric = METRIC_LABELS.get(str(target.get("metric")), str(target.get("metric", "metric")))
+    kind = interval_name(plan.get("interval"), "bootstrap")
+    price = plan.get("cost_per_label")
+    head = (f"Target: {metric} of at least {num(target.get('value'))} with probability at "
+            f"least {percent(plan.get('confidence'))}; price {money(price, currency)} per label"
+            + (f", {money(plan.get('cost_per_round'), currency)} per labeling round"
+               if plan.get("cost_per_round") else "") + ".")
+    owned = plan.get("labels_owned")
+    if owned is not None:
+        head += f" Training labels owned: {count(owned)}."
     chosen = plan.get("chosen")
     if chosen:
         n_new = chosen.get("n_new")
-        buy = f"buy {n_new} labels and use " if n_new else "no labels to buy; use "
-        lines = [head, f"Decision: {buy}{describe(chosen)}."]
+        buy = f"buy {count(n_new)} labels and use " if n_new else "no labels to buy; use "
+        lines = [head, f"Decision: {buy}{_describe(chosen, metric, currency, kind)}."]
         runner = plan.get("runner_up")
-        lines.append(f"Runner-up: {describe(runner)}." if runner else
+        lines.append(f"Runner-up: {_describe(runner, metric, currency, kind)}." if runner else
                      "Runner-up: none meets the target with this confidence.")
     else:
         best = plan.get("best")
-        tail = f"; the best is {describe(best)}." if best else "."
+        tail = f"; the best is {_describe(best, metric, currency, kind)}." if best else "."
         lines = [head, f"Decision: not reachable with these data and methods{tail}"]
     return lines
-
-
-def _num(v: object, digits: int = 3) -> str:
-    try:
-        return f"{float(v):.{digits}f}"  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        return "\u2013"
 
 
 def _card_section(card: Mapping, study: Mapping) -> Section:
     s = Section("data", "Data card highlights")
     if not card:
         s.para("No data_card.json in the study folder; 'semisup card' writes one.", "note")
-    scalars = {k: v for k, v in card.items() if _scalar(v)}
-    if scalars:
-        s.table(Table(["item", "value"], _pairs(scalars)))
+    rows = card_rows(card)
+    if rows:
+        s.table(Table(["item", "value"], rows))
+    text = imbalance_text(card)
+    if text:
+        s.para(text)
     counts = _find(card, "class_counts") or _find(study, "class_counts")
+    shares = card.get("labeled_class_shares")
     if isinstance(counts, Mapping) and counts:
-        total = sum(float(v) for v in counts.values() if _is_number(v)) or 1.0
-        rows = [[str(k), v, float(v) / total if _is_number(v) else None]
+        rows = [[str(k), count(v)] + ([percent((shares or {}).get(k))]
+                                      if isinstance(shares, Mapping) else [])
                 for k, v in counts.items()]
         s.heading("Labeled rows per class")
-        s.table(Table(["class", "labeled rows", "share"], rows))
-    for key in ("column_kinds", "kinds", "columns"):
-        value = card.get(key)
-        if isinstance(value, Mapping) and value:
-            s.heading(f"Columns ({key.replace('_', ' ')})")
-            s.table(Table(["column", "details"], _pairs(value, limit=60)))
-            break
-        if isinstance(value, list) and value and all(isinstance(x, Mapping) for x in value):
-            keys = list(dict.fromkeys(k for x in value[:60] for k in x))[:6]
-            s.heading("Columns")
-            s.table(Table(keys, [[_short(x.get(k)) for k in keys] for x in value[:60]]))
-            break
-    for key in ("warnings", "notes", "issues"):
+        s.table(Table(["class", "labeled rows"]
+                      + (["share"] if isinstance(shares, Mapping) else []), rows))
+    kinds = card.get("kinds")
+    if isinstance(kinds, Mapping) and kinds:
+        s.heading("Column kinds")
+        s.table(Table(["kind", "columns"],
+                      [[k, short(", ".join(map(str, v)) if isinstance(v, list) else v, 300)]
+                       for k, v in kinds.items()]))
+    elif isinstance(card.get("column_kinds"), Mapping) and card["column_kinds"]:
+        s.heading("Column kinds")
+        s.table(Table(["column", "kind"], pairs(card["column_kinds"], limit=60)))
+    table = columns_table(card.get("columns"))
+    if table is not None:
+        s.heading("Columns")
+        s.table(table)
+    for key, title in (("warnings", "Data card warnings"), ("notes", "Data card notes")):
         value = card.get(key)
         if isinstance(value, list) and value:
-            s.heading(f"Data card {key}")
-            s.bullets([_short(v) for v in value], "warn" if key == "warnings" else "")
+            s.heading(title)
+            s.bullets([short(v) for v in value], "warn" if key == "warnings" else "")
     return s
 
 
-def _is_number(v: object) -> bool:
-    try:
-        float(v)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        return False
-    return True
-
-
-def _short(v: object) -> object:
-    if _scalar(v):
-        return v
-    text = str(v)
-    return text if len(text) <= 120 else text[:117] + "..."
-
-
-def _curves_section(curves, plan, figures_dir: Path, written: list[Path]) -> Section:
+def _curves_section(curves, plan, study: Mapping, facts, figures_dir: Path,
+                    written: list[Path], currency: str) -> Section:
     s = Section("curves", "Learning curves")
     if curves is None or curves.empty:
-        s.para("No measured points: cells.csv has no finished cell.", "note")
+        s.para("No curve points: curves.csv is missing or empty (the study writes it once a "
+               "cell has finished).", "note")
         return s
-    target = plan.get("target") or {} if plan else {}
+    target = (plan or {}).get("target") or {}
     plan_metric = target.get("metric")
-    metrics = [m for m in METRICS if m in set(curves["metric"].astype(str))]
+    metrics = [m for m in METRICS if m in set(curves["metric"])]
     if plan_metric in metrics:
         metrics.remove(plan_metric)
         metrics.insert(0, plan_metric)
-    interval = plan.get("interval") if plan else None
-    measured = curves["measured"].astype(str).str.strip().str.lower().isin(("true", "1"))
-    if (~measured).any():
-        s.para("Points are measured means over repeats with their intervals; lines are the "
-               "fitted inverse power law error(n) = a + b n^(-c) with shaded bootstrap bands. "
-               "In the grey area the curve is extrapolated beyond the largest measured budget "
-               "(dashed line) and its band is widened; one panel per selection strategy.", "note")
-    else:
-        s.para("Points are measured means over repeats with their spread; no curves are "
-               "fitted until a plan is made ('semisup plan').", "note")
+    measured_kind = interval_name(_measured_level(curves, plan), "repeat", _repeats(curves))
+    fitted_kind = interval_name((plan or {}).get("interval"), "bootstrap")
+    fitted = (~curves["measured"]).any()
+    s.para(f"One panel per method family, on a shared scale. Points: measured mean on the "
+           f"holdout; bars: {measured_kind}."
+           + (f" Lines: the fitted inverse power law error(n) = a + b n^(-c); bands: "
+              f"{fitted_kind}; the grey area is extrapolated beyond the largest measured budget."
+              if fitted else " No curves are fitted until a plan is made ('semisup plan').")
+           + " The lower axis counts training labels; the upper axis adds the labels kept for "
+           "evaluation. Bars cut by the axes end in an open triangle.", "note")
+    families = _families(curves["method"].unique())
+    budget = BudgetFacts(n_holdout=facts.n_holdout,
+                         labels_owned=(plan or {}).get("labels_owned"), currency=currency)
+    reached = bool((plan or {}).get("chosen"))
+    mark = (plan or {}).get("chosen") or (plan or {}).get("best")
+    figures_dir.mkdir(parents=True, exist_ok=True)
     for m in metrics:
         is_plan = m == plan_metric
-        png = curve_figure(curves, m, target=target.get("value") if is_plan else None,
-                           chosen=plan.get("chosen") if is_plan else None, interval=interval)
-        path = figures_dir / f"curves_{m}.png"
-        atomic_write_bytes(path, png)
-        written.append(path)
-        caption = f"{METRIC_LABELS.get(m, m)} against label budget"
+        fig = curve_figure(curves, m, target=target.get("value") if is_plan else None,
+                           chosen=mark if is_plan else None, chosen_reached=reached,
+                           families=families, facts=budget, measured_interval=measured_kind,
+                           fitted_interval=fitted_kind if fitted else "")
+        for ext, payload in (("png", fig.png), ("svg", fig.svg)):
+            path = figures_dir / f"curves_{m}.{ext}"
+            atomic_write_bytes(path, payload)
+            written.append(path)
+        label = METRIC_LABELS.get(m, m)
+        caption = (f"{label[:1].upper() + label[1:]} against training labels, one panel per "
+                   "method family")
         if is_plan:
-            caption += " (plan metric; dashed line: target; star: the plan's choice)"
-        s.figure(Picture(png, caption, f"learning curves of {METRIC_LABELS.get(m, m)}"))
+            star = ("star: the plan's choice" if reached else
+                    "open star: the best option, which misses the target's confidence")
+            caption += (f" (the plan's metric; dashed red line: the target "
+                        f"{num(target.get('value'))}; {star})")
+        caption += f". Also as figures/curves_{m}.svg."
+        s.figure(Picture(fig.png, caption, f"learning curves of {label} by method family"))
     return s
 
 
-def _methods_section(cells, curves, plan) -> Section:
+def _methods_section(cells, curves, plan, study: Mapping, card: Mapping) -> Section:
     s = Section("methods", "Methods")
     if cells is None:
         s.para("No cells.csv in the study folder.", "note")
         return s
-    metric = ((plan or {}).get("target") or {}).get("metric") or "accuracy"
-    if metric not in cells.columns:
-        metric = next((m for m in METRICS if m in cells.columns), None)
-    ok = cells[cells["status"].astype(str).str.lower() == "ok"]
-    if metric is not None and not ok.empty:
-        budgets = sorted(int(b) for b in ok["n_labels"].unique())
-        means = ok.groupby(["method", "strategy", "n_labels"])[metric].mean()
-        secs = (ok.groupby(["method", "strategy"])["seconds"].mean()
-                if "seconds" in ok.columns else None)
-        rows = []
-        for (method, strategy), _ in ok.groupby(["method", "strategy"], sort=True):
-            row: list[object] = [str(method), str(strategy)]
-            for b in budgets:
-                v = means.get((method, strategy, b))
-                row.append(float(v) if v is not None and pd.notna(v) else None)
-            if secs is not None:
-                row.append(float(secs.get((method, strategy), float("nan"))))
-            rows.append(row)
-        headers = ["method", "strategy", *[f"n={b}" for b in budgets]]
-        if secs is not None:
-            headers.append("seconds per cell")
-        s.table(Table(headers, rows, caption=f"Mean {METRIC_LABELS.get(metric, metric)} on "
-                                             "the holdout over repeats, by label budget"))
+    metric, _ = recommended_metric(plan, card)
+    if curves is not None and not curves.empty:
+        part = curves[curves["measured"] & (curves["metric"] == metric)]
+        if not part.empty:
+            wide = part.pivot_table(index=["method", "strategy"], columns="n_labels",
+                                    values="mean", aggfunc="first")
+            budgets = [int(b) for b in wide.columns]
+            rows = [[method, strategy, *[num(v) for v in vals]]
+                    for (method, strategy), vals in zip(wide.index, wide.to_numpy(),
+                                                        strict=True)]
+            label = METRIC_LABELS.get(metric, metric)
+            s.table(Table(["method", "strategy", *[f"{count(b)} labels" for b in budgets]],
+                          rows, caption=f"Mean {label} on the holdout over repeats, by "
+                                        "training-label budget (from curves.csv)"))
+    timing = study.get("timing") if isinstance(study.get("timing"), Mapping) else {}
+    if timing.get("cells_seconds_total") is not None:
+        s.para(f"Compute time of all cells: {num(timing['cells_seconds_total'], 0)} s "
+               "(summed over workers, from study.json).", "note")
     bad = cells[cells["status"].astype(str).str.lower() != "ok"]
     if not bad.empty:
         s.heading("Cells that did not finish")
@@ -296,38 +377,52 @@ def _methods_section(cells, curves, plan) -> Section:
     return s
 
 
-def _plan_section(plan: Mapping | None, study_dir: Path) -> Section:
+def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Section:
     s = Section("plan", "Plan and backtest")
     if not plan:
         s.para("No plan.json yet. Run 'semisup plan "
                f"{study_dir} --target METRIC=VALUE --cost-per-label X' to choose a budget, "
                "method and selection strategy, then run 'semisup report' again.", "note")
         return s
-    s.decision(_decision_lines(plan), plan.get("chosen") is not None)
-    s.para("Predicted: the fitted curve at that budget, with its bootstrap interval. Probability: "
+    s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
+    kind = interval_name(plan.get("interval"), "bootstrap")
+    s.para(f"Predicted: the fitted curve at that budget, with its {kind}. Probability: "
            "the share of bootstrap curves (repeats resampled, the holdout's sampling error "
            "added when its size is known) whose predicted metric meets the target. Cost: "
            "labels still to buy times the expected price per label, plus the price of each "
-           "labeling round.", "note")
+           "labeling round" + (f", in {currency}" if currency else "") + ".", "note")
     options = list(plan.get("options") or [])
     chosen = plan.get("chosen") or {}
     key = (chosen.get("method"), chosen.get("strategy"), chosen.get("n_labels"))
-    options.sort(key=lambda o: (float(o.get("cost") or 0), o.get("n_labels") or 0))
+    confidence = float(plan.get("confidence") or 0)
+
+    def reaches(o: Mapping) -> bool:
+        return float(o.get("probability") or 0) >= confidence
+
+    # Options that reach the target with the asked confidence, cheapest first; then the
+    # others, most likely first (ordering only).
+    options.sort(key=lambda o: (not reaches(o),
+                                float(o.get("cost") or 0) if reaches(o)
+                                else -float(o.get("probability") or 0),
+                                o.get("n_labels") or 0))
     rows, hl = [], set()
     for i, o in enumerate(options[:_MAX_OPTIONS]):
         p = o.get("predicted") or {}
         if (o.get("method"), o.get("strategy"), o.get("n_labels")) == key:
             hl.add(i)
-        rows.append([o.get("method"), o.get("strategy"), o.get("n_labels"), p.get("mean"),
-                     p.get("low"), p.get("high"), o.get("probability"), o.get("cost"),
-                     bool(o.get("extrapolated"))])
+        rows.append([o.get("method"), o.get("strategy"), count(o.get("n_labels")),
+                     num(p.get("mean")), span(p.get("low"), p.get("high")),
+                     percent(o.get("probability")), money(o.get("cost"), currency),
+                     "yes" if o.get("extrapolated") else "no"])
     if rows:
         more = len(options) - len(rows)
-        s.table(Table(["method", "strategy", "labels", "predicted", "low", "high",
-                       "probability", "cost", "extrapolated"], rows, hl,
-                      caption="Options, cheapest first (the plan's choice highlighted)"
-                      + (f"; {more} more in plan.json" if more > 0 else ""),
-                      formats={6: ".2f", 7: ",.2f"}))
+        brief = interval_name(plan.get("interval"), "bootstrap", brief=True)
+        s.table(Table(["method", "strategy", "training labels", "predicted", brief,
+                       "probability of meeting the target", "cost", "extrapolated"], rows, hl,
+                      caption="Options: those that reach the target with the confidence asked "
+                              "for, cheapest first, then the others, most likely first (the "
+                              "plan's choice highlighted)"
+                      + (f"; {more} more in plan.json" if more > 0 else "")))
     bt = plan.get("backtest") or []
     if bt:
         s.heading("Backtest: refit without the largest budget, predict it")
@@ -335,15 +430,30 @@ def _plan_section(plan: Mapping | None, study_dir: Path) -> Section:
         for b in bt:
             p = b.get("predicted") or {}
             covered = b.get("covered")
-            brow.append([b.get("method"), b.get("strategy"), b.get("n_labels"), p.get("mean"),
-                         p.get("low"), p.get("high"), b.get("measured"), b.get("error"),
+            err = b.get("error")
+            brow.append([b.get("method"), b.get("strategy"), count(b.get("n_labels")),
+                         num(p.get("mean")), span(p.get("low"), p.get("high")),
+                         num(b.get("measured")),
+                         f"{float(err):+.3f}" if isinstance(err, (int, float)) else "\u2013",
                          "not possible: " + str(b.get("reason")) if covered is None
                          else ("yes" if covered else "NO")])
-        s.table(Table(["method", "strategy", "labels", "predicted", "low", "high", "measured",
-                       "error", "interval covered"], brow))
+        s.table(Table(["method", "strategy", "training labels", "predicted",
+                       interval_name(plan.get("interval"), "bootstrap", brief=True),
+                       "measured mean", "error", "interval covered"], brow))
         s.para("A curve whose interval did not cover its own held-back budget should not be "
                "trusted far beyond the measured range.", "note")
     return s
+
+
+def _evidence_section(plan: Mapping | None, study: Mapping, study_dir: Path) -> Section | None:
+    """The plan's evidence, when ``semisup.report._evidence`` is installed: its
+    ``evidence_section(plan, study, study_dir)`` returns a :class:`Section` (or None)."""
+    name = f"{__package__}._evidence"
+    if not plan or importlib.util.find_spec(name) is None:
+        return None
+    module = importlib.import_module(name)
+    builder = getattr(module, "evidence_section", None)
+    return builder(plan, study, study_dir) if callable(builder) else None
 
 
 def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None) -> Section:
@@ -357,13 +467,16 @@ def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None) -> Sec
     strategy = ((plan or {}).get("label_next") or {}).get("strategy")
     if strategy:
         s.para(f"Selection strategy: {strategy}. Send these rows to the annotators in this "
-               "order.")
+               "order (rank 1 first).")
+    s.para(_REASONS, "note")
     cols = [c for c in ("rank", "row_id", "reason") if c in label_next.columns]
     head = label_next[cols].head(_MAX_LABEL_ROWS)
     rows = [[_cell(v) for v in r] for r in head.itertuples(index=False)]
     more = len(label_next) - len(head)
-    s.table(Table(cols, rows, caption=f"first {len(head)} of {len(label_next)} rows"
-                                      + (f"; {more} more in label_next.csv" if more else "")))
+    names = {"rank": "rank", "row_id": "row id", "reason": "reason"}
+    s.table(Table([names[c] for c in cols], rows,
+                  caption=f"first {len(head)} of {len(label_next)} rows"
+                  + (f"; {more} more in label_next.csv" if more else "")))
     return s
 
 
@@ -379,9 +492,9 @@ def _protocol_section(study: Mapping) -> Section:
     s = Section("protocol", "Protocol")
     protocol = study.get("protocol")
     if isinstance(protocol, (list, tuple)) and protocol:
-        s.bullets([_short(p) for p in protocol])
+        s.bullets([short(p, 600) for p in protocol])
     elif isinstance(protocol, Mapping) and protocol:
-        s.table(Table(["item", "value"], _pairs(protocol)))
+        s.table(Table(["item", "value"], pairs(protocol)))
     elif isinstance(protocol, str) and protocol:
         s.para(protocol)
     else:
@@ -389,18 +502,32 @@ def _protocol_section(study: Mapping) -> Section:
     spec = study.get("spec")
     if isinstance(spec, Mapping) and spec:
         s.heading("Study settings")
-        s.table(Table(["setting", "value"], _pairs(spec, limit=40)))
+        s.table(Table(["setting", "value"], pairs(spec, limit=40)))
     rep = _find(study, "representation", "representations")
     if isinstance(rep, Mapping) and rep:
+        diag = rep.get("diagnostics") if isinstance(rep.get("diagnostics"), Mapping) else rep
+        errors = rep.get("errors") if diag is not rep else None
         s.heading("Unsupervised stage diagnostics")
-        s.table(Table(["item", "value"], _pairs(rep)))
+        s.table(Table(["item", "value"], pairs(diag, limit=60)))
+        if isinstance(errors, Mapping) and errors:
+            s.bullets([f"{k}: {short(v, 300)}" for k, v in errors.items()], "warn")
     return s
 
 
-def write_report(study_dir: str | os.PathLike[str]) -> Path:
-    """Write ``report.html`` (one self-contained file) and ``figures/*.png`` for a study.
+def _title(study: Mapping, study_dir: Path) -> str:
+    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
+    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    source = data.get("source") or spec.get("data")
+    if source:
+        return f"Label-budget study of {Path(str(source)).name}"
+    return f"Label-budget study in {study_dir.resolve().name}"
 
-    Works with or without a plan (``plan.json``); returns the path of the HTML file.
+
+def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Path:
+    """Write ``report.html`` (one self-contained file) and ``figures/*.png`` / ``*.svg``.
+
+    Works with or without a plan (``plan.json``); ``currency`` (e.g. "EUR") is written
+    before every price. Returns the path of the HTML file.
     """
     study_dir = Path(study_dir)
     if not study_dir.is_dir():
@@ -417,8 +544,9 @@ def write_report(study_dir: str | os.PathLike[str]) -> Path:
     if cells is None and not study:
         raise StoreError(f"{study_dir} has neither cells.csv nor study.json; run "
                          "'semisup study' first")
+    currency = currency.strip()
     facts = study_facts(study, card)
-    curves = _curves_table(study_dir, cells)
+    curves = _curves_table(study_dir)
     label_next = _read_csv(study_dir / "label_next.csv")
 
     figures: list[Path] = []
@@ -432,22 +560,25 @@ def write_report(study_dir: str | os.PathLike[str]) -> Path:
                 "is an extrapolation")
         if not any("extrapolat" in w for w in warnings):
             warnings.append(note)
+    evidence = _evidence_section(plan, study, study_dir)
     sections = [
-        _summary_section(study_dir, study, facts, cells, plan),
+        _summary_section(study_dir, study, facts, cells, curves, plan, card, currency),
         _card_section(card, study),
-        _curves_section(curves, plan, study_dir / "figures", figures),
-        _methods_section(cells, curves, plan),
-        _plan_section(plan, study_dir),
+        _curves_section(curves, plan, study, facts, study_dir / "figures", figures, currency),
+        _methods_section(cells, curves, plan, study, card),
+        _plan_section(plan, study_dir, currency),
+        *([evidence] if evidence is not None else []),
         _label_section(label_next, plan),
         _protocol_section(study),
-        Section("warnings", "Warnings").bullets(warnings or ["none"], "warn"),
+        Section("warnings", "Warnings").bullets([warning_text(w) for w in warnings]
+                                                or ["None."], "warn"),
         Section("cautions", "Cautions").bullets(CAUTIONS, "caution"),
     ]
     content = ReportContent(
-        title=f"Label-budget study: {study_dir.resolve().name}",
+        title=_title(study, study_dir),
         subtitle=f"semisup {__version__} report of the study folder {study_dir}",
         sections=sections,
     )
     out = atomic_write_text(study_dir / "report.html", render_html(content))
-    log.info("report written to %s (%d figures)", out, len(figures))
+    log.info("report written to %s (%d figure files)", out, len(figures))
     return out
