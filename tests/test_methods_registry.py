@@ -189,3 +189,57 @@ def test_few_label_calibration_uses_the_folds_the_labels_allow():
     single = FewLabelCalibratedClassifier(SVC(), max_folds=3).fit(X1[y1 >= 0], y1[y1 >= 0])
     assert not single.calibrated_
     np.testing.assert_allclose(single.predict_proba(X1).sum(axis=1), 1.0)
+
+
+def test_one_call_registers_raw_and_latent_variants():
+    # The class declares its defaults and search space once; every variant reuses them.
+    from semisup.methods._spec import _DEFAULTS, _REGISTRY, Variant, register_variants
+
+    class Probe(LabeledLogReg):
+        tuning_defaults = {"C": 0.5}
+
+        @staticmethod
+        def tuning_space(trial):
+            return {"C": trial.suggest_float("C", 0.1, 1.0)}
+
+    try:
+        raw, latent = register_variants(
+            Probe, raw=Variant("probe-raw", "probe"), vae=Variant("probe-latent", "probe",
+                                                                   default=500))
+        assert (raw.representation, raw.semi_supervised, raw.family) == ("raw", False,
+                                                                         "supervised")
+        assert (latent.representation, latent.semi_supervised, latent.family) == (
+            "vae", True, "latent")
+        assert raw.default_params == latent.default_params == {"C": 0.5}
+        assert raw.search_space is Probe.tuning_space
+        assert latent.build({}, 0).C == 0.5 and isinstance(latent.build({"C": 2.0}, 0), Probe)
+        assert "probe-latent" not in default_methods()
+        assert "probe-latent" not in default_methods(pool_size=499)
+        assert "probe-latent" in default_methods(pool_size=500)
+        with pytest.raises(ConfigError, match="representation"):
+            register_variants(Probe, pca=Variant("probe-pca", "probe"))
+    finally:
+        for name in ("probe-raw", "probe-latent"):
+            _REGISTRY.pop(name, None)
+            _DEFAULTS.pop(name, None)
+
+
+def test_registry_modules_import_one_way():
+    # _spec is the leaf: it imports nothing of semisup.methods, so no import cycle can form
+    # through it; the estimator modules never import the look-up module _registry.
+    import ast
+    from pathlib import Path
+
+    import semisup.methods as pkg
+
+    root = Path(pkg.__file__).parent
+
+    def relative_imports(name):
+        tree = ast.parse((root / name).read_text())
+        return {(node.module or "") for node in ast.walk(tree)
+                if isinstance(node, ast.ImportFrom) and node.level == 1}
+
+    assert relative_imports("_spec.py") == set()
+    for module in root.glob("_*.py"):
+        if module.name not in ("_registry.py", "__init__.py"):
+            assert "_registry" not in relative_imports(module.name), module.name

@@ -9,6 +9,7 @@
 from __future__ import annotations
 
 import warnings
+from typing import ClassVar
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
@@ -18,6 +19,7 @@ from sklearn.semi_supervised import LabelSpreading, SelfTrainingClassifier
 from .._errors import FitWarning
 from ._base import PartiallyLabeledClassifier
 from ._calibration import FewLabelCalibratedClassifier
+from ._spec import Variant, register_variants
 
 __all__ = ["CalibratedSelfTraining", "KNNLabelSpreading"]
 
@@ -36,6 +38,14 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
     """
 
     uses_unlabeled = True
+    tuning_defaults: ClassVar[dict] = {"n_neighbors": 7, "alpha": 0.2}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "n_neighbors": trial.suggest_int("n_neighbors", 3, 20),
+            "alpha": trial.suggest_float("alpha", 0.05, 0.9),
+        }
 
     def __init__(self, n_neighbors: int = 7, alpha: float = 0.2, max_iter: int = 30,
                  tol: float = 1e-3):
@@ -84,6 +94,14 @@ class CalibratedSelfTraining(PartiallyLabeledClassifier):
     """
 
     uses_unlabeled = True
+    tuning_defaults: ClassVar[dict] = {"C": 1.0, "threshold": 0.75, "max_iter": 5}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "C": trial.suggest_float("C", 1e-2, 1e2, log=True),
+            "threshold": trial.suggest_float("threshold", 0.6, 0.99),
+        }
 
     def __init__(self, C: float = 1.0, threshold: float = 0.75, max_iter: int = 10,
                  max_folds: int = 3):
@@ -109,3 +127,17 @@ class CalibratedSelfTraining(PartiallyLabeledClassifier):
         out = np.zeros((X.shape[0], self.classes_.size))
         out[:, self.model_.classes_.astype(int)] = proba
         return out
+
+
+register_variants(
+    KNNLabelSpreading,
+    raw=Variant("label-spreading", "Label spreading on a k-nearest-neighbour graph of the "
+                "encoded table", default=True),
+    vae=Variant("latent-spreading", "Label spreading on a k-nearest-neighbour graph in the VAE "
+                "latent space", default=True),
+)
+register_variants(
+    CalibratedSelfTraining,
+    raw=Variant("self-training", "Self-training around a calibrated logistic regression on the "
+                "encoded table"),
+)

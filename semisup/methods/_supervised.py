@@ -6,6 +6,8 @@ the VAE latent means or the mixture features as ``X`` instead of the encoded tab
 
 from __future__ import annotations
 
+from typing import ClassVar
+
 import numpy as np
 from sklearn.ensemble import HistGradientBoostingClassifier
 from sklearn.linear_model import LogisticRegression
@@ -14,6 +16,7 @@ from sklearn.svm import SVC
 
 from ._base import PartiallyLabeledClassifier
 from ._calibration import FewLabelCalibratedClassifier
+from ._spec import Variant, register_variants
 
 __all__ = ["LabeledGBT", "LabeledKNN", "LabeledLogReg", "LabeledSVM"]
 
@@ -28,6 +31,12 @@ class LabeledLogReg(PartiallyLabeledClassifier):
     max_iter : int
         lbfgs iterations.
     """
+
+    tuning_defaults: ClassVar[dict] = {"C": 1.0}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {"C": trial.suggest_float("C", 1e-3, 1e2, log=True)}
 
     def __init__(self, C: float = 1.0, max_iter: int = 500):
         self.C = C
@@ -46,6 +55,18 @@ class LabeledGBT(PartiallyLabeledClassifier):
 
     ``min_samples_leaf`` is capped at half the labeled rows so tiny budgets still split.
     """
+
+    tuning_defaults: ClassVar[dict] = {"learning_rate": 0.1, "max_iter": 50,
+                                       "max_leaf_nodes": 15, "min_samples_leaf": 5}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "learning_rate": trial.suggest_float("learning_rate", 0.03, 0.3, log=True),
+            "max_iter": trial.suggest_int("max_iter", 20, 100),
+            "max_leaf_nodes": trial.suggest_int("max_leaf_nodes", 4, 31),
+            "min_samples_leaf": trial.suggest_int("min_samples_leaf", 1, 20),
+        }
 
     def __init__(
         self,
@@ -83,6 +104,15 @@ class LabeledGBT(PartiallyLabeledClassifier):
 class LabeledKNN(PartiallyLabeledClassifier):
     """k-nearest neighbours on the labeled rows; k is capped at the number of labeled rows."""
 
+    tuning_defaults: ClassVar[dict] = {"n_neighbors": 5, "weights": "distance"}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "n_neighbors": trial.suggest_int("n_neighbors", 1, 15),
+            "weights": trial.suggest_categorical("weights", ["uniform", "distance"]),
+        }
+
     def __init__(self, n_neighbors: int = 5, weights: str = "distance"):
         self.n_neighbors = n_neighbors
         self.weights = weights
@@ -112,6 +142,15 @@ class LabeledSVM(PartiallyLabeledClassifier):
         Most calibration folds.
     """
 
+    tuning_defaults: ClassVar[dict] = {"C": 10.0, "gamma_factor": 1.0}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "C": trial.suggest_float("C", 0.1, 100.0, log=True),
+            "gamma_factor": trial.suggest_float("gamma_factor", 0.1, 10.0, log=True),
+        }
+
     def __init__(self, C: float = 1.0, gamma_factor: float = 1.0, max_folds: int = 3):
         self.C = C
         self.gamma_factor = gamma_factor
@@ -125,3 +164,29 @@ class LabeledSVM(PartiallyLabeledClassifier):
 
     def _proba_encoded(self, X):
         return self.model_.predict_proba(X)
+
+
+register_variants(
+    LabeledLogReg,
+    raw=Variant("supervised-logreg", "Logistic regression on the labeled rows of the encoded "
+                "table", default=True),
+    vae=Variant("latent-logreg", "Logistic regression on the VAE latent means (M1)",
+                default=True),
+    mixture=Variant("mixture-logreg", "Logistic regression on the Gaussian-mixture features"),
+)
+register_variants(
+    LabeledGBT,
+    raw=Variant("supervised-gbt", "Histogram gradient-boosted trees on the labeled rows of the "
+                "encoded table"),
+)
+register_variants(
+    LabeledKNN,
+    raw=Variant("supervised-knn", "k-nearest neighbours on the labeled rows of the encoded table"),
+    vae=Variant("latent-knn", "k-nearest neighbours on the VAE latent means (M1)"),
+)
+register_variants(
+    LabeledSVM,
+    raw=Variant("supervised-svm", "RBF support-vector machine (few-label Platt calibration) on "
+                "the labeled rows", default=True),
+    vae=Variant("latent-svm", "RBF support-vector machine on the VAE latent means (M1)"),
+)
