@@ -15,7 +15,7 @@ from __future__ import annotations
 from .._errors import ConfigError
 
 # The estimator modules register their methods on import (order = registration order).
-from . import _classic, _mixture_em, _supervised  # noqa: F401
+from . import _classic, _m2, _mixture_em, _supervised  # noqa: F401
 from ._spec import MethodSpec, MethodUnavailable, default_rules, register, registered
 
 __all__ = [
@@ -49,8 +49,8 @@ def default_methods(*, pool_size: int | None = None) -> list[str]:
     Parameters
     ----------
     pool_size : int or None
-        Rows of the study's pool. Methods that need a large pool to be tuned (their
-        registration names the smallest pool) join only when ``pool_size`` reaches it; None
+        Labeled rows of the study. Methods that need many labels to be tuned (their
+        registration names the smallest count) join only when ``pool_size`` reaches it; None
         leaves them out.
     """
     table = registered()

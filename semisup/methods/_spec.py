@@ -120,8 +120,8 @@ class Variant:
         None: ``supervised`` / ``classic-ssl`` on the raw table (by whether the estimator uses
         unlabeled rows) and ``latent`` on a pretrained representation.
     default : bool or int
-        True puts the method in the default set; an int ``n`` puts it there when the pool has
-        at least ``n`` rows; False (the default) leaves it out.
+        True puts the method in the default set; an int ``n`` puts it there when the study has
+        at least ``n`` labeled rows; False (the default) leaves it out.
     params : dict
         Overrides of the class's ``tuning_defaults`` for this variant only.
     search_space : callable or None
