@@ -158,7 +158,8 @@ def test_supervised_baseline_drops_unlabeled_rows_like_sklearn():
 def test_label_spreading_matches_sklearn():
     # Source: scikit-learn LabelSpreading(kernel="knn") on the same partially labeled rows.
     X, _, y_partial = _iris_partial(per_class=4)
-    ours = KNNLabelSpreading(n_neighbors=5, alpha=0.3).fit(X, y_partial).predict_proba(X)
+    ours = KNNLabelSpreading(n_neighbors=5, alpha=0.3, scaling="none").fit(X, y_partial)
+    ours = ours.predict_proba(X)
     ref = LabelSpreading(kernel="knn", n_neighbors=5, alpha=0.3).fit(X, y_partial)
     with np.errstate(invalid="ignore"):
         expected = ref.predict_proba(X)
@@ -189,3 +190,134 @@ def test_few_label_calibration_uses_the_folds_the_labels_allow():
     single = FewLabelCalibratedClassifier(SVC(), max_folds=3).fit(X1[y1 >= 0], y1[y1 >= 0])
     assert not single.calibrated_
     np.testing.assert_allclose(single.predict_proba(X1).sum(axis=1), 1.0)
+
+
+def test_one_call_registers_raw_and_latent_variants():
+    # The class declares its defaults and search space once; every variant reuses them.
+    from semisup.methods._spec import _DEFAULTS, _REGISTRY, Variant, register_variants
+
+    class Probe(LabeledLogReg):
+        tuning_defaults = {"C": 0.5}
+
+        @staticmethod
+        def tuning_space(trial):
+            return {"C": trial.suggest_float("C", 0.1, 1.0)}
+
+    try:
+        raw, latent = register_variants(
+            Probe, raw=Variant("probe-raw", "probe"), vae=Variant("probe-latent", "probe",
+                                                                   default=500))
+        assert (raw.representation, raw.semi_supervised, raw.family) == ("raw", False,
+                                                                         "supervised")
+        assert (latent.representation, latent.semi_supervised, latent.family) == (
+            "vae", True, "latent")
+        assert raw.default_params == latent.default_params == {"C": 0.5}
+        assert raw.search_space is Probe.tuning_space
+        assert latent.build({}, 0).C == 0.5 and isinstance(latent.build({"C": 2.0}, 0), Probe)
+        assert "probe-latent" not in default_methods()
+        assert "probe-latent" not in default_methods(pool_size=499)
+        assert "probe-latent" in default_methods(pool_size=500)
+        with pytest.raises(ConfigError, match="representation"):
+            register_variants(Probe, pca=Variant("probe-pca", "probe"))
+    finally:
+        for name in ("probe-raw", "probe-latent"):
+            _REGISTRY.pop(name, None)
+            _DEFAULTS.pop(name, None)
+
+
+def test_registry_modules_import_one_way():
+    # _spec is the leaf: it imports nothing of semisup.methods, so no import cycle can form
+    # through it; the estimator modules never import the look-up module _registry.
+    import ast
+    from pathlib import Path
+
+    import semisup.methods as pkg
+
+    root = Path(pkg.__file__).parent
+
+    def relative_imports(name):
+        tree = ast.parse((root / name).read_text())
+        return {(node.module or "") for node in ast.walk(tree)
+                if isinstance(node, ast.ImportFrom) and node.level == 1}
+
+    assert relative_imports("_spec.py") == set()
+    for module in root.glob("_*.py"):
+        if module.name not in ("_registry.py", "__init__.py"):
+            assert "_registry" not in relative_imports(module.name), module.name
+
+
+def test_svm_temperature_calibration_keeps_the_svms_own_classes():
+    # Source: scikit-learn's SVC fitted directly (its decision_function arg-max is the class),
+    # cross_val_predict for the out-of-fold scores and sklearn.metrics.log_loss for the loss
+    # the temperature minimises (Guo et al. 2017 temperature scaling), on scikit-learn's
+    # bundled digits with 2 labels per class (the few-label, many-class case).
+    from scipy.special import softmax
+    from sklearn.datasets import load_digits
+    from sklearn.metrics import log_loss
+    from sklearn.model_selection import StratifiedKFold, cross_val_predict
+    from sklearn.svm import SVC
+
+    from semisup.methods import LabeledSVM
+
+    X, y = load_digits(return_X_y=True)
+    X = (X - X.mean(0)) / np.maximum(X.std(0), 1e-12)
+    rng = np.random.default_rng(0)
+    y_partial = np.full_like(y, -1)
+    for c in range(10):
+        y_partial[rng.choice(np.flatnonzero(y == c), 2, replace=False)] = c
+    svm = LabeledSVM(C=10.0).fit(X, y_partial)
+    mask = y_partial >= 0
+    gamma = 1.0 / (X.shape[1] * X[mask].var())
+    ref = SVC(C=10.0, gamma=gamma).fit(X[mask], y_partial[mask])
+    np.testing.assert_array_equal(svm.predict(X), ref.decision_function(X).argmax(1))
+    held = cross_val_predict(SVC(C=10.0, gamma=gamma), X[mask], y_partial[mask],
+                             cv=StratifiedKFold(2), method="decision_function")
+    t = svm.model_.temperature_
+    grid = np.exp(np.linspace(-5, 5, 2001))
+    losses = [log_loss(y_partial[mask], softmax(held / g, axis=1), labels=range(10))
+              for g in grid]
+    assert log_loss(y_partial[mask], softmax(held / t, axis=1), labels=range(10)) <= min(
+        losses) + 1e-6
+    np.testing.assert_allclose(svm.predict_proba(X), softmax(ref.decision_function(X) / t,
+                                                             axis=1), atol=1e-10)
+
+
+def test_gbt_joins_the_default_set_only_with_many_labels():
+    from semisup.methods._supervised import GBT_DEFAULT_LABELED
+
+    assert "supervised-gbt" not in default_methods()
+    assert "supervised-gbt" not in default_methods(pool_size=GBT_DEFAULT_LABELED - 1)
+    big = default_methods(pool_size=GBT_DEFAULT_LABELED)
+    assert set(big) - set(default_methods()) == {"supervised-gbt"}
+
+
+def test_label_spreading_minmax_graph_matches_sklearn_on_scaled_rows():
+    # Source: scikit-learn MinMaxScaler then LabelSpreading(kernel="knn") on scikit-learn's
+    # digits; and the goal that the registered method is not worse than
+    # LabelSpreading on the raw pixels when it is handed standardised pixels (the encoded
+    # table), here at 50 labels, mean of 3 stratified draws.
+    from sklearn.datasets import load_digits
+    from sklearn.preprocessing import MinMaxScaler, StandardScaler
+
+    X_raw, y = load_digits(return_X_y=True)
+    X = StandardScaler().fit_transform(X_raw)
+    ours_acc, ref_acc = [], []
+    for seed in range(3):
+        rng = np.random.default_rng(seed)
+        y_partial = np.full_like(y, -1)
+        for c in range(10):
+            y_partial[rng.choice(np.flatnonzero(y == c), 5, replace=False)] = c
+        est = get_method("label-spreading").build(get_method("label-spreading").default_params,
+                                                  0).fit(X, y_partial)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            X_scaled = MinMaxScaler().fit_transform(X)
+            expected = LabelSpreading(kernel="knn").fit(X_scaled, y_partial).predict_proba(
+                X_scaled)
+            raw = LabelSpreading(kernel="knn").fit(X_raw, y_partial).predict(X_raw)
+        reached = np.all(np.isfinite(expected), axis=1)
+        np.testing.assert_allclose(est.predict_proba(X)[reached], expected[reached],
+                                   atol=1e-8)
+        unl = y_partial < 0
+        ours_acc.append(np.mean(est.predict(X)[unl] == y[unl]))
+        ref_acc.append(np.mean(raw[unl] == y[unl]))
+    assert np.mean(ours_acc) >= np.mean(ref_acc) - 0.01

@@ -25,6 +25,8 @@ _SMALL = {
     "self-training": {"max_iter": 2},
     "mixture-em": {"max_iter": 30, "n_init": 1},
     "latent-mixture-em": {"max_iter": 30, "n_init": 1},
+    "m2": {"max_epochs": 20, "hidden": 16},
+    "m1-m2": {"max_epochs": 20, "hidden": 16},
 }
 
 # Checks every method is expected to fail, with the reason.

@@ -10,6 +10,7 @@ from __future__ import annotations
 from ._base import PartiallyLabeledClassifier, labeled_mask
 from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
+from ._m2 import M2Classifier
 from ._mixture_em import MixtureEMClassifier
 from ._proba import align_proba
 from ._registry import (
@@ -30,6 +31,7 @@ __all__ = [
     "LabeledKNN",
     "LabeledLogReg",
     "LabeledSVM",
+    "M2Classifier",
     "MethodSpec",
     "MethodUnavailable",
     "MixtureEMClassifier",

@@ -15,7 +15,7 @@ from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
-from ._registry import MethodUnavailable
+from ._spec import MethodUnavailable
 
 __all__ = ["PartiallyLabeledClassifier", "UNLABELED", "labeled_mask"]
 

@@ -9,17 +9,22 @@
 from __future__ import annotations
 
 import warnings
+from typing import ClassVar
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.linear_model import LogisticRegression
+from sklearn.preprocessing import MinMaxScaler
 from sklearn.semi_supervised import LabelSpreading, SelfTrainingClassifier
 
-from .._errors import FitWarning
+from .._errors import ConfigError, FitWarning
 from ._base import PartiallyLabeledClassifier
 from ._calibration import FewLabelCalibratedClassifier
+from ._spec import Variant, register_variants
 
 __all__ = ["CalibratedSelfTraining", "KNNLabelSpreading"]
+
+SCALINGS = ("minmax", "none")
 
 
 class KNNLabelSpreading(PartiallyLabeledClassifier):
@@ -33,18 +38,45 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
         How far labels may move from their given values per iteration (clamping factor).
     max_iter : int
     tol : float
+    scaling : {"minmax", "none"}
+        Feature scaling of the graph, fitted on the rows given to ``fit`` (labeled and
+        unlabeled): ``"minmax"`` maps every column onto [0, 1] (scikit-learn's
+        ``MinMaxScaler``), ``"none"`` uses ``X`` as given. The encoded table's numeric columns
+        arrive standardised, which blows up nearly constant columns (a border pixel inked in a
+        few rows) until they dominate the neighbours; min-max scaling does not depend on the
+        standard deviation, so it undoes that. On scikit-learn's digits (4 draws, 20/50/100
+        labels) spreading on the standardised pixels reached 0.657 / 0.885 / 0.929, on the
+        raw pixels 0.735 / 0.916 / 0.940 and on min-max scaled standardised pixels 0.730 /
+        0.917 / 0.938.
     """
 
     uses_unlabeled = True
+    tuning_defaults: ClassVar[dict] = {"n_neighbors": 7, "alpha": 0.2, "scaling": "minmax"}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "n_neighbors": trial.suggest_int("n_neighbors", 3, 20),
+            "alpha": trial.suggest_float("alpha", 0.05, 0.9),
+            "scaling": trial.suggest_categorical("scaling", list(SCALINGS)),
+        }
 
     def __init__(self, n_neighbors: int = 7, alpha: float = 0.2, max_iter: int = 30,
-                 tol: float = 1e-3):
+                 tol: float = 1e-3, scaling: str = "minmax"):
         self.n_neighbors = n_neighbors
         self.alpha = alpha
         self.max_iter = max_iter
         self.tol = tol
+        self.scaling = scaling
 
     def _fit_encoded(self, X, y_code):
+        if self.scaling not in SCALINGS:
+            raise ConfigError(
+                f"KNNLabelSpreading: scaling={self.scaling!r} is not one of "
+                f"{', '.join(SCALINGS)}"
+            )
+        self.scaler_ = MinMaxScaler().fit(X) if self.scaling == "minmax" else None
+        X = self._scaled(X)
         k = int(max(1, min(self.n_neighbors, X.shape[0] - 1)))
         model = LabelSpreading(kernel="knn", n_neighbors=k, alpha=self.alpha,
                                max_iter=self.max_iter, tol=self.tol)
@@ -61,9 +93,13 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
         self.model_ = model
         self.n_iter_ = int(model.n_iter_)
 
+    def _scaled(self, X):
+        return X if self.scaler_ is None else self.scaler_.transform(X)
+
     def _proba_encoded(self, X):
         with np.errstate(invalid="ignore", divide="ignore"):
-            return self.model_.predict_proba(X)  # columns are codes 0..n_classes-1
+            # columns are codes 0..n_classes-1
+            return self.model_.predict_proba(self._scaled(X))
 
 
 class CalibratedSelfTraining(PartiallyLabeledClassifier):
@@ -84,6 +120,14 @@ class CalibratedSelfTraining(PartiallyLabeledClassifier):
     """
 
     uses_unlabeled = True
+    tuning_defaults: ClassVar[dict] = {"C": 1.0, "threshold": 0.75, "max_iter": 5}
+
+    @staticmethod
+    def tuning_space(trial) -> dict:
+        return {
+            "C": trial.suggest_float("C", 1e-2, 1e2, log=True),
+            "threshold": trial.suggest_float("threshold", 0.6, 0.99),
+        }
 
     def __init__(self, C: float = 1.0, threshold: float = 0.75, max_iter: int = 10,
                  max_folds: int = 3):
@@ -109,3 +153,18 @@ class CalibratedSelfTraining(PartiallyLabeledClassifier):
         out = np.zeros((X.shape[0], self.classes_.size))
         out[:, self.model_.classes_.astype(int)] = proba
         return out
+
+
+register_variants(
+    KNNLabelSpreading,
+    raw=Variant("label-spreading", "Label spreading on a k-nearest-neighbour graph of the "
+                "encoded table", default=True),
+    # The VAE latent means are not standardised per column: the latent variant keeps them.
+    vae=Variant("latent-spreading", "Label spreading on a k-nearest-neighbour graph in the VAE "
+                "latent space", default=True, params={"scaling": "none"}),
+)
+register_variants(
+    CalibratedSelfTraining,
+    raw=Variant("self-training", "Self-training around a calibrated logistic regression on the "
+                "encoded table"),
+)

@@ -14,7 +14,8 @@ Memory is O(n_samples * n_components): nothing is ever n_samples x n_samples.
 
 Covariance layouts follow the usual conventions: ``full`` (K, d, d), ``tied`` (d, d),
 ``diag`` (K, d), ``spherical`` (K,). ``reg_covar`` is added to every variance after the
-M-step (a ridge that keeps covariances positive definite).
+M-step (a ridge that keeps covariances positive definite). The Gaussian log-density itself is
+:func:`semisup.pretrain.component_log_densities` (one implementation for the package).
 """
 
 from __future__ import annotations
@@ -24,20 +25,18 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import linalg
 
+from ..pretrain._mixture import COVARIANCE_TYPES, component_log_densities
+
 __all__ = [
     "COVARIANCE_TYPES",
     "EMResult",
     "e_step",
-    "estimate_log_gaussian_prob",
     "m_step",
     "precision_cholesky",
     "row_logsumexp",
     "run_em",
     "weighted_objective",
 ]
-
-COVARIANCE_TYPES = ("full", "tied", "diag", "spherical")
-_LOG_2PI = np.log(2.0 * np.pi)
 
 
 def row_logsumexp(a: np.ndarray) -> np.ndarray:
@@ -68,42 +67,6 @@ def precision_cholesky(covariances: np.ndarray, covariance_type: str) -> np.ndar
     return 1.0 / np.sqrt(covariances)
 
 
-def estimate_log_gaussian_prob(
-    X: np.ndarray, means: np.ndarray, prec_chol: np.ndarray, covariance_type: str
-) -> np.ndarray:
-    """``log N(x_i | mu_k, Sigma_k)`` for every row and component, shape (n_samples, K)."""
-    n, d = X.shape
-    K = means.shape[0]
-    if covariance_type == "full":
-        maha = np.empty((n, K))
-        log_det = np.empty(K)
-        for k in range(K):
-            z = (X - means[k]) @ prec_chol[k]  # (n, d)
-            maha[:, k] = np.einsum("ij,ij->i", z, z)
-            log_det[k] = np.log(np.diag(prec_chol[k])).sum()
-    elif covariance_type == "tied":
-        maha = np.empty((n, K))
-        XP = X @ prec_chol
-        MP = means @ prec_chol
-        for k in range(K):
-            z = XP - MP[k]
-            maha[:, k] = np.einsum("ij,ij->i", z, z)
-        log_det = np.full(K, np.log(np.diag(prec_chol)).sum())
-    elif covariance_type == "diag":
-        prec = prec_chol**2  # (K, d)
-        maha = (X**2) @ prec.T - 2.0 * X @ (means * prec).T + np.sum(means**2 * prec, axis=1)
-        maha = np.maximum(maha, 0.0)
-        log_det = np.log(prec_chol).sum(axis=1)
-    elif covariance_type == "spherical":
-        prec = prec_chol**2  # (K,)
-        sq = (X**2).sum(axis=1)[:, None] - 2.0 * X @ means.T + (means**2).sum(axis=1)[None, :]
-        maha = np.maximum(sq, 0.0) * prec[None, :]
-        log_det = d * np.log(prec_chol)
-    else:
-        raise ValueError(f"covariance_type {covariance_type!r} is not one of {COVARIANCE_TYPES}")
-    return -0.5 * (d * _LOG_2PI + maha) + log_det[None, :]
-
-
 def e_step(
     X: np.ndarray,
     weights: np.ndarray,
@@ -131,7 +94,7 @@ def e_step(
     """
     with np.errstate(divide="ignore"):
         log_weights = np.log(weights)
-    wlp = estimate_log_gaussian_prob(X, means, prec_chol, covariance_type) + log_weights
+    wlp = component_log_densities(X, means, prec_chol, covariance_type) + log_weights
     labeled = np.flatnonzero(row_class >= 0)
     if labeled.size:
         forbid = component_class[None, :] != row_class[labeled][:, None]  # (n_labeled, K)

@@ -75,11 +75,11 @@ def _load_dataset(spec: StudySpec):
     )
 
 
-def _default_method_names() -> list[str]:
+def _default_method_names(pool_size: int | None = None) -> list[str]:
     from .. import methods as m
 
     fn = getattr(m, "default_methods", None)
-    specs = fn() if fn is not None else m.list_methods()
+    specs = fn(pool_size=pool_size) if fn is not None else m.list_methods()
     names = [s if isinstance(s, str) else s.name for s in specs]
     if not names:
         raise ConfigError("no methods are registered; name them with --methods or 'methods'")
@@ -169,7 +169,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
             f"{spec.data}: label column {spec.label_column!r} needs labeled rows of at least "
             "two classes for a study"
         )
-    names = list(spec.methods) if spec.methods else _default_method_names()
+    names = list(spec.methods) if spec.methods else _default_method_names(len(labeled))
     methods = {n: get_method(n) for n in names}
 
     test = None
