@@ -121,3 +121,20 @@ def test_lock_is_held_across_processes_and_freed_after(tmp_path):
         holder.join(60)
     with study_lock(tmp_path / "study"):  # free again once the first study ended
         pass
+
+
+def test_unwritable_study_folder_is_one_clear_error(tmp_path, monkeypatch):
+    import filelock
+
+    def refuse(self, *args, **kwargs):
+        raise PermissionError(13, "Permission denied", str(tmp_path / "ro" / LOCK_FILE))
+
+    monkeypatch.setattr(filelock.FileLock, "acquire", refuse)  # root ignores chmod
+    data = tmp_path / "t.csv"
+    _table().to_csv(data, index=False)
+    with pytest.raises(StoreError) as info:
+        run_study(_spec(data), tmp_path / "ro", jobs=1, progress=False)
+    message = str(info.value)
+    assert "cannot write in the study folder" in message and "ro" in message
+    assert "damaged" not in message and "\n" not in message
+    assert not (tmp_path / "ro" / "study.sqlite").exists()
