@@ -288,7 +288,8 @@ def _card_section(card: Mapping, study: Mapping) -> Section:
         value = card.get(key)
         if isinstance(value, list) and value:
             s.heading(title)
-            s.bullets([short(v) for v in value], "warn" if key == "warnings" else "")
+            s.bullets([warning_text(short(v, 400)) for v in value],
+                      "warn" if key == "warnings" else "")
     return s
 
 
