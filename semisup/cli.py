@@ -7,8 +7,8 @@ value and the fix), 1 internal error. ``--debug`` shows the traceback.
 from __future__ import annotations
 
 import argparse
-import errno
 import dataclasses
+import errno
 import logging
 import os
 import sys
