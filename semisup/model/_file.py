@@ -29,6 +29,7 @@ from typing import Any
 from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
 from ._errors import ModelFileError
+from ._json import read_json
 from ._model import FittedModel, encoder_from_state
 from ._persist import dump_estimator, load_estimator
 
@@ -127,19 +128,10 @@ def read_manifest(path: str | os.PathLike[str]) -> dict[str, Any]:
         raise ModelFileError(f"{folder} is a file, not a semisup model folder; give the folder "
                              "that 'semisup fit --out' wrote")
     manifest_path = folder / "manifest.json"
-    try:
-        text = manifest_path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ModelFileError(f"{folder} is not a semisup model folder (no manifest.json); give "
-                             "the folder that 'semisup fit --out' wrote") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ModelFileError(f"{manifest_path} cannot be read ({type(exc).__name__}); fit the "
-                             "model again") from None
-    try:
-        manifest = json.loads(text)
-    except ValueError as exc:
-        raise ModelFileError(f"{manifest_path} is not valid JSON ({exc.args[0][:60]}); the "
-                             "folder is damaged, fit the model again") from None
+    manifest = read_json(
+        manifest_path, ModelFileError, damaged="the folder is damaged, fit the model again",
+        missing=f"{folder} is not a semisup model folder (no manifest.json); give the folder "
+                "that 'semisup fit --out' wrote")
     if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
         raise ModelFileError(f"{manifest_path} is not a semisup model manifest; give the folder "
                              "that 'semisup fit --out' wrote")

@@ -29,6 +29,7 @@ from .. import __version__
 from .._errors import ConfigError, DataError, StoreError
 from .._seeding import derive_seed
 from ._crossfit import DEFAULT_CUTS, confidence_table, crossfit_proba
+from ._json import read_json
 from ._model import FittedModel, encoder_state
 
 __all__ = ["FLAG_QUANTILE", "FitResult", "fit_model", "read_study"]
@@ -103,24 +104,15 @@ def read_study(study_dir: str | os.PathLike[str]) -> tuple[dict, dict | None]:
         raise StoreError(f"{folder}: no such study folder; give the folder 'semisup study --out' "
                          "wrote")
     path = folder / "study.json"
-    try:
-        info = json.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise StoreError(f"{folder} has no study.json; run 'semisup study' into it first (or "
-                         "give the study's folder)") from None
-    except (OSError, ValueError) as exc:
-        raise StoreError(f"{path} cannot be read ({type(exc).__name__}); run the study again to "
-                         "rewrite it") from None
+    info = read_json(path, StoreError, damaged="run the study again to rewrite it",
+                     missing=f"{folder} has no study.json; run 'semisup study' into it first (or "
+                             "give the study's folder)")
     if not isinstance(info, dict) or not isinstance(info.get("spec"), dict):
         raise StoreError(f"{path} lacks the study spec; run the study again to rewrite it")
     plan = None
     plan_path = folder / "plan.json"
     if plan_path.is_file():
-        try:
-            plan = json.loads(plan_path.read_text(encoding="utf-8"))
-        except (OSError, ValueError) as exc:
-            raise StoreError(f"{plan_path} cannot be read ({type(exc).__name__}); run "
-                             "'semisup plan' again") from None
+        plan = read_json(plan_path, StoreError, missing="", damaged="run 'semisup plan' again")
     return info, plan
 
 

@@ -3,8 +3,9 @@ torch for any network inside it.
 
 skops (https://skops.readthedocs.io) writes an estimator as a zip of JSON and ``.npy`` files
 and, on loading, builds only the types the caller trusts. We trust a type only when it is a
-class defined in scikit-learn, NumPy, SciPy or semisup (plus the types skops itself trusts);
-functions and every other module's classes are refused, so a crafted file cannot make the
+class defined in scikit-learn or semisup, or one skops itself trusts (NumPy / SciPy
+containers, scikit-learn's public estimators); functions and every other module's classes are
+refused, so a crafted file cannot make the
 loader call arbitrary code.
 
 skops cannot store torch networks. Before dumping, every ``torch.nn.Module`` or
@@ -28,7 +29,10 @@ from ._errors import ModelFileError
 
 __all__ = ["dump_estimator", "load_estimator", "trusted_type"]
 
-_TRUSTED_ROOTS = ("sklearn.", "numpy.", "scipy.", "semisup.")
+# Beyond the types skops trusts by default (numpy / scipy containers and scikit-learn's public
+# estimators), only classes of these packages: private scikit-learn helpers such as
+# sklearn.calibration._SigmoidCalibration, and semisup's own estimators.
+_TRUSTED_ROOTS = ("sklearn.", "semisup.")
 _MODULE_KEY = "__semisup_torch_module__"
 _TENSOR_KEY = "__semisup_torch_tensor__"
 _TUPLE_KEY = "__tuple__"
@@ -50,8 +54,7 @@ def _resolve(path: str) -> Any:
 
 
 def trusted_type(path: str) -> bool:
-    """True when ``path`` names a class (not a function) of scikit-learn, NumPy, SciPy or
-    semisup."""
+    """True when ``path`` names a class (not a function) of scikit-learn or semisup."""
     if not path.startswith(_TRUSTED_ROOTS):
         return False
     obj = _resolve(path)
