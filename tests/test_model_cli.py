@@ -287,10 +287,11 @@ def test_formats_and_chunks_give_the_same_predictions(env, fmt):
     a = pd.read_parquet(root / f"whole-{fmt}.parquet")
     b = pd.read_csv(root / f"small-{fmt}.csv", dtype={"row_id": str})
     # Batched float maths (BLAS, torch in float32) may differ in the last bits between chunk
-    # sizes: probabilities to 1e-9, the float32 ELBO to a relative 1e-5.
+    # sizes. A method on the VAE's float32 latents inherits their rounding (float32 epsilon
+    # 1.2e-7): probabilities to 1e-6 (1.2e-9 seen), the float32 ELBO to a relative 1e-5.
     assert list(a.columns) == list(b.columns) and (a["row_id"] == b["row_id"]).all()
     proba_cols = [f"proba_{c}" for c in model.classes] + ["top_probability"]
-    np.testing.assert_allclose(a[proba_cols], b[proba_cols], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(a[proba_cols], b[proba_cols], rtol=0, atol=1e-6)
     np.testing.assert_allclose(a["density_score"], b["density_score"], rtol=1e-5)
     assert (a["predicted"] == b["predicted"]).mean() > 0.99
     direct = model.predict_proba(frame)
