@@ -13,6 +13,7 @@ import math
 import numpy as np
 import pytest
 import torch
+from _methods_support import digits_few_labels
 from torch import distributions as D
 
 from semisup.methods import get_method
@@ -104,15 +105,9 @@ def test_m2_well_ahead_of_supervised_on_digits_at_two_labels_per_class():
     # Source: Kingma et al. 2014 (Table 1: M2 far ahead of supervised baselines with few
     # labels per class); data: scikit-learn's bundled digits; reference: LogisticRegression
     # on the same 20 labels. "Well ahead" = 0.05 or more: common practice, no source.
-    from sklearn.datasets import load_digits
     from sklearn.linear_model import LogisticRegression
 
-    X, y = load_digits(return_X_y=True)
-    X = (X - X.mean(0)) / np.maximum(X.std(0), 1e-12)
-    rng = np.random.default_rng(0)
-    y_partial = np.full_like(y, -1)
-    for c in range(10):
-        y_partial[rng.choice(np.flatnonzero(y == c), 2, replace=False)] = c
+    X, y, y_partial = digits_few_labels(per_class=2)
     unl = y_partial < 0
     m2 = M2Classifier(max_epochs=40, random_state=0).fit(X, y_partial)
     lab = ~unl

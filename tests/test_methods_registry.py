@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import optuna
 import pytest
+from _methods_support import digits_few_labels
 from sklearn.datasets import load_iris
 from sklearn.linear_model import LogisticRegression
 from sklearn.semi_supervised import LabelSpreading
@@ -252,19 +253,13 @@ def test_svm_temperature_calibration_keeps_the_svms_own_classes():
     # the temperature minimises (Guo et al. 2017 temperature scaling), on scikit-learn's
     # bundled digits with 2 labels per class (the few-label, many-class case).
     from scipy.special import softmax
-    from sklearn.datasets import load_digits
     from sklearn.metrics import log_loss
     from sklearn.model_selection import StratifiedKFold, cross_val_predict
     from sklearn.svm import SVC
 
     from semisup.methods import LabeledSVM
 
-    X, y = load_digits(return_X_y=True)
-    X = (X - X.mean(0)) / np.maximum(X.std(0), 1e-12)
-    rng = np.random.default_rng(0)
-    y_partial = np.full_like(y, -1)
-    for c in range(10):
-        y_partial[rng.choice(np.flatnonzero(y == c), 2, replace=False)] = c
+    X, y, y_partial = digits_few_labels(per_class=2)
     svm = LabeledSVM(C=10.0).fit(X, y_partial)
     mask = y_partial >= 0
     gamma = 1.0 / (X.shape[1] * X[mask].var())
@@ -296,17 +291,12 @@ def test_label_spreading_minmax_graph_matches_sklearn_on_scaled_rows():
     # digits; and the goal that the registered method is not worse than
     # LabelSpreading on the raw pixels when it is handed standardised pixels (the encoded
     # table), here at 50 labels, mean of 3 stratified draws.
-    from sklearn.datasets import load_digits
     from sklearn.preprocessing import MinMaxScaler, StandardScaler
 
-    X_raw, y = load_digits(return_X_y=True)
-    X = StandardScaler().fit_transform(X_raw)
     ours_acc, ref_acc = [], []
     for seed in range(3):
-        rng = np.random.default_rng(seed)
-        y_partial = np.full_like(y, -1)
-        for c in range(10):
-            y_partial[rng.choice(np.flatnonzero(y == c), 5, replace=False)] = c
+        X_raw, y, y_partial = digits_few_labels(per_class=5, seed=seed, standardise=False)
+        X = StandardScaler().fit_transform(X_raw)
         est = get_method("label-spreading").build(get_method("label-spreading").default_params,
                                                   0).fit(X, y_partial)
         with np.errstate(invalid="ignore", divide="ignore"):

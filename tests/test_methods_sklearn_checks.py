@@ -26,6 +26,8 @@ _SMALL = {
     "mixture-em": {"max_iter": 30, "n_init": 1},
     "latent-mixture-em": {"max_iter": 30, "n_init": 1},
     "m2": {"max_epochs": 20, "hidden": 16},
+    "density-self-training": {"max_iter": 10, "rounds": 2},
+    "latent-density-self-training": {"max_iter": 10, "rounds": 2},
     "m1-m2": {"max_epochs": 20, "hidden": 16},
 }
 

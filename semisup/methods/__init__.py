@@ -10,6 +10,7 @@ from __future__ import annotations
 from ._base import PartiallyLabeledClassifier, labeled_mask
 from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
+from ._density_self_training import DensitySelfTrainingGBT
 from ._m2 import M2Classifier
 from ._mixture_em import MixtureEMClassifier
 from ._proba import align_proba
@@ -25,6 +26,7 @@ from ._supervised import LabeledGBT, LabeledKNN, LabeledLogReg, LabeledSVM
 
 __all__ = [
     "CalibratedSelfTraining",
+    "DensitySelfTrainingGBT",
     "FewLabelCalibratedClassifier",
     "KNNLabelSpreading",
     "LabeledGBT",

@@ -100,6 +100,11 @@ def m2_unlabeled_elbo(net, x, layout, index, log_prior, eps=None):
     return (q * elbo).sum(1) - (q * log_q).sum(1)
 
 
+def _float_tensor(X: np.ndarray) -> torch.Tensor:
+    """A float32 tensor on its own copy of ``X`` (inputs may be read-only memory maps)."""
+    return torch.from_numpy(np.array(X, dtype=np.float32, copy=True))
+
+
 class M2Net(nn.Module):
     """Encoder q(z|x,y), decoder p(x|y,z) and classifier q(y|x), one hidden layer each."""
 
@@ -222,7 +227,7 @@ class M2Classifier(PartiallyLabeledClassifier):
 
     def _train(self, X, y_code, epochs, validation):
         k = self.classes_.size
-        Xt = torch.as_tensor(X, dtype=torch.float32)
+        Xt = _float_tensor(X)
         lab = np.flatnonzero(y_code >= 0)
         unl = np.flatnonzero(y_code == -1)
         n_rows = lab.size + unl.size
@@ -258,7 +263,7 @@ class M2Classifier(PartiallyLabeledClassifier):
             if validation is not None:
                 net.eval()
                 with torch.no_grad():
-                    logits = net.clf(torch.as_tensor(validation[0], dtype=torch.float32))
+                    logits = net.clf(_float_tensor(validation[0]))
                     loss = float(F.cross_entropy(
                         logits, torch.as_tensor(validation[1], dtype=torch.long)))
                 history.append(loss)
@@ -273,7 +278,7 @@ class M2Classifier(PartiallyLabeledClassifier):
 
     def _proba_encoded(self, X):
         with pinned_threads(self.n_threads), torch.no_grad():
-            logits = self.net_.clf(torch.as_tensor(X, dtype=torch.float32))
+            logits = self.net_.clf(_float_tensor(X))
             return torch.softmax(logits, dim=1).double().numpy()
 
 

@@ -99,15 +99,7 @@ class MixtureEMClassifier(PartiallyLabeledClassifier):
 
     @staticmethod
     def tuning_space(trial) -> dict:
-        # At most 2 components per class: 3 tripled the tuning time of a demo cell for no gain
-        # in the digits sweep.
-        return {
-            "n_components_per_class": trial.suggest_int("n_components_per_class", 1, 2),
-            "covariance_type": trial.suggest_categorical("covariance_type",
-                                                         ["full", "tied", "diag"]),
-            "unlabeled_weight": trial.suggest_float("unlabeled_weight", 0.01, 1.0, log=True),
-            "reg_covar": trial.suggest_float("reg_covar", 1e-4, 1e-1, log=True),
-        }
+        return _em_space(trial, ["full", "tied", "diag"], (1e-4, 1e-1))
 
     def __init__(
         self,
@@ -202,15 +194,20 @@ class MixtureEMClassifier(PartiallyLabeledClassifier):
         return proba
 
 
-def _raw_table_space(trial) -> dict:
-    """Search space on the wide encoded table (no full covariances: too many parameters)."""
+def _em_space(trial, covariance_types: list[str], reg_range: tuple[float, float]) -> dict:
+    # At most 2 components per class: 3 tripled the tuning time of a demo cell for no gain
+    # in the digits sweep.
     return {
         "n_components_per_class": trial.suggest_int("n_components_per_class", 1, 2),
-        "covariance_type": trial.suggest_categorical("covariance_type",
-                                                     ["diag", "spherical", "tied"]),
+        "covariance_type": trial.suggest_categorical("covariance_type", covariance_types),
         "unlabeled_weight": trial.suggest_float("unlabeled_weight", 0.01, 1.0, log=True),
-        "reg_covar": trial.suggest_float("reg_covar", 1e-3, 1.0, log=True),
+        "reg_covar": trial.suggest_float("reg_covar", *reg_range, log=True),
     }
+
+
+def _raw_table_space(trial) -> dict:
+    """Search space on the wide encoded table (no full covariances: too many parameters)."""
+    return _em_space(trial, ["diag", "spherical", "tied"], (1e-3, 1.0))
 
 
 register_variants(

@@ -87,7 +87,7 @@ class LabeledGBT(PartiallyLabeledClassifier):
         self.l2_regularization = l2_regularization
         self.random_state = random_state
 
-    def _fit_encoded(self, X, y_code):
+    def _fit_encoded(self, X, y_code, sample_weight=None):
         leaf = int(max(1, min(self.min_samples_leaf, X.shape[0] // 2)))
         self.model_ = HistGradientBoostingClassifier(
             learning_rate=self.learning_rate,
@@ -97,7 +97,7 @@ class LabeledGBT(PartiallyLabeledClassifier):
             l2_regularization=self.l2_regularization,
             early_stopping=False,
             random_state=self.random_state,
-        ).fit(X, y_code)
+        ).fit(X, y_code, sample_weight=sample_weight)
         self.n_iter_ = int(self.model_.n_iter_)
 
     def _proba_encoded(self, X):
