@@ -258,7 +258,7 @@ def render(results: list[dict], wall: float) -> str:
             f"{_f(p2.get('bias'), 3)} | {_f(p4.get('bias'), 3)} | {_f(r['coverage'], 2)} | "
             f"{_f(p2.get('half'))} | {_f(p4.get('half'))} | {_f(r['regret'])} | "
             f"{_f(p2.get('rank_regret'))} / {_f(p4.get('rank_regret'))} | {r['chosen']} | "
-            f"{mins:.1f} ({load:.0f}) |")
+            f"{mins:.1f}" + (f" ({load:.0f})" if np.isfinite(load) else "") + " |")
     cov = [r["coverage"] for r in results if r["coverage"] is not None]
     mae2 = [r["per_ratio"].get(2, {}).get("mae") for r in results]
     mae4 = [r["per_ratio"].get(4, {}).get("mae") for r in results]

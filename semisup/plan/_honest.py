@@ -10,8 +10,9 @@ generalizations"), written as an empirical-Bayes posterior mean with unequal var
 
 which with equal variances is exactly ``1 - (k - 3) sigma**2 / S`` (floored at 0). It needs
 at least four methods; with fewer nothing is shrunk. ``sigma_m`` is the part of a method's
-uncertainty that is its own (bootstrap over repeats and the calibrated extrapolation), not
-the evaluation rows' sampling error, which moves every method together.
+uncertainty that is its own (the bootstrap over repeats), not the evaluation rows' sampling
+error, which moves every method together. The plan fits the factors at the largest budget
+every method measured and applies them to the whole curve (``_pipeline._shrink``).
 
 Pure functions.
 """

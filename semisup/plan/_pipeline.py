@@ -102,9 +102,17 @@ def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: i
     return base
 
 
-def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str
-            ) -> tuple[dict, dict]:
-    """James-Stein shrinkage across the methods of each strategy at each common budget."""
+def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str,
+            measured: dict[tuple[str, str], float]) -> tuple[dict, dict]:
+    """James-Stein shrinkage across the methods of each strategy.
+
+    The factor of each method is fitted where the study measured: at the largest budget
+    every method of the strategy measured, from the methods' predictions and own variances
+    there. At every budget of the common grid the method's deviation from the methods' mean
+    is then multiplied by that factor. (The selection bias comes from the noise of what was
+    measured; the extra spread of the extrapolation is the calibration's business and would,
+    per budget, shrink methods that clearly differ where measured into one.)
+    """
     factors: dict[tuple[str, str], dict[int, float]] = {k: {} for k in keys}
     strategies = sorted({s for _, s in keys})
     for strategy in strategies:
@@ -115,21 +123,21 @@ def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str
         for k in ks[1:]:
             common &= set(bands[(*k, metric)].grid.tolist())
         common_arr = np.array(sorted(common))
-        if common_arr.size == 0:
+        anchor = min(measured[k] for k in ks)
+        if common_arr.size == 0 or anchor not in common:
             continue
         idx = {k: np.searchsorted(bands[(*k, metric)].grid, common_arr) for k in ks}
         mu = np.array([bands[(*k, metric)].point[idx[k]] for k in ks])        # (K, G)
-        var = np.array([own_var[k][idx[k]] for k in ks])
-        shifts = {k: np.zeros_like(bands[(*k, metric)].point) for k in ks}
-        for g in range(common_arr.size):
-            shrunk, fac, _ = shrink_toward_mean(mu[:, g], var[:, g])
-            for i, k in enumerate(ks):
-                shifts[k][idx[k][g]] = shrunk[i] - mu[i, g]
-                factors[k][int(common_arr[g])] = float(fac[i])
-        for k in ks:
+        a = int(np.searchsorted(common_arr, anchor))
+        _, fac, _ = shrink_toward_mean(mu[:, a], np.array([own_var[k][idx[k][a]] for k in ks]))
+        grand = mu.mean(axis=0)
+        for i, k in enumerate(ks):
+            shift = np.zeros_like(bands[(*k, metric)].point)
+            shift[idx[k]] = (grand + fac[i] * (mu[i] - grand)) - mu[i]
+            factors[k] = {int(n): float(fac[i]) for n in common_arr}
             b = bands[(*k, metric)]
             bands[(*k, metric)] = band_from_samples(
-                b.fit, b.grid, np.clip(b.point + shifts[k], 0, 1), b.samples + shifts[k],
+                b.fit, b.grid, np.clip(b.point + shift, 0, 1), b.samples + shift,
                 b.interval, b.n_failed)
     return bands, factors
 
@@ -191,7 +199,8 @@ def forecast_all(
                                   interval=interval, eval_rows=eval_rows,
                                   eval_floor_rows=eval_floor_rows)
         bands[(*k, metric)], own_var[k], displays[(*k, metric)] = band, var, display
-    bands, factors = _shrink(bands, own_var, keys, metric)
+    bands, factors = _shrink(bands, own_var, keys, metric,
+                             {k: float(m.levels[-1]) for k, m in models.items()})
 
     for other in metrics:
         if other == metric:
