@@ -194,7 +194,7 @@ def build_parser() -> argparse.ArgumentParser:
                                    "options; writes plan.json, curves.csv and label_next.csv.")
     p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
     p.add_argument("--target", required=True, metavar="METRIC=VALUE",
-                   help=f"metric to reach on the holdout, one of {d['metrics']}; "
+                   help=f"metric to reach on the evaluation rows, one of {d['metrics']}; "
                         "e.g. accuracy=0.95 or macro_f1=0.85")
     p.add_argument("--cost-per-label", type=float, required=True, metavar="X",
                    help="price of one label (any currency; the report can name it)")

@@ -30,7 +30,7 @@ class PlanRequest:
 
     Parameters
     ----------
-    metric : "accuracy", "balanced_accuracy" or "macro_f1" (measured on the holdout).
+    metric : "accuracy", "balanced_accuracy" or "macro_f1" (measured on the evaluation rows).
     target : value of ``metric`` to reach, in (0, 1).
     cost_per_label : price of one label (any currency), >= 0.
     confidence : required probability of meeting the target, in (0, 1).

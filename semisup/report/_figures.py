@@ -274,7 +274,7 @@ def build_curve_figure(
             ax.legend(handles, names, fontsize=7.5, loc="lower right", frameon=True,
                       framealpha=0.85, borderpad=0.3, handlelength=2.6)
         if i % ncols == 0:
-            ax.set_ylabel(f"{label} on the holdout", fontsize=9)
+            ax.set_ylabel(f"{label} on the evaluation rows", fontsize=9)
         ax.tick_params(axis="y", labelsize=8)
     fig.supxlabel("training labels (log scale)" + (
         f"; dotted vertical line: the {facts.labels_owned:,} labels owned"

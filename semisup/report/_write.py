@@ -362,7 +362,7 @@ def _methods_section(cells, curves, plan, study: Mapping, card: Mapping) -> Sect
                                                         strict=True)]
             label = METRIC_LABELS.get(metric, metric)
             s.table(Table(["method", "strategy", *[f"{count(b)} labels" for b in budgets]],
-                          rows, caption=f"Mean {label} on the holdout over repeats, by "
+                          rows, caption=f"Mean {label} on the evaluation rows over repeats, by "
                                         "training-label budget (from curves.csv)"))
     timing = study.get("timing") if isinstance(study.get("timing"), Mapping) else {}
     if timing.get("cells_seconds_total") is not None:

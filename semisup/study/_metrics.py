@@ -17,7 +17,7 @@ __all__ = [
     "summarize_curves", "wilson_interval",
 ]
 
-#: Metrics measured on the holdout for every cell (higher is better except log_loss).
+#: Metrics measured on the evaluation rows for every cell (higher is better except log_loss).
 METRICS = ("accuracy", "balanced_accuracy", "macro_f1", "log_loss")
 
 #: Probabilities are clipped to [EPS, 1 - EPS] before log-loss.
