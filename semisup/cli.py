@@ -103,8 +103,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--folds", type=int, metavar="K",
                    help="folds of the labeled rows for cross-fit evaluation (default 5)")
     p.add_argument("--holdout", type=float, metavar="F",
-                   help="with --evaluation holdout: fraction of labeled rows kept for "
-                        "evaluation (default 0.3)")
+                   help="fraction of labeled rows kept as a fixed holdout (default 0.3; "
+                        "sets --evaluation holdout)")
     p.add_argument("--test-file", type=Path, metavar="FILE",
                    help="a labeled table with the same columns and classes, only ever "
                         "evaluated on (sets --evaluation test-file)")

@@ -56,7 +56,8 @@ _COMMON_NOTES = [
     "accuracy, macro-F1, log-loss over all study classes (probabilities clipped to "
     "[1e-15, 1-1e-15]), per-class recall; curves.csv gives the across-repeat mean with a "
     "Student-t 95% interval, widened by the evaluation rows' binomial variance where repeats "
-    "share evaluation rows",
+    "share evaluation rows and, for accuracy on stratified folds, by the variance of the "
+    "labeled sample's class mix",
 ]
 
 

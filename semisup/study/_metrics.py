@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Mapping
 from typing import Any
@@ -11,7 +12,8 @@ import pandas as pd
 from scipy import stats
 
 __all__ = [
-    "METRICS", "PROPORTION_METRICS", "holdout_metrics", "shared_evaluation_variance",
+    "METRICS", "PROPORTION_METRICS", "class_mix_variance", "holdout_metrics",
+    "shared_evaluation_variance",
     "summarize_curves", "wilson_interval",
 ]
 
@@ -104,24 +106,65 @@ def shared_evaluation_variance(p: float, n_rows_evaluated: int, folds: int,
     return binomial * max(0.0, (n_repeats - folds) / (n_repeats - 1))
 
 
+def class_mix_variance(recall: Mapping[str, float], class_counts: Mapping[str, int]) -> float:
+    """Variance of an accuracy from the class mix of the evaluated rows.
+
+    Accuracy is ``sum_c pi_c * a_c`` (class shares ``pi_c``, per-class recalls ``a_c``). Folds
+    stratified on the labeled rows all get the labeled sample's class shares, so the spread
+    between folds cannot show how those shares vary from sample to sample; their multinomial
+    variance contributes ``sum_c pi_c (a_c - a)**2 / n`` (``a`` the accuracy, ``n`` the
+    evaluated rows; the delta method on the multinomial shares). It is the whole binomial
+    ``a (1 - a) / n`` for a model that always predicts one class, zero for one with equal
+    recall in every class. Classes without a recall (not evaluated) are left out.
+    """
+    keys = [k for k in class_counts if k in recall and class_counts[k] > 0]
+    n = float(sum(class_counts[k] for k in keys))
+    if n <= 0:
+        return 0.0
+    share = np.array([class_counts[k] / n for k in keys])
+    a = np.array([float(recall[k]) for k in keys])
+    return float(np.sum(share * (a - np.sum(share * a)) ** 2) / n)
+
+
+def _mean_recall(texts) -> dict[str, float]:
+    """Mean per-class recall over a group's cells (cells.csv's JSON ``per_class_recall``)."""
+    import json
+
+    sums: dict[str, list[float]] = {}
+    for text in texts:
+        if isinstance(text, str):
+            for k, v in json.loads(text).items():
+                sums.setdefault(str(k), []).append(float(v))
+    return {k: float(np.mean(v)) for k, v in sums.items()}
+
+
 def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0.95, *,
                      evaluation: Mapping[str, Any] | None = None):
     """Measured curve points: per method, strategy, metric and budget, mean and interval.
 
-    ``low``/``high`` is a Student-t interval for the across-repeat mean
-    (``mean +- t * sqrt(sd**2 / n_repeats + v_eval)``), kept inside the metric's range;
+    ``low``/``high`` is a Student-t interval for the across-repeat mean widened by the
+    evaluation rows' noise, ``mean +- sqrt((t * sd / sqrt(n_repeats))**2 + z**2 * v_eval)``
+    (the half-widths of the two independent parts added in quadrature: the t quantile for the
+    estimated spread, the normal one for the binomial part), kept inside the metric's range;
     ``sd``, ``min`` and ``max`` show the spread of single draws. ``v_eval`` is the evaluation
     rows' sampling variance that the spread cannot hold (:func:`shared_evaluation_variance`),
     for the proportion metrics when ``evaluation`` (study.json's ``evaluation`` block: its
     ``folds`` and ``n_rows_evaluated``) is given; zero for cross-fitting with no more repeats
-    than folds, where each repeat is scored on its own rows. With one repeat the half-width is
-    ``z * sqrt(v_eval)`` (zero without ``evaluation``). Only ``status == "ok"`` cells count.
+    than folds, where each repeat is scored on its own rows. For accuracy under
+    cross-fitting (``folds > 1``, with the block's ``evaluated_class_counts`` and the cells'
+    ``per_class_recall``), ``v_eval`` also holds :func:`class_mix_variance`: stratified folds
+    share the labeled sample's class mix, so their spread cannot show its noise. With one
+    repeat the half-width is ``z * sqrt(v_eval)`` (zero without ``evaluation``). Only
+    ``status == "ok"`` cells count.
     """
     cols = ["method", "strategy", "metric", "n_labels", "mean", "low", "high", "measured",
             "sd", "min", "max", "n_repeats"]
     ok = cells[cells["status"] == "ok"] if len(cells) else cells
     n_eval = int(evaluation.get("n_rows_evaluated") or 0) if evaluation else 0
     folds = int(evaluation.get("folds") or 1) if evaluation else 1
+    mix_counts = (evaluation or {}).get("evaluated_class_counts") if folds > 1 else None
+    z = float(stats.norm.ppf(0.5 + confidence / 2))
+    t_quantile = functools.cache(lambda df: float(stats.t.ppf(0.5 + confidence / 2, df)))
     rows = []
     if len(ok):
         for (method, strategy, n_labels), grp in ok.groupby(
@@ -137,11 +180,15 @@ def summarize_curves(cells: pd.DataFrame, metrics=METRICS, confidence: float = 0
                 if n_eval and metric in PROPORTION_METRICS:
                     p = min(max(mean, 0.0), 1.0)
                     v_eval = shared_evaluation_variance(p, n_eval, folds, len(vals))
+                    if (metric == "accuracy" and mix_counts and len(vals) > 1
+                            and "per_class_recall" in grp):
+                        v_eval += class_mix_variance(_mean_recall(grp["per_class_recall"]),
+                                                     mix_counts)
                 if len(vals) > 1:
-                    t = float(stats.t.ppf(0.5 + confidence / 2, len(vals) - 1))
-                    half = t * math.sqrt(sd * sd / len(vals) + v_eval)
+                    t = t_quantile(len(vals) - 1)
+                    half = math.hypot(t * sd / math.sqrt(len(vals)), z * math.sqrt(v_eval))
                 else:
-                    half = float(stats.norm.ppf(0.5 + confidence / 2)) * math.sqrt(v_eval)
+                    half = z * math.sqrt(v_eval)
                 low, high = mean - half, mean + half
                 if metric == "log_loss":
                     low = max(low, 0.0)

@@ -61,10 +61,12 @@ class StudySpec:
         Folds of the labeled rows for ``"cross-fit"`` (repeats beyond it start a new,
         differently seeded fold assignment).
     holdout : float or int
-        For ``"holdout"``: fraction (0 < f < 1) or count of labeled rows kept for evaluation.
+        For ``"holdout"``: fraction (0 < f < 1) or count of labeled rows kept for evaluation;
+        given without ``evaluation`` it selects ``"holdout"``.
     test_data : str or None
         For ``"test-file"``: a labeled table with the same columns and classes as ``data``
-        (relative paths in a TOML file are relative to that file's folder).
+        (relative paths in a TOML file are relative to that file's folder); given without
+        ``evaluation`` it selects ``"test-file"``.
     transductive : bool
         Let the semi-supervised methods (and, with a holdout or a test file, the unsupervised
         stage) see the evaluation rows' features (never their labels).
@@ -152,8 +154,17 @@ class StudySpec:
                     f"{where} needs {required!r} (give it in the TOML file or on the command line)"
                 )
         clean = {k: _check(k, v) for k, v in values.items()}
-        if clean.get("test_data") is not None and "evaluation" not in clean:
-            clean["evaluation"] = "test-file"  # a test file given alone means evaluate on it
+        if "evaluation" not in clean:
+            # A test file or a holdout given alone names its protocol (older specs with
+            # 'holdout' keep their meaning).
+            if clean.get("test_data") is not None:
+                clean["evaluation"] = "test-file"
+            elif "holdout" in clean:
+                clean["evaluation"] = "holdout"
+        if "holdout" in clean and clean["evaluation"] != "holdout":
+            raise ConfigError(f"study option 'holdout' is given but 'evaluation' is "
+                              f"{clean['evaluation']!r}; use evaluation 'holdout' or leave out "
+                              "the holdout")
         _check_evaluation(clean.get("evaluation", "cross-fit"), clean.get("test_data"))
         return cls(**clean)
 

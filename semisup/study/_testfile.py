@@ -7,11 +7,13 @@ transductive.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from .._errors import ConfigError, DataError
 
@@ -33,6 +35,12 @@ class TestRows:
 
 def _where(path: Path, i: int) -> str:
     return f"row {i} (0-based)" if path.suffix.lower() in _PARQUET else f"line {i + 2}"
+
+
+def _refuse_rows(path: Path, bad: np.ndarray, words: Callable[[int, int], str]) -> None:
+    """Raise a one-line DataError for the first row flagged in ``bad``."""
+    if bad.any():
+        raise DataError(f"test file {path}: {words(int(np.flatnonzero(bad)[0]), int(bad.sum()))}")
 
 
 def load_test_rows(spec: Any, ds: Any) -> TestRows:
@@ -72,37 +80,24 @@ def load_test_rows(spec: Any, ds: Any) -> TestRows:
     text = as_text(frame[label]).str.strip()
     markers = {m.strip() for m in spec.unlabeled_markers}
     empty = (text.isna() | (text.str.len() == 0) | text.isin(markers)).to_numpy()
-    if empty.any():
-        i = int(np.flatnonzero(empty)[0])
-        raise DataError(
-            f"test file {path}: label column {label!r} is empty at {_where(path, i)} "
-            f"({int(empty.sum())} unlabeled rows); every test row needs a label, remove the "
-            "unlabeled rows"
-        )
+    _refuse_rows(path, empty, lambda i, n: (
+        f"label column {label!r} is empty at {_where(path, i)} ({n} unlabeled rows); every "
+        "test row needs a label, remove the unlabeled rows"))
     classes = list(ds.class_names)
-    lookup = {name.strip(): k for k, name in enumerate(classes)}
-    codes = text.map(lookup)
-    unknown = codes.isna().to_numpy()
-    if unknown.any():
-        i = int(np.flatnonzero(unknown)[0])
-        raise DataError(
-            f"test file {path}: label {text.iloc[i]!r} at {_where(path, i)} is not a class of "
-            f"the table (classes: {', '.join(classes)}; {int(unknown.sum())} such rows); fix "
-            "the labels or remove those rows"
-        )
+    codes = text.map({name.strip(): k for k, name in enumerate(classes)})
+    _refuse_rows(path, codes.isna().to_numpy(), lambda i, n: (
+        f"label {text.iloc[i]!r} at {_where(path, i)} is not a class of the table (classes: "
+        f"{', '.join(classes)}; {n} such rows); fix the labels or remove those rows"))
     if id_col:
         ids = as_text(frame[id_col]).to_numpy(dtype=object)
-        if any(v is None or (isinstance(v, float) and np.isnan(v)) for v in ids):
-            raise DataError(f"test file {path}: id column {id_col!r} has empty ids; give every "
-                            "test row an id")
+        _refuse_rows(path, pd.isna(ids), lambda i, n: (
+            f"id column {id_col!r} is empty at {_where(path, i)} ({n} empty ids); give every "
+            "test row an id"))
         shared = np.isin(ids.astype(str), np.asarray(ds.row_ids, dtype=str))
-        if shared.any():
-            i = int(np.flatnonzero(shared)[0])
-            raise DataError(
-                f"test file {path}: row id {ids[i]!r} at {_where(path, i)} is also a row of "
-                f"the table ({int(shared.sum())} shared ids); a test row must never be a "
-                "training row, remove the shared rows from one of the files"
-            )
+        _refuse_rows(path, shared, lambda i, n: (
+            f"row id {ids[i]!r} at {_where(path, i)} is also a row of the table ({n} shared "
+            "ids); a test row must never be a training row, remove the shared rows from one of "
+            "the files"))
         if len(set(ids.astype(str))) != len(ids):
             raise DataError(f"test file {path}: id column {id_col!r} has duplicate ids; make "
                             "the test file's ids unique")
