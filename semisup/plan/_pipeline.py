@@ -89,6 +89,8 @@ def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: i
     point, samp = calibrated_samples(point[j:j + 1], samp[:, j:j + 1], o.targets[j:j + 1],
                                      o.origin, cal, rng,
                                      spread_factor=small_sample_factor(o.n_repeats, interval))
+    # An error rate lives in [0, 1]; the calibrated shift and spread are not clipped.
+    point, samp = np.clip(point, 0.0, 1.0), np.clip(samp, 0.0, 1.0)
     tail = (1 - interval) / 2 * 100
     low_e = min(float(np.percentile(samp, tail)), float(point[0]))
     high_e = max(float(np.percentile(samp, 100 - tail)), float(point[0]))
