@@ -7,8 +7,8 @@ value and the fix), 1 internal error. ``--debug`` shows the traceback.
 from __future__ import annotations
 
 import argparse
-import errno
 import dataclasses
+import errno
 import logging
 import os
 import sys
@@ -20,6 +20,8 @@ from . import __version__
 from ._errors import SemisupError
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
+#: ``semisup plan``: the plan was made, but no option reaches the target (do not buy).
+EXIT_NOT_REACHABLE = 3
 
 log = logging.getLogger("semisup")
 
@@ -191,7 +193,11 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("plan", help="choose the cheapest budget and method that reach a target",
                        description="Fit learning curves to a finished study and price the "
-                                   "options; writes plan.json, curves.csv and label_next.csv.")
+                                   "options; writes plan.json, curves.csv and label_next.csv.",
+                       epilog=f"Exit status: {EXIT_OK} when an option reaches the target; "
+                              f"{EXIT_NOT_REACHABLE} when none does (the plan says 'do not "
+                              "buy' and writes no label_next.csv unless --next is given); "
+                              f"{EXIT_BAD_INPUT} for bad input.")
     p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
     p.add_argument("--target", required=True, metavar="METRIC=VALUE",
                    help=f"metric to reach on the holdout, one of {d['metrics']}; "
@@ -211,7 +217,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--class-cost", action="append", metavar="CLASS=X", default=None,
                    help="price of one label of CLASS, overriding --cost-per-label (repeatable)")
     p.add_argument("--next", type=int, default=None, metavar="N", dest="n_next",
-                   help="rows to list in label_next.csv (default: what the plan buys)")
+                   help="rows to list in label_next.csv (default: what the plan buys; none "
+                        "when the target is not reachable)")
     _add_common(p)
 
     p = sub.add_parser("report", help="write report.html and figures for a study folder",
@@ -394,7 +401,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     )
     plan = make_plan(args.study_dir, request)
     print(plan.summary())
-    return EXIT_OK
+    return EXIT_OK if plan.reached else EXIT_NOT_REACHABLE
 
 
 def _cmd_report(args: argparse.Namespace) -> int:

@@ -4,11 +4,14 @@ from __future__ import annotations
 
 from ._draws import default_budgets, nested_draws, split_holdout
 from ._metrics import METRICS, holdout_metrics, summarize_curves, wilson_interval
+from ._rounds import ADDED_LABELS_FILE, SHEET_STUDY_COLUMN, study_id
 from ._runner import StudyResult, run_study
 from ._spec import StudySpec
 
 __all__ = [
+    "ADDED_LABELS_FILE",
     "METRICS",
+    "SHEET_STUDY_COLUMN",
     "StudyResult",
     "StudySpec",
     "default_budgets",
@@ -16,6 +19,7 @@ __all__ = [
     "nested_draws",
     "run_study",
     "split_holdout",
+    "study_id",
     "summarize_curves",
     "wilson_interval",
 ]

@@ -35,6 +35,7 @@ OUTPUT_FILES = (
     "cells.csv", "cells.parquet", "curves.csv", "study.json", "candidates.npz",
     "data_card.md", "data_card.json",
     "plan.json", "label_next.csv",
+    "labels_added.csv",
     "report.html",
 )
 #: Folders written in the study folder (everything inside them is ours).
