@@ -221,6 +221,19 @@ def build_parser() -> argparse.ArgumentParser:
                         "when the target is not reachable)")
     _add_common(p)
 
+    p = sub.add_parser("add-labels", help="merge labels returned by annotators into a study",
+                       description="Read a returned label_next sheet (CSV, TSV, Parquet or "
+                                   ".xlsx), match its rows by row_id and merge the filled-in "
+                                   "labels into the study's own labeled set "
+                                   "(labels_added.csv in the study folder; your table is never "
+                                   "modified). The next 'semisup study' run on the folder uses "
+                                   "them. A bad sheet changes nothing (exit status 2).")
+    p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
+    p.add_argument("returned", type=Path, metavar="SHEET", help="the returned sheet")
+    p.add_argument("--allow-new-class", action="store_true",
+                   help="accept labels of a class the study has never seen")
+    _add_common(p)
+
     p = sub.add_parser("report", help="write report.html and figures for a study folder",
                        description="Single-file HTML report with embedded figures, from a "
                                    "study folder (and its plan, if made).")
@@ -404,6 +417,14 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     return EXIT_OK if plan.reached else EXIT_NOT_REACHABLE
 
 
+def _cmd_add_labels(args: argparse.Namespace) -> int:
+    from .study import add_labels
+
+    result = add_labels(args.study_dir, args.returned, allow_new_classes=args.allow_new_class)
+    print(result.summary())
+    return EXIT_OK
+
+
 def _cmd_report(args: argparse.Namespace) -> int:
     from .report import write_report
 
@@ -448,6 +469,7 @@ _COMMANDS = {
     "card": _cmd_card,
     "study": _cmd_study,
     "plan": _cmd_plan,
+    "add-labels": _cmd_add_labels,
     "report": _cmd_report,
 }
 
