@@ -20,6 +20,8 @@ from . import __version__
 from ._errors import SemisupError
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
+#: ``semisup plan``: the plan was made, but no option reaches the target (do not buy).
+EXIT_NOT_REACHABLE = 3
 
 log = logging.getLogger("semisup")
 
@@ -191,7 +193,11 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("plan", help="choose the cheapest budget and method that reach a target",
                        description="Fit learning curves to a finished study and price the "
-                                   "options; writes plan.json, curves.csv and label_next.csv.")
+                                   "options; writes plan.json, curves.csv and label_next.csv.",
+                       epilog=f"Exit status: {EXIT_OK} when an option reaches the target; "
+                              f"{EXIT_NOT_REACHABLE} when none does (the plan says 'do not "
+                              "buy' and writes no label_next.csv unless --next is given); "
+                              f"{EXIT_BAD_INPUT} for bad input.")
     p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
     p.add_argument("--target", required=True, metavar="METRIC=VALUE",
                    help=f"metric to reach on the evaluation rows, one of {d['metrics']}; "
@@ -211,7 +217,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--class-cost", action="append", metavar="CLASS=X", default=None,
                    help="price of one label of CLASS, overriding --cost-per-label (repeatable)")
     p.add_argument("--next", type=int, default=None, metavar="N", dest="n_next",
-                   help="rows to list in label_next.csv (default: what the plan buys)")
+                   help="rows to list in label_next.csv (default: what the plan buys; none "
+                        "when the target is not reachable)")
+    _add_common(p)
+
+    p = sub.add_parser("add-labels", help="merge labels returned by annotators into a study",
+                       description="Read a returned label_next sheet (CSV, TSV, Parquet or "
+                                   ".xlsx), match its rows by row_id and merge the filled-in "
+                                   "labels into the study's own labeled set "
+                                   "(labels_added.csv in the study folder; your table is never "
+                                   "modified). The next 'semisup study' run on the folder uses "
+                                   "them. A bad sheet changes nothing (exit status 2).")
+    p.add_argument("study_dir", type=Path, metavar="DIR", help="study folder")
+    p.add_argument("returned", type=Path, metavar="SHEET", help="the returned sheet")
+    p.add_argument("--allow-new-class", action="store_true",
+                   help="accept labels of a class the study has never seen")
     _add_common(p)
 
     p = sub.add_parser("report", help="write report.html and figures for a study folder",
@@ -394,6 +414,14 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     )
     plan = make_plan(args.study_dir, request)
     print(plan.summary())
+    return EXIT_OK if plan.reached else EXIT_NOT_REACHABLE
+
+
+def _cmd_add_labels(args: argparse.Namespace) -> int:
+    from .study import add_labels
+
+    result = add_labels(args.study_dir, args.returned, allow_new_classes=args.allow_new_class)
+    print(result.summary())
     return EXIT_OK
 
 
@@ -441,6 +469,7 @@ _COMMANDS = {
     "card": _cmd_card,
     "study": _cmd_study,
     "plan": _cmd_plan,
+    "add-labels": _cmd_add_labels,
     "report": _cmd_report,
 }
 

@@ -49,9 +49,10 @@ def test_plan_files_and_fixed_keys(study):
     assert curves.loc[curves["extrapolated"], "measured"].eq(False).all()
     assert curves["n_labels"].max() == 4 * 320
     nxt = pd.read_csv(study / "label_next.csv")
-    assert list(nxt.columns) == ["rank", "row_id", "reason"]
+    assert list(nxt.columns[:3]) == ["rank", "row_id", "reason"]
     assert list(nxt["rank"]) == list(range(1, len(nxt) + 1))
-    assert plan.summary().startswith("Target: accuracy >= 0.9")
+    assert plan.summary().startswith("Decision: buy ")
+    assert "Target: accuracy >= 0.9" in plan.summary()
 
 
 def test_chosen_is_the_cheapest_sure_option_and_its_numbers_add_up(study):
@@ -72,11 +73,84 @@ def test_chosen_is_the_cheapest_sure_option_and_its_numbers_add_up(study):
 
 def test_not_reachable_names_the_best(study):
     plan = _plan(study, target=0.99)
-    assert plan.chosen is None and plan.best is not None
+    assert plan.chosen is None and plan.best is not None and not plan.reached
     assert "not reachable with these data and methods; the best is latent-logreg" in (
         plan.summary())
     data = json.loads((study / "plan.json").read_text())
     assert data["chosen"] is None and data["best"]["method"] == "latent-logreg"
+    assert data["reached"] is False
+
+
+def test_not_reachable_says_do_not_buy_first_and_lists_no_rows(tmp_path):
+    folder = write_study(tmp_path / "s")
+    _plan(folder, labels_owned=0, n_next=5)           # an earlier plan's list
+    assert (folder / "label_next.csv").is_file()
+    plan = _plan(folder, target=0.99)
+    assert plan.summary().splitlines()[0].startswith("Decision: do not buy labels.")
+    assert plan.label_next.empty and not plan.label_next_written
+    assert not (folder / "label_next.csv").exists()  # the old list is not this plan's
+    data = json.loads((folder / "plan.json").read_text())
+    assert data["label_next"] == {"strategy": plan.label_next_strategy, "n_rows": 0,
+                                  "written": False}
+    assert data["labels"]["to_buy"] == 0
+    # asked for explicitly, the rows are listed even so
+    plan = _plan(folder, target=0.99, n_next=7)
+    assert len(pd.read_csv(folder / "label_next.csv")) == 7 and plan.label_next_written
+
+
+def test_cli_plan_exit_status_3_when_not_reachable(tmp_path, capsys):
+    folder = write_study(tmp_path / "s")
+    code = main(["plan", str(folder), "--target", "accuracy=0.99", "--cost-per-label", "2",
+                 "-q"])
+    out = capsys.readouterr().out
+    assert code == 3 and out.startswith("Decision: do not buy labels.")
+    assert not (folder / "label_next.csv").exists()
+    assert "Exit status" in _help_text(["plan", "--help"])
+
+
+def _help_text(argv) -> str:
+    import contextlib
+    import io
+
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf), pytest.raises(SystemExit):
+        main(argv)
+    return " ".join(buf.getvalue().split())
+
+
+def test_options_lead_with_what_can_be_bought(study):
+    plan = _plan(study, target=0.99, labels_owned=160)
+    opts = plan.options
+    groups = [0 if o.probability >= 0.8 else (1 if o.n_new > 0 else 2) for o in opts]
+    assert groups == sorted(groups) and groups[0] == 1 and 2 in groups
+    buy = [o.probability for o in opts if o.n_new > 0]
+    assert buy == sorted(buy, reverse=True)
+    data = json.loads((study / "plan.json").read_text())
+    assert [(o["method"], o["strategy"], o["n_labels"]) for o in data["options"]] == [
+        (o.method, o.strategy, o.n_labels) for o in opts]
+    plan = _plan(study, labels_owned=100)
+    assert plan.options[0].probability >= 0.8
+    sure = [o.cost for o in plan.options if o.probability >= 0.8]
+    assert sure == sorted(sure) and plan.options[0].cost == plan.chosen.cost
+
+
+def test_decision_counts_every_label(study, tmp_path):
+    plan = _plan(study)          # holdout study: 400 labeled, 150 kept for evaluation
+    lab = plan.to_dict()["labels"]
+    assert lab["owned_for_training"] == 250 and lab["kept_for_evaluation"] == 150
+    assert lab["to_buy"] == plan.chosen.n_new
+    assert lab["in_all"] == 400 + plan.chosen.n_new
+    assert (f"owned for training: 250; kept for evaluation: 150; to buy: "
+            f"{plan.chosen.n_new}") in plan.summary()
+    # Under cross-fitting every labeled row trains and is evaluated, in different repeats.
+    from semisup.plan._inputs import StudyFacts
+    from semisup.plan._make import label_counts
+
+    facts = StudyFacts(n_labeled=200, protocol="cross_fit", folds=5)
+    lab = label_counts(facts, 200, 40)
+    assert lab["owned_for_training"] == 200 and lab["kept_for_evaluation"] == 0
+    assert lab["evaluated_by_cross_fit"] == 200 and lab["in_all"] == 240
+    assert "160 train and 40 are evaluated" in lab["text"]
 
 
 def test_labels_owned_default_comes_from_study_json(study):

@@ -46,7 +46,8 @@ def test_restart_on_another_table_removes_every_old_output(tmp_path):
     _table().to_csv(first, index=False)
     out = tmp_path / "study"
     run_study(_spec(first), out, jobs=1, progress=False)
-    make_plan(out, PlanRequest(metric="accuracy", target=0.6, cost_per_label=1.0))
+    # --next: a list is written even when the target is out of reach
+    make_plan(out, PlanRequest(metric="accuracy", target=0.6, cost_per_label=1.0, n_next=3))
     write_report(out)
     (out / "my_notes.txt").write_text("kept")  # not ours: never removed
     old = {p.name for p in out.iterdir()}

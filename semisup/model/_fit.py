@@ -289,6 +289,12 @@ def fit_model(
     m = get_method(name)
     log.info("fitting %s for study %s", name, folder)
     ds, notes = _load_data(spec, data, info)
+    from ..study._rounds import apply_added_labels, read_added_labels
+
+    added = read_added_labels(folder)  # labels returned by annotators (semisup add-labels)
+    if len(added):
+        ds = apply_added_labels(ds, added, where=str(folder / "labels_added.csv"))
+        notes.append(f"{len(added)} labels added to the study (labels_added.csv) are used")
     y = np.asarray(ds.y, dtype=np.int64)
     n_classes = len(ds.class_names)
     labeled = np.flatnonzero(y >= 0)

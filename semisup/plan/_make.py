@@ -37,8 +37,9 @@ from ._inputs import (
 from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
 from ._pipeline import Forecasts, forecast_all
 from ._request import METRICS, PlanRequest
+from ._sheet import annotator_sheet, read_study_table
 
-__all__ = ["CURVE_COLUMNS", "Plan", "make_plan"]
+__all__ = ["CURVE_COLUMNS", "Plan", "label_counts", "make_plan", "order_options"]
 
 log = logging.getLogger(__name__)
 
@@ -70,6 +71,13 @@ class Plan:
     curves: pd.DataFrame = field(repr=False)
     n_max: dict[str, int] = field(default_factory=dict)
     evidence: dict = field(default_factory=dict)
+    labels: dict = field(default_factory=dict)
+    label_next_written: bool = True
+
+    @property
+    def reached(self) -> bool:
+        """True when some option meets the target with the confidence asked for."""
+        return self.chosen is not None
 
     def to_dict(self) -> dict:
         r = self.request
@@ -81,6 +89,8 @@ class Plan:
             "class_costs": dict(r.class_costs),
             "expected_price_per_label": self.label_price,
             "labels_owned": self.labels_owned,
+            "labels": dict(self.labels),
+            "reached": self.reached,
             "interval": INTERVAL,
             "max_extrapolation": MAX_EXTRAPOLATION,
             "chosen": None if self.chosen is None else self.chosen.to_dict(),
@@ -90,7 +100,8 @@ class Plan:
             "backtest": self.backtest,
             **self.evidence,
             "label_next": {"strategy": self.label_next_strategy,
-                           "n_rows": int(len(self.label_next))},
+                           "n_rows": int(len(self.label_next)),
+                           "written": self.label_next_written},
             "warnings": list(self.warnings),
         }
 
@@ -103,19 +114,20 @@ class Plan:
 
     def summary(self) -> str:
         r = self.request
-        lines = [f"Target: {r.metric} >= {r.target:g} with probability >= {r.confidence:g} "
-                 f"(training labels owned: {self.labels_owned}, expected price per label "
-                 f"{self.label_price:,.2f})."]
+        target = (f"Target: {r.metric} >= {r.target:g} with probability >= {r.confidence:g} "
+                  f"(expected price per label {self.label_price:,.2f}).")
+        lines: list[str] = []
         if self.chosen is not None:
             c = self.chosen
             if c.n_new > 0:
                 lines.append(f"Decision: buy {c.n_new} labels ({c.rounds} round(s)) and use "
-                             f"{c.method} with {c.strategy} selection, {c.n_labels} labels in "
-                             "all.")
+                             f"{c.method} with {c.strategy} selection, {c.n_labels} training "
+                             "labels in all.")
             else:
                 lines.append(f"Decision: no labels to buy; {c.method} trained on {c.n_labels} "
                              "of the labels you own is predicted to meet the target.")
-            lines.append(f"  {self._describe(c)}")
+            lines += [target, f"Labels: {self.labels.get('text', '')}",
+                      f"  {self._describe(c)}"]
             if self.runner_up is not None:
                 lines.append(f"Runner-up: {self._describe(self.runner_up)}")
             else:
@@ -124,7 +136,9 @@ class Plan:
         else:
             tail = (f"; the best is {self._describe(self.best)}" if self.best is not None
                     else "")
-            lines.append(f"Decision: not reachable with these data and methods{tail}.")
+            lines.append("Decision: do not buy labels. The target is not reachable with these "
+                         f"data and methods{tail}.")
+            lines += [target, f"Labels: {self.labels.get('text', '')}"]
             lines.append(f"  (Budgets up to {MAX_EXTRAPOLATION:g}x the largest measured one were "
                          "considered; measure larger budgets to look further.)")
         for b in self.backtest:
@@ -151,11 +165,17 @@ class Plan:
         note = (ev.get("selection") or {}).get("note")
         if note:
             lines.append(f"Overlap: {note}.")
-        lines.append(f"Rows to label next: {len(self.label_next)} "
-                     f"({self.label_next_strategy} selection) in label_next.csv.")
+        if self.label_next_written:
+            lines.append(f"Rows to label next: {len(self.label_next)} "
+                         f"({self.label_next_strategy} selection) in label_next.csv.")
+        else:
+            lines.append("Rows to label next: none listed, since nothing should be bought "
+                         "(pass --next N to list N rows anyway).")
         for w in self.warnings:
             lines.append(f"Warning: {w}")
-        lines.append(f"Wrote plan.json, curves.csv and label_next.csv in {self.study_dir}.")
+        written = "plan.json, curves.csv" + (" and label_next.csv" if self.label_next_written
+                                             else "")
+        lines.append(f"Wrote {written} in {self.study_dir}.")
         return "\n".join(lines)
 
 
@@ -200,6 +220,58 @@ def _owned(request: PlanRequest, facts: StudyFacts, warnings: list[str]) -> int:
     warnings.append("the number of labels owned is unknown (no n_labeled in study.json); "
                     "assumed 0, pass --labels-owned to set it")
     return 0
+
+
+def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
+                 owned_given: bool = False) -> dict:
+    """Every label of the decision: owned for training, kept for evaluation, to buy.
+
+    Under cross-fitting no label is set aside: each labeled row trains the model in some
+    repeats and is evaluated in the others, and the sentence says so.
+    """
+    n_lab = facts.n_labeled
+    out: dict = {"protocol": facts.protocol, "owned_for_training": int(labels_owned),
+                 "to_buy": int(to_buy), "kept_for_evaluation": 0}
+    source = " (from --labels-owned)" if owned_given else ""
+    if facts.protocol == "cross_fit" and n_lab is not None and not owned_given:
+        k = facts.folds
+        folds = (f" ({k} folds: in each repeat about {n_lab - n_lab // k} train and "
+                 f"{n_lab // k} are evaluated)" if k and k > 1 else "")
+        out["evaluated_by_cross_fit"] = int(n_lab)
+        out["text"] = (f"{n_lab} labeled rows in the table; under cross-fitting each of them "
+                       f"trains the model in some repeats and is evaluated in others{folds}, so "
+                       f"all {n_lab} count as owned for training and none is kept aside for "
+                       f"evaluation; to buy: {to_buy}; {n_lab + to_buy} labels in all.")
+    elif facts.protocol == "test_file":
+        n_eval = int(facts.n_eval or 0)
+        out["kept_for_evaluation"] = n_eval
+        out["text"] = (f"owned for training: {labels_owned}{source}; in the test file, for "
+                       f"evaluation only: {n_eval}; to buy: {to_buy}; "
+                       f"{labels_owned + n_eval + to_buy} labels in all.")
+    else:
+        kept = int(facts.n_holdout or 0) if facts.protocol != "cross_fit" else 0
+        out["kept_for_evaluation"] = kept
+        out["text"] = (f"owned for training: {labels_owned}{source}; kept for evaluation: "
+                       f"{kept}; to buy: {to_buy}; {labels_owned + kept + to_buy} labels in "
+                       "all.")
+    out["in_all"] = out["owned_for_training"] + out["kept_for_evaluation"] + out["to_buy"]
+    return out
+
+
+def order_options(options: list[Option], confidence: float) -> list[Option]:
+    """The options in the order the plan shows them: what can be bought first.
+
+    Options that meet the target with ``confidence``, cheapest first; then those that buy
+    labels, most likely to meet the target first; last the budgets the labels owned already
+    cover (nothing to buy) that do not meet it.
+    """
+    def key(o: Option) -> tuple:
+        reaches = o.probability >= confidence
+        group = 0 if reaches else (1 if o.n_new > 0 else 2)
+        return (group, o.cost if reaches else -o.probability, o.n_labels, o.method,
+                o.strategy)
+
+    return sorted(options, key=key)
 
 
 def _rivals(chosen: Option | None, fc: Forecasts, metric: str) -> list[Option]:
@@ -378,7 +450,7 @@ def make_plan(
 
     chosen, runner_up = choose(options, request.confidence)
     best = chosen if chosen is not None else best_effort(options)
-    options.sort(key=lambda o: (o.method, o.strategy, o.n_labels))
+    options = order_options(options, request.confidence)
     if chosen is not None and chosen.extrapolated:
         warnings.append(f"the chosen budget ({chosen.n_labels}) lies beyond the largest measured "
                         "budget; its prediction is extrapolated and its interval widened")
@@ -394,15 +466,16 @@ def make_plan(
                             f"cover the measured {metric} at {b['n_labels']} labels "
                             f"(error {b['error']:+.3f}); treat its extrapolation with care")
 
-    # Rows to label next.
-    # Unreachable target: still rank rows the way the best option would pick them.
+    # Rows to label next. Unreachable target: no purchase list unless --next asks for one
+    # (then ranked the way the best option would pick them).
     strategy = best.strategy if best is not None else "random"
     if request.n_next is not None:
         n_rows = int(request.n_next)
     elif chosen is not None:
         n_rows = chosen.n_new
     else:
-        n_rows = best.n_new if best is not None else 0
+        n_rows = 0
+    write_list = chosen is not None or request.n_next is not None
     select = select_rows if select_rows is not None else default_select_rows()
     label_next, strategy_used, lw = rank_rows(
         read_candidates(study_dir), strategy, n_rows,
@@ -419,9 +492,24 @@ def make_plan(
                 label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
                 curves=curves, n_max=n_max,
                 evidence=_evidence(fc, facts, eval_rows, rivals, note,
-                                   chosen if chosen is not None else best))
+                                   chosen if chosen is not None else best),
+                labels=label_counts(facts, labels_owned,
+                                    chosen.n_new if chosen is not None else 0,
+                                    owned_given=request.labels_owned is not None),
+                label_next_written=write_list)
     atomic_write_text(study_dir / "curves.csv", curves.to_csv(index=False))
-    atomic_write_text(study_dir / "label_next.csv", plan.label_next.to_csv(index=False))
+    if write_list:
+        table, id_column, label_column, sw = read_study_table(study)
+        sheet, more = annotator_sheet(plan.label_next, table, id_column=id_column,
+                                      label_column=label_column, study=study)
+        plan.warnings.extend(sw + more)
+        # CRLF line ends (RFC 4180): the csv writer then quotes a cell holding a lone CR,
+        # which a "\n" line end would leave bare, splitting the row in a spreadsheet.
+        atomic_write_text(study_dir / "label_next.csv",
+                          sheet.to_csv(index=False, lineterminator="\r\n"))
+    else:
+        # an older plan's list must not be taken for this plan's
+        (study_dir / "label_next.csv").unlink(missing_ok=True)
     atomic_write_text(study_dir / "plan.json",
                       json.dumps(_jsonable(plan.to_dict()), indent=2) + "\n")
     log.info("plan written to %s", study_dir / "plan.json")

@@ -235,7 +235,10 @@ def _decision_lines(plan: Mapping, currency: str = "") -> list[str]:
             + (f", {money(plan.get('cost_per_round'), currency)} per labeling round"
                if plan.get("cost_per_round") else "") + ".")
     owned = plan.get("labels_owned")
-    if owned is not None:
+    labels = plan.get("labels") or {}
+    if labels.get("text"):
+        head += f" Labels: {labels['text']}"
+    elif owned is not None:
         head += f" Training labels owned: {count(owned)}."
     chosen = plan.get("chosen")
     if chosen:
@@ -248,7 +251,8 @@ def _decision_lines(plan: Mapping, currency: str = "") -> list[str]:
     else:
         best = plan.get("best")
         tail = f"; the best is {_describe(best, metric, currency, kind)}." if best else "."
-        lines = [head, f"Decision: not reachable with these data and methods{tail}"]
+        lines = [f"Decision: do not buy labels; the target is not reachable with these data "
+                 f"and methods{tail}", head]
     return lines
 
 
@@ -400,9 +404,10 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
     def reaches(o: Mapping) -> bool:
         return float(o.get("probability") or 0) >= confidence
 
-    # Options that reach the target with the asked confidence, cheapest first; then the
-    # others, most likely first (ordering only).
-    options.sort(key=lambda o: (not reaches(o),
+    # Options that reach the target with the asked confidence, cheapest first; then those
+    # that buy labels, most likely first; last the budgets already owned (the order of
+    # plan.json, semisup.plan.order_options; re-sorted here for older plan files).
+    options.sort(key=lambda o: (0 if reaches(o) else (1 if (o.get("n_new") or 0) > 0 else 2),
                                 float(o.get("cost") or 0) if reaches(o)
                                 else -float(o.get("probability") or 0),
                                 o.get("n_labels") or 0))
@@ -421,8 +426,9 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
         s.table(Table(["method", "strategy", "training labels", "predicted", brief,
                        "probability of meeting the target", "cost", "extrapolated"], rows, hl,
                       caption="Options: those that reach the target with the confidence asked "
-                              "for, cheapest first, then the others, most likely first (the "
-                              "plan's choice highlighted)"
+                              "for, cheapest first, then those that buy labels, most likely "
+                              "first, then budgets already owned (the plan's choice "
+                              "highlighted)"
                       + (f"; {more} more in plan.json" if more > 0 else "")))
     bt = plan.get("backtest") or []
     if bt:
@@ -460,7 +466,11 @@ def _evidence_section(plan: Mapping | None, study: Mapping, study_dir: Path) -> 
 def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None) -> Section:
     s = Section("label-next", "Rows to label next")
     if label_next is None:
-        s.para("No label_next.csv yet; 'semisup plan' writes it.", "note")
+        if plan and (plan.get("label_next") or {}).get("written") is False:
+            s.para("No rows to label: the plan found nothing worth buying ('semisup plan "
+                   "--next N' lists N rows anyway).", "note")
+        else:
+            s.para("No label_next.csv yet; 'semisup plan' writes it.", "note")
         return s
     if label_next.empty:
         s.para("label_next.csv lists no rows (nothing to buy, or no candidates).", "note")

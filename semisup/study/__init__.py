@@ -4,18 +4,24 @@ from __future__ import annotations
 
 from ._draws import default_budgets, nested_draws, split_holdout
 from ._metrics import METRICS, holdout_metrics, summarize_curves, wilson_interval
+from ._rounds import ADDED_LABELS_FILE, SHEET_STUDY_COLUMN, AddResult, add_labels, study_id
 from ._runner import StudyResult, run_study
 from ._spec import StudySpec
 
 __all__ = [
+    "ADDED_LABELS_FILE",
     "METRICS",
+    "SHEET_STUDY_COLUMN",
+    "AddResult",
     "StudyResult",
     "StudySpec",
+    "add_labels",
     "default_budgets",
     "holdout_metrics",
     "nested_draws",
     "run_study",
     "split_holdout",
+    "study_id",
     "summarize_curves",
     "wilson_interval",
 ]

@@ -52,6 +52,10 @@ class StudyDesign:
     kinds: set[str]
     fingerprint: str
     test: Any = None
+    #: the fingerprint without the labels added by rounds (labels_added.csv): a study whose
+    #: base is unchanged but whose added labels grew is a new round, not another spec
+    base_fingerprint: str = ""
+    n_added_labels: int = 0
 
     def eval_idx(self, repeat: int) -> np.ndarray:
         return self.evals[self.repeat_fold[repeat]]
@@ -150,8 +154,11 @@ def _crossfit(spec: StudySpec, ds, y, labeled):
 
 
 def make_design(spec: StudySpec, dataset: Any = None, *,
-                injected_representation: bool = False) -> StudyDesign:
+                injected_representation: bool = False, added: Any = None) -> StudyDesign:
     """Read the data (unless ``dataset`` is given) and fix the study's design.
+
+    ``added`` (:class:`semisup.study._rounds.AddedLabels`) are labels returned by annotators;
+    they are set on the table's rows before anything else and enter the fingerprint.
 
     Raises :class:`DataError` / :class:`ConfigError` with one line for data or options the
     study cannot use.
@@ -159,6 +166,11 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     from ..methods import get_method
 
     ds = dataset if dataset is not None else _load_dataset(spec)
+    n_added = len(added) if added is not None else 0
+    if n_added:
+        from ._rounds import ADDED_LABELS_FILE, apply_added_labels
+
+        ds = apply_added_labels(ds, added, where=ADDED_LABELS_FILE)
     y = np.asarray(ds.y, dtype=np.int64)
     n_classes = len(ds.class_names)
     n_table = len(y)
@@ -218,11 +230,16 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         )
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
     kinds = {m.representation for m in methods.values()} - {"raw"}
-    fingerprint = _fingerprint(resolved, kinds, ds, injected_representation, test)
+    base = _fingerprint(resolved, kinds, ds, injected_representation, test)
+    fingerprint = base
+    if n_added:  # the table's hash does not change with added labels; their content does
+        pairs = "\n".join(f"{i}\0{lab}" for i, lab in zip(added.row_ids, added.labels,
+                                                           strict=True))
+        fingerprint = hashlib.sha256((base + "\0added\0" + pairs).encode("utf-8")).hexdigest()
     return StudyDesign(
         spec=resolved, ds=ds, y=y, n_classes=n_classes, n_table_rows=n_table, labeled=labeled,
         unlabeled_idx=unlabeled_idx, protocol=protocol, n_folds=n_folds, evals=evals,
         pools=pools, repeat_fold=repeat_fold, representation_rows=rep_rows,
         final_train_idx=final, budgets=budgets, methods=methods, kinds=kinds,
-        fingerprint=fingerprint, test=test,
+        fingerprint=fingerprint, test=test, base_fingerprint=base, n_added_labels=n_added,
     )

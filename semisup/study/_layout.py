@@ -35,6 +35,7 @@ OUTPUT_FILES = (
     "cells.csv", "cells.parquet", "curves.csv", "study.json", "candidates.npz",
     "data_card.md", "data_card.json",
     "plan.json", "label_next.csv",
+    "labels_added.csv",
     "report.html",
 )
 #: Folders written in the study folder (everything inside them is ours).
@@ -80,14 +81,17 @@ def check_input_outside_outputs(data: str | os.PathLike[str] | None,
             )
 
 
-def remove_outputs(out_dir: str | os.PathLike[str]) -> list[str]:
-    """Delete every output of an earlier study in ``out_dir`` (for ``--restart``).
+def remove_outputs(out_dir: str | os.PathLike[str], *, keep: tuple[str, ...] = ()) -> list[str]:
+    """Delete every output of an earlier study in ``out_dir`` (for ``--restart``), except
+    the names in ``keep`` (a new labeling round keeps labels_added.csv and the cache).
 
     Returns the names removed. Files the study does not write are left alone.
     """
     out = Path(out_dir)
     removed: list[str] = []
     for path in output_paths(out):
+        if path.name in keep:
+            continue
         try:
             if path.is_dir() and not path.is_symlink():
                 shutil.rmtree(path)

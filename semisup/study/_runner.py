@@ -25,6 +25,7 @@ from ._info import PROTOCOL_NOTES, study_info
 from ._layout import check_input_outside_outputs, check_out_folder, remove_outputs
 from ._lock import study_lock
 from ._representations import fit_representations
+from ._rounds import ADDED_LABELS_FILE, is_new_round, read_added_labels
 from ._spec import StudySpec
 from ._store import Store
 
@@ -131,11 +132,20 @@ def run_study(
 
 def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, dataset,
                 representation_fn, progress) -> StudyResult:
-    design = make_design(spec, dataset, injected_representation=representation_fn is not None)
+    # labels returned by annotators (semisup add-labels); a restart discards them
+    added = None if restart else read_added_labels(out)
+    design = make_design(spec, dataset, injected_representation=representation_fn is not None,
+                         added=added)
     resolved, ds, y, methods = design.spec, design.ds, design.y, design.methods
     if restart:  # every output of the old study goes, not only its store
         remove_outputs(out)
+    elif is_new_round(out, design):  # labels were added: the cells run again on them
+        log.info("%d added labels: a new round, the cells are measured again",
+                 design.n_added_labels)
+        remove_outputs(out, keep=(ADDED_LABELS_FILE, "cache"))
     store = Store(out / "study.sqlite", design.fingerprint, restart=restart)
+    if store.get_meta("base_fingerprint") is None:
+        store.set_meta("base_fingerprint", design.base_fingerprint)
     try:
         # ---- unsupervised stage: once per study, on features only (never a label)
         features, diagnostics, rep_errors, rep_seconds = fit_representations(

@@ -1,0 +1,97 @@
+"""The annotator's sheet: ``label_next.csv`` with the rows' own data and a label to fill in.
+
+The plan ranks rows (``rank, row_id, reason``, :mod:`._label_next`); this module joins each
+ranked row to its own columns in the study's table, adds an empty column named after the
+study's label column and a column naming the study the sheet belongs to
+(:data:`semisup.study.SHEET_STUDY_COLUMN`, checked when labels come back), and neutralises
+every cell a spreadsheet would run as a formula (:func:`semisup._escape.neutralise_frame`).
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Mapping
+from pathlib import Path
+
+import pandas as pd
+
+from .._errors import SemisupError
+from .._escape import neutralise_frame, restore_cell
+from ..study import SHEET_STUDY_COLUMN, study_id
+from ._label_next import LABEL_NEXT_COLUMNS
+
+__all__ = ["annotator_sheet", "read_study_table"]
+
+log = logging.getLogger(__name__)
+
+
+def read_study_table(study: Mapping) -> tuple[pd.DataFrame | None, str | None, str | None,
+                                                list[str]]:
+    """The study's own table, indexed by row id, with its id and label column names.
+
+    Returns ``(table or None, id_column, label_column, warnings)``; the table is None (and a
+    warning says why) when study.json does not name it or it cannot be read any more.
+    """
+    from ..data import read_table
+
+    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
+    path = spec.get("data") or data.get("source")
+    label_column = spec.get("label_column")
+    id_column = spec.get("id_column")
+    if not path:
+        return None, id_column, label_column, [
+            "study.json does not name the study's table, so label_next.csv lists row ids "
+            "without the rows' data"]
+    try:
+        frame = read_table(Path(path), delimiter=spec.get("delimiter"),
+                           encoding=spec.get("encoding"),
+                           text_columns=(id_column,) if id_column else ())
+    except (SemisupError, OSError) as exc:
+        return None, id_column, label_column, [
+            f"the study's table {path} cannot be read ({exc}), so label_next.csv lists row "
+            "ids without the rows' data"]
+    frame.columns = [str(c) for c in frame.columns]
+    if id_column and id_column in frame.columns:
+        ids = frame[id_column].astype(str)
+    else:
+        ids = pd.Series(range(len(frame))).astype(str)
+    frame = frame.set_axis(ids.to_numpy(), axis=0)
+    return frame, id_column, label_column, []
+
+
+def annotator_sheet(ranked: pd.DataFrame, table: pd.DataFrame | None, *,
+                    id_column: str | None, label_column: str | None,
+                    study: Mapping) -> tuple[pd.DataFrame, list[str]]:
+    """The sheet an annotator fills in, neutralised for spreadsheets.
+
+    Columns: ``rank, row_id, reason``, the label column (empty, named after the study's label
+    column, or ``label``), the row's own columns from ``table`` (its id and label columns
+    left out: ``row_id`` is the id and the label is to be filled in), and last
+    :data:`SHEET_STUDY_COLUMN`, the study's id.
+    """
+    warnings: list[str] = []
+    label = str(label_column) if label_column else "label"
+    taken = set(LABEL_NEXT_COLUMNS) | {label, SHEET_STUDY_COLUMN}
+    sheet = ranked[LABEL_NEXT_COLUMNS].copy()
+    for column in ("row_id", "reason"):  # ranked rows come neutralised; neutralise once
+        sheet[column] = sheet[column].map(restore_cell)
+    sheet[label] = ""
+    if table is not None and not sheet.empty:
+        own = [c for c in table.columns if c not in (id_column, label_column)]
+        clash = [c for c in own if c in taken]
+        if clash:
+            warnings.append(f"the table's column(s) {', '.join(map(repr, clash))} share a name "
+                            "with a column of label_next.csv and are left out of it")
+        own = [c for c in own if c not in taken]
+        ids = sheet["row_id"].astype(str)
+        found = ids.isin(table.index)
+        if not found.all():
+            warnings.append(f"{int((~found).sum())} listed row ids are not in the study's "
+                            "table any more; their data columns are left empty")
+        rows = table.reindex(ids.to_numpy())[own].reset_index(drop=True)
+        sheet = pd.concat([sheet.reset_index(drop=True), rows], axis=1)
+    sheet[SHEET_STUDY_COLUMN] = study_id(study) or ""
+    # Ids, values and column names like "=HYPERLINK(...)" would run as formulas when an
+    # annotator opens the sheet (OWASP, "CSV Injection").
+    return neutralise_frame(sheet), warnings

@@ -1,0 +1,297 @@
+"""Labeling rounds: the study's own labeled set, grown by labels that come back.
+
+The user's table is never modified. Labels returned by annotators (``semisup add-labels``)
+are merged into :data:`ADDED_LABELS_FILE` in the study folder (columns ``row_id``,
+``label``), written atomically; the study design reads it as an overlay on the table's
+labels (:func:`read_added_labels`, :func:`apply_added_labels`).
+
+A sheet the plan writes names the study it belongs to in :data:`SHEET_STUDY_COLUMN`:
+:func:`study_id` (a digest of the table's content, its label column and its id column), so a
+sheet returned to the wrong study folder is refused.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import logging
+import os
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .._atomic import atomic_write_text
+from .._errors import DataError
+
+__all__ = ["ADDED_LABELS_FILE", "SHEET_STUDY_COLUMN", "AddResult", "AddedLabels",
+           "add_labels", "apply_added_labels", "read_added_labels", "study_id",
+           "write_added_labels"]
+
+log = logging.getLogger(__name__)
+
+#: The study's own added labels (row_id, label), beside the user's table.
+ADDED_LABELS_FILE = "labels_added.csv"
+#: Column of label_next.csv naming the study the sheet was made for.
+SHEET_STUDY_COLUMN = "semisup_study"
+
+
+def study_id(study: Mapping) -> str | None:
+    """A short id of the study a sheet belongs to, from study.json (None if unknown).
+
+    Built from the table's sha256 and the label and id columns: unchanged by added labels
+    (the table is never modified), different for another table or another label column.
+    """
+    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
+    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    digest = data.get("sha256")
+    if not digest:
+        return None
+    key = "\0".join([str(digest), str(spec.get("label_column")), str(spec.get("id_column"))])
+    return hashlib.sha256(key.encode("utf-8")).hexdigest()[:16]
+
+
+@dataclass(frozen=True)
+class AddedLabels:
+    """Labels added to a study: ``row_ids`` and ``labels`` (strings), in file order."""
+
+    row_ids: tuple[str, ...]
+    labels: tuple[str, ...]
+
+    def __len__(self) -> int:
+        return len(self.row_ids)
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame({"row_id": list(self.row_ids), "label": list(self.labels)},
+                            dtype=object)
+
+
+def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
+    """The labels added to the study in ``out_dir`` (none when the file is absent)."""
+    path = Path(out_dir) / ADDED_LABELS_FILE
+    if not path.is_file():
+        return AddedLabels((), ())
+    try:
+        frame = pd.read_csv(path, dtype=str, keep_default_na=False)
+    except (ValueError, OSError) as exc:
+        raise DataError(f"{path} cannot be read ({exc}); remove it or restore it from "
+                        "a backup") from None
+    if list(frame.columns[:2]) != ["row_id", "label"]:
+        raise DataError(f"{path} should have the columns row_id, label; remove it or restore "
+                        "it from a backup")
+    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]))
+
+
+def write_added_labels(out_dir: str | os.PathLike[str], added: AddedLabels) -> Path:
+    """Write ``added`` as the study's added labels, atomically."""
+    path = Path(out_dir) / ADDED_LABELS_FILE
+    buf = io.StringIO()
+    added.to_frame().to_csv(buf, index=False)
+    atomic_write_text(path, buf.getvalue())
+    return path
+
+
+def apply_added_labels(ds, added: AddedLabels, *, where: str = ADDED_LABELS_FILE):
+    """``ds`` (a Dataset) with the added labels set on its rows (a new Dataset).
+
+    Classes not in ``ds.class_names`` join them, sorted the way the data layer sorts them.
+    A row id that is not in the table, or a label contradicting the table's, is a DataError.
+    """
+    if not len(added):
+        return ds
+    from dataclasses import replace
+
+    from ..data._labels import sort_class_names
+
+    ids = pd.Index(np.asarray(ds.row_ids).astype(str))
+    pos = ids.get_indexer(list(added.row_ids))
+    if (pos < 0).any():
+        bad = added.row_ids[int(np.flatnonzero(pos < 0)[0])]
+        raise DataError(f"{where}: row id {bad!r} is not in the study's table; the table "
+                        "changed since the labels were added, so start again with --restart")
+    classes = list(ds.class_names)
+    new = sorted(set(added.labels) - set(classes))
+    names = sort_class_names(classes + new) if new else classes
+    remap = np.array([names.index(c) for c in classes], dtype=np.int64)
+    y = np.where(ds.y >= 0, remap[np.clip(ds.y, 0, None)] if len(remap) else ds.y, -1)
+    for p, label in zip(pos, added.labels, strict=True):
+        if y[p] >= 0 and names[y[p]] != label:
+            raise DataError(f"{where}: row {added.row_ids[list(pos).index(p)]!r} is labeled "
+                            f"{names[y[p]]!r} in the table but {label!r} here; fix one of them")
+        y[p] = names.index(label)
+    return replace(ds, y=y.astype(np.int64), class_names=names)
+
+
+@dataclass(frozen=True)
+class AddResult:
+    """What ``add_labels`` did: rows added, rows already known, the file written."""
+
+    n_added: int
+    n_known: int
+    n_blank: int
+    path: Path
+    new_classes: tuple[str, ...] = ()
+
+    def summary(self) -> str:
+        text = (f"added {self.n_added} label(s) to {self.path}; {self.n_known} row(s) already "
+                f"carried the same label, {self.n_blank} row(s) of the sheet were left blank")
+        if self.new_classes:
+            text += f"; new class(es): {', '.join(self.new_classes)}"
+        return text + ". Run 'semisup study' on the folder again to use them."
+
+
+def _read_json(path: Path) -> dict:
+    import json
+
+    if not path.is_file():
+        raise DataError(f"{path.parent} is not a study folder ({path.name} is missing); run "
+                        "'semisup study' first, or give the study's --out folder")
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (ValueError, OSError) as exc:
+        raise DataError(f"{path} cannot be read ({exc}); run the study again") from None
+    return data if isinstance(data, dict) else {}
+
+
+def _column(frame: pd.DataFrame, name: str, where: str, what: str) -> str:
+    from .._escape import neutralise_cell
+
+    for candidate in (name, neutralise_cell(name)):
+        if candidate in frame.columns:
+            return candidate
+    raise DataError(f"{where} has no column {name!r} ({what}); return the sheet that "
+                    "'semisup plan' wrote, with that column kept")
+
+
+def _returned_labels(study: Mapping, returned: Path) -> tuple[list[str], list[str], int]:
+    """``(row ids, labels, blank rows)`` of a returned sheet, quotes taken off, checked."""
+    from .._escape import restore_cell
+    from ..data import read_table
+
+    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    label_column = str(spec.get("label_column") or "label")
+    where = str(returned)
+    frame = read_table(returned, text_columns=("row_id", label_column, SHEET_STUDY_COLUMN))
+    frame.columns = [str(c) for c in frame.columns]
+    id_col = _column(frame, "row_id", where, "the row ids")
+    lab_col = _column(frame, label_column, where, "the labels to fill in")
+    if SHEET_STUDY_COLUMN in frame.columns:
+        mine = study_id(study)
+        theirs = {str(v).strip() for v in frame[SHEET_STUDY_COLUMN].dropna()} - {""}
+        other = sorted(theirs - {mine}) if mine else []
+        if other:
+            raise DataError(f"{where}: column {SHEET_STUDY_COLUMN!r} says the sheet was made for "
+                            f"study {other[0]!r}, not this one ({mine!r}); return it to the "
+                            "study folder whose plan wrote it")
+    ids = [restore_cell(str(v)) if pd.notna(v) else "" for v in frame[id_col]]
+    labels = [restore_cell(str(v)).strip() if pd.notna(v) else "" for v in frame[lab_col]]
+    if any(i == "" for i in ids):
+        row = ids.index("") + 2
+        raise DataError(f"{where}: column {id_col!r} is empty at line {row}; every row of the "
+                        "sheet needs its row id")
+    seen: dict[str, int] = {}
+    for i, rid in enumerate(ids):
+        if rid in seen:
+            raise DataError(f"{where}: row id {rid!r} appears twice (lines {seen[rid] + 2} and "
+                            f"{i + 2}); keep one line per row")
+        seen[rid] = i
+    filled = [(r, lab) for r, lab in zip(ids, labels, strict=True) if lab]
+    if not filled:
+        raise DataError(f"{where}: column {lab_col!r} holds no label; fill in the labels "
+                        "before returning the sheet")
+    return [r for r, _ in filled], [lab for _, lab in filled], len(ids) - len(filled)
+
+
+def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[str], *,
+               allow_new_classes: bool = False) -> AddResult:
+    """Merge the labels of a returned sheet into the study's own labeled set.
+
+    Every check runs before anything is written; a bad sheet is a one-line DataError and
+    leaves the study folder as it was. The user's table is never modified.
+
+    Parameters
+    ----------
+    study_dir : the study folder (its study.json names the table and the label column).
+    returned : the sheet (CSV, TSV, Parquet or .xlsx) with ``row_id`` and the label column.
+    allow_new_classes : accept labels of classes the study has never seen.
+    """
+    from ..data import load_dataset
+
+    out = Path(study_dir)
+    study = _read_json(out / "study.json")
+    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    ids, labels, n_blank = _returned_labels(study, Path(returned))
+    if not spec.get("data") or not spec.get("label_column"):
+        raise DataError(f"{out / 'study.json'} does not name the study's table and label "
+                        "column; run 'semisup study' again")
+    ds = load_dataset(spec["data"], label_column=spec["label_column"],
+                      id_column=spec.get("id_column"),
+                      unlabeled_markers=tuple(spec.get("unlabeled_markers") or ()),
+                      kinds=dict(spec.get("kinds") or {}), delimiter=spec.get("delimiter"),
+                      encoding=spec.get("encoding"))
+    before = read_added_labels(out)
+    current = apply_added_labels(ds, before)
+    table_ids = pd.Index(np.asarray(current.row_ids).astype(str))
+    pos = table_ids.get_indexer(ids)
+    if (pos < 0).any():
+        bad = [ids[i] for i in np.flatnonzero(pos < 0)]
+        raise DataError(f"{returned}: row id {bad[0]!r} is not in the study's table "
+                        f"{spec['data']} ({len(bad)} unknown id(s)); return only rows of "
+                        "label_next.csv")
+    names = list(current.class_names)
+    new = sorted({lab for lab in labels if lab not in names})
+    if new and not allow_new_classes:
+        raise DataError(f"{returned}: label {new[0]!r} is not a class of the study (classes: "
+                        f"{', '.join(names)}); correct it, or pass --allow-new-class if it "
+                        "really is a new class")
+    added_ids, added_labels = list(before.row_ids), list(before.labels)
+    n_known = 0
+    for rid, label, p in zip(ids, labels, pos, strict=True):
+        old = int(current.y[p])
+        if old >= 0:
+            if names[old] != label:
+                raise DataError(f"{returned}: row {rid!r} is labeled {label!r} here but "
+                                f"{names[old]!r} already (in the table or an earlier return); "
+                                "correct the sheet")
+            n_known += 1
+            continue
+        added_ids.append(rid)
+        added_labels.append(label)
+    path = write_added_labels(out, AddedLabels(tuple(added_ids), tuple(added_labels)))
+    log.info("added %d labels to %s", len(added_ids) - len(before), path)
+    return AddResult(n_added=len(added_ids) - len(before), n_known=n_known, n_blank=n_blank,
+                     path=path, new_classes=tuple(new))
+
+
+def stored_meta(store_path: str | os.PathLike[str], key: str) -> str | None:
+    """A value of an existing study store's meta table, read only (None if absent)."""
+    import sqlite3
+
+    path = Path(store_path)
+    if not path.is_file():
+        return None
+    try:
+        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30)
+        try:
+            row = con.execute("SELECT value FROM meta WHERE key = ?", (key,)).fetchone()
+        finally:
+            con.close()
+    except sqlite3.DatabaseError:
+        return None
+    return None if row is None else str(row[0])
+
+
+def is_new_round(out_dir: str | os.PathLike[str], design) -> bool:
+    """True when the folder's store holds the same study before labels were added.
+
+    Same base fingerprint (spec and table), another fingerprint (the added labels changed).
+    Then the old cells no longer measure this design and the runner starts the cells again,
+    keeping labels_added.csv and the content-keyed cache of the unsupervised stage.
+    """
+    store = Path(out_dir) / "study.sqlite"
+    old = stored_meta(store, "fingerprint")
+    if old is None or old == design.fingerprint:
+        return False
+    return stored_meta(store, "base_fingerprint") == design.base_fingerprint
