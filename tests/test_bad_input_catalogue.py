@@ -558,11 +558,12 @@ def test_plan_label_next_neutralises_formula_ids(tmp_path, monkeypatch):
     run_study(spec, tmp_path / "study", jobs=1, progress=False)
     result = run_cli(["plan", "study", "--target", "accuracy=0.6", "--cost-per-label", "1",
                       "--next", "30"], tmp_path, monkeypatch, [data])
-    assert result.code == 0, result.stderr
+    reached = json.loads((tmp_path / "study" / "plan.json").read_text())["reached"]
+    assert result.code == (0 if reached else 3), result.stderr  # 3: target not reachable
     sheet = pd.read_csv(tmp_path / "study" / "label_next.csv", dtype=str, keep_default_na=False)
     assert len(sheet) == 30
     # OWASP CSV injection: no cell may start with = + - @ unless it is a plain number
     for value in sheet.to_numpy().ravel():
-        if value[:1] in "=+-@":
+        if value and value[0] in "=+-@":  # ("" is in every string: the empty label cells)
             assert value.lstrip("+-").replace(".", "", 1).isdigit(), value
     assert any(v.startswith("'=HYPERLINK") for v in sheet["row_id"])
