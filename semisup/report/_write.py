@@ -43,7 +43,7 @@ log = logging.getLogger(__name__)
 
 CAUTIONS = (
     "A classifier trained on few labels can be badly wrong, and wrong with confidence: the "
-    "holdout numbers above are estimates from a small sample, not guarantees.",
+    "measured numbers above are estimates from a small evaluation sample, not guarantees.",
     "Predictions beyond the largest measured budget are extrapolations of a fitted curve; "
     "check them by labeling in rounds and measuring again.",
     "Decisions about people, health or safety need review by qualified people and must follow "
@@ -167,6 +167,13 @@ def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, s
     return below[-1], why
 
 
+def _eval_rows_label(facts) -> str:
+    """What the evaluation-row count means under the study's protocol."""
+    if getattr(facts, "protocol", "holdout") == "cross_fit":
+        return "evaluation rows per repeat (cross-fit: each labeled row is evaluated in turn)"
+    return "holdout rows (evaluation only)"
+
+
 def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan,
                      card: Mapping, currency: str) -> Section:
     s = Section("summary", "Job summary")
@@ -180,7 +187,7 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
     for label, value in (("rows in the table", facts.n_rows),
                          ("labeled rows", facts.n_labeled),
                          ("unlabeled rows", facts.n_unlabeled),
-                         ("holdout rows (evaluation only)", facts.n_holdout)):
+                         (_eval_rows_label(facts), facts.n_holdout)):
         if value is not None:
             rows.append([label, count(value)])
     classes = _find(study, "class_names", "classes")
@@ -314,8 +321,9 @@ def _curves_section(curves, plan, study: Mapping, facts, figures_dir: Path,
     fitted_kind = interval_name((plan or {}).get("interval"), "bootstrap")
     fitted = (~curves["measured"]).any()
     s.para(f"One panel per method family, on a shared scale. Points: measured mean on the "
-           f"holdout; bars: {measured_kind}."
-           + (f" Lines: the fitted inverse power law error(n) = a + b n^(-c); bands: "
+           f"evaluation rows; bars: {measured_kind}."
+           + (f" Lines: the fitted learning curve (curve families weighted by their backtests; "
+              f"see 'Evidence behind the forecast'); bands: "
               f"{fitted_kind}; the grey area is extrapolated beyond the largest measured budget."
               if fitted else " No curves are fitted until a plan is made ('semisup plan').")
            + " The lower axis counts training labels; the upper axis adds the labels kept for "
@@ -392,8 +400,9 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
     s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
     kind = interval_name(plan.get("interval"), "bootstrap")
     s.para(f"Predicted: the fitted curve at that budget, with its {kind}. Probability: "
-           "the share of bootstrap curves (repeats resampled, the holdout's sampling error "
-           "added when its size is known) whose predicted metric meets the target. Cost: "
+           "the share of calibrated bootstrap curves (repeats resampled; the sampling error of "
+           "evaluation rows shared by every repeat added) whose predicted metric meets the "
+           "target. Cost: "
            "labels still to buy times the expected price per label, plus the price of each "
            "labeling round" + (f", in {currency}" if currency else "") + ".", "note")
     options = list(plan.get("options") or [])
