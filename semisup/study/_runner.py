@@ -43,7 +43,7 @@ class StudyResult:
     info: dict[str, Any] = field(default_factory=dict)
 
     def summary(self) -> str:
-        """A few readable lines: cells by status, the best methods at the largest budget."""
+        """A few readable lines: cells by status, the lead metric where the repeats differ."""
         c = self.cells
         counts = c["status"].value_counts().to_dict() if len(c) else {}
         lines = [
@@ -53,12 +53,12 @@ class StudyResult:
         ]
         ok = c[(c["status"] == "ok") & (c["strategy"] == "random")] if len(c) else c
         if len(ok):
-            top = int(ok["n_labels"].max())
-            at = ok[ok["n_labels"] == top].groupby("method")["accuracy"].agg(["mean", "min",
-                                                                                "max", "size"])
+            metric, at_n = summary_metric(self.info), summary_budget(self.info, ok["n_labels"])
+            at = ok[ok["n_labels"] == at_n].groupby("method")[metric].agg(["mean", "min", "max",
+                                                                          "size"])
             at = at.sort_values("mean", ascending=False)
-            lines.append(f"accuracy on the evaluation rows at {top} labels (mean, range over "
-                         "repeats):")
+            lines.append(f"{metric.replace('_', ' ')} on the evaluation rows at {at_n} labels "
+                         "(mean, range over repeats):")
             for name, r in at.head(5).iterrows():
                 lines.append(f"  {name:<28} {r['mean']:.3f}  ({r['min']:.3f}-{r['max']:.3f}, "
                              f"{int(r['size'])} repeats)")
@@ -66,6 +66,33 @@ class StudyResult:
             lines.append(f"warning: {w}")
         lines.append(f"wrote cells.csv, curves.csv, study.json, candidates.npz in {self.out_dir}")
         return "\n".join(lines)
+
+
+def summary_metric(info: dict) -> str:
+    """Balanced accuracy when the labeled classes are imbalanced (the data card's rule), else
+    accuracy."""
+    from ..data._card import IMBALANCE_RATIO
+
+    counts = [int(v) for v in ((info.get("data") or {}).get("class_counts") or {}).values()]
+    if counts and min(counts) > 0 and max(counts) / min(counts) >= IMBALANCE_RATIO:
+        return "balanced_accuracy"
+    return "accuracy"
+
+
+def summary_budget(info: dict, budgets: pd.Series) -> int:
+    """The largest budget at which the repeats train on different rows.
+
+    With one evaluation set shared by every repeat (holdout, test file), a budget equal to the
+    whole pool gives every repeat the same training rows, so its range says nothing.
+    """
+    levels = sorted({int(b) for b in budgets})
+    evaluation = info.get("evaluation") or {}
+    pool = evaluation.get("n_pool_min")
+    if evaluation.get("shared_across_repeats") and pool is not None and len(levels) > 1:
+        below = [b for b in levels if b < int(pool)]
+        if below:
+            return below[-1]
+    return levels[-1]
 
 
 def _progress(total: int, enabled: bool | None):

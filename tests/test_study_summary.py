@@ -1,0 +1,40 @@
+"""The study's console summary leads with the metric the card advises, where repeats differ."""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from semisup.study._runner import StudyResult, summary_budget, summary_metric
+
+
+def _info(counts, shared, pool):
+    return {"data": {"class_counts": counts},
+            "evaluation": {"shared_across_repeats": shared, "n_pool_min": pool}}
+
+
+def test_imbalanced_classes_lead_with_balanced_accuracy():
+    # The card's own rule (largest / smallest labeled class >= 3 is imbalanced; common
+    # practice, no source): accuracy hides a minority class there.
+    assert summary_metric(_info({"a": 90, "b": 10}, False, 80)) == "balanced_accuracy"
+    assert summary_metric(_info({"a": 50, "b": 40}, False, 80)) == "accuracy"
+
+
+def test_shared_evaluation_skips_the_whole_pool_budget():
+    budgets = pd.Series([10, 50, 100, 100])
+    # holdout: at 100 = the pool every repeat trains on the same rows, so 50 is shown
+    assert summary_budget(_info({}, True, 100), budgets) == 50
+    # cross-fit: each repeat has its own pool, so the largest budget already differs
+    assert summary_budget(_info({}, False, 100), budgets) == 100
+
+
+def test_summary_prints_the_chosen_metric_and_budget(tmp_path):
+    rows = []
+    for repeat, (acc, bal) in enumerate([(0.9, 0.6), (0.8, 0.5)]):
+        for n in (10, 20):
+            rows.append({"method": "m", "n_labels": n, "repeat": repeat, "strategy": "random",
+                         "status": "ok", "accuracy": acc, "balanced_accuracy": bal})
+    result = StudyResult(out_dir=tmp_path, cells=pd.DataFrame(rows),
+                         info=_info({"a": 90, "b": 10}, True, 20))
+    text = result.summary()
+    assert "balanced accuracy on the evaluation rows at 10 labels" in text
+    assert "0.550  (0.500-0.600, 2 repeats)" in text
