@@ -150,3 +150,12 @@ def test_batch_fit_matches_the_least_squares_fit():
             return float(np.sum(w * (power_law(n, *q) - err) ** 2))
         assert sse(p) == pytest.approx(sse(fit.params), rel=1e-7)
         np.testing.assert_allclose(p, fit.params, atol=1e-4)
+
+
+def test_poor_fit_warning_never_reads_equal_numbers():
+    # A rounding artefact ("0.020 > 0.020") told the reader nothing; enough digits are shown to
+    # tell the residual from the limit (common practice, no source).
+    from semisup.plan._curves import residual_vs_limit
+
+    assert residual_vs_limit(0.02049, 0.02) == "RMS residual 0.0205 above the limit 0.0200"
+    assert residual_vs_limit(0.31, 0.05) == "RMS residual 0.310 above the limit 0.050"

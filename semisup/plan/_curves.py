@@ -294,7 +294,7 @@ def fit_learning_curve(
     se = se[np.isfinite(se)]
     limit = max(poor_rmse, 2.0 * float(np.median(se))) if se.size else poor_rmse
     if rmse > limit and kind is None:
-        return fallback(f"the {fam} curve fits poorly (RMS residual {rmse:.3f} > {limit:.3f})")
+        return fallback(f"the {fam} curve fits poorly ({residual_vs_limit(rmse, limit)})")
     return CurveFit(fam, params, False, "", n_min, n_max, rmse)
 
 
@@ -318,3 +318,13 @@ def fit_power_law_batch(
     """
     return fit_family_batch("power_law", levels, means, weights, grid_points=grid_points,
                             refine_steps=refine_steps)
+
+
+def residual_vs_limit(rmse: float, limit: float) -> str:
+    """'RMS residual X above the limit Y', with as many digits as it takes to tell X from Y
+    (so a warning never reads "0.020 > 0.020")."""
+    for digits in range(3, 8):
+        a, b = f"{rmse:.{digits}f}", f"{limit:.{digits}f}"
+        if a != b:
+            break
+    return f"RMS residual {a} above the limit {b}"

@@ -24,7 +24,13 @@ from ._bootstrap import (
     small_sample_factor,
 )
 from ._calibrate import Calibration, calibrated_samples
-from ._curves import CurveFit, budget_weights, fit_learning_curve, min_levels
+from ._curves import (
+    CurveFit,
+    budget_weights,
+    fit_learning_curve,
+    min_levels,
+    residual_vs_limit,
+)
 from ._ensemble import combine, family_errors, family_weights
 from ._families import FAMILIES
 
@@ -141,8 +147,8 @@ def weigh_curve(model: CurveModel, pooled: Mapping[str, tuple[float, int]], *,
     if rmse > limit:
         fb = fit_learning_curve(n, err, kind="monotone")
         model.fit = CurveFit(fb.kind, fb.params, True,
-                             f"the weighted curve fits poorly (RMS residual {rmse:.3f} > "
-                             f"{limit:.3f})", fb.n_min, fb.n_max, fb.rmse, fb.knots_n,
+                             f"the weighted curve fits poorly ({residual_vs_limit(rmse, limit)})",
+                             fb.n_min, fb.n_max, fb.rmse, fb.knots_n,
                              fb.knots_err)
         return model
     model.fit = MixedFit(mixed.fits, weights, mixed.n_min, mixed.n_max, rmse)
