@@ -47,6 +47,18 @@ _SCREEN_BLOCK = 256
 #: (common practice, no source).
 IMBALANCE_RATIO = 3.0
 
+
+def imbalance_ratio(counts) -> float:
+    """Largest / smallest labeled class count (an empty class counts as one row)."""
+    counts = np.asarray(list(counts), dtype=np.int64)
+    return float(counts.max() / max(int(counts.min()), 1))
+
+
+def is_imbalanced(ratio: float) -> bool:
+    """Whether the card calls a class-count ratio imbalanced (and advises balanced accuracy)."""
+    return ratio >= IMBALANCE_RATIO
+
+
 #: Float columns longer than this get no distinct-value count in the card.
 DISTINCT_MAX_FLOAT_ROWS = 100_000
 
@@ -399,8 +411,8 @@ def make_card(
     n_labeled = int(labeled.sum())
     counts = np.bincount(y[labeled], minlength=dataset.n_classes)
     class_counts = {name: int(c) for name, c in zip(dataset.class_names, counts, strict=True)}
-    ratio = float(counts.max() / max(counts.min(), 1))
-    if ratio >= IMBALANCE_RATIO:
+    ratio = imbalance_ratio(counts)
+    if is_imbalanced(ratio):
         small = dataset.class_names[int(counts.argmin())]
         imbalance_note = (f"Imbalanced: the largest labeled class has {ratio:.1f}x the rows of "
                           f"the smallest ({small!r}); read balanced accuracy or macro-F1, not "

@@ -143,10 +143,10 @@ def recommended_metric(plan: Mapping | None, card: Mapping) -> tuple[str, str]:
     named = card.get("recommended_metric")
     if named in METRICS:
         return str(named), "the metric the data card recommends"
-    from ..data._card import IMBALANCE_RATIO
+    from ..data._card import is_imbalanced
 
     ratio = card.get("imbalance_ratio")
-    if isinstance(ratio, (int, float)) and ratio >= IMBALANCE_RATIO:
+    if isinstance(ratio, (int, float)) and is_imbalanced(ratio):
         return "balanced_accuracy", ("the data card finds the labeled classes imbalanced and "
                                      "advises balanced accuracy")
     return "accuracy", "the classes are roughly balanced"

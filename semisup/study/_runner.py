@@ -71,10 +71,10 @@ class StudyResult:
 def summary_metric(info: dict) -> str:
     """Balanced accuracy when the labeled classes are imbalanced (the data card's rule), else
     accuracy."""
-    from ..data._card import IMBALANCE_RATIO
+    from ..data._card import imbalance_ratio, is_imbalanced
 
-    counts = [int(v) for v in ((info.get("data") or {}).get("class_counts") or {}).values()]
-    if counts and min(counts) > 0 and max(counts) / min(counts) >= IMBALANCE_RATIO:
+    counts = list(((info.get("data") or {}).get("class_counts") or {}).values())
+    if counts and is_imbalanced(imbalance_ratio(counts)):
         return "balanced_accuracy"
     return "accuracy"
 
