@@ -7,7 +7,7 @@ from ._columns import infer_column_kinds
 from ._dataset import UNLABELED, Dataset, FeatureBlock
 from ._demo import DEMO_ID_COLUMN, DEMO_LABEL_COLUMN, demo_table, write_demo_table
 from ._load import dataset_from_frame, load_dataset
-from ._read import read_kind_overrides, read_table
+from ._read import is_text_table, read_kind_overrides, read_table, read_table_chunks
 
 
 def __getattr__(name: str):
@@ -31,10 +31,12 @@ __all__ = [
     "dataset_from_frame",
     "demo_table",
     "infer_column_kinds",
+    "is_text_table",
     "load_dataset",
     "make_card",
     "read_kind_overrides",
     "read_table",
+    "read_table_chunks",
     "write_card",
     "write_demo_table",
 ]

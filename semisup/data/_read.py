@@ -19,8 +19,10 @@ import lzma
 import os
 import zlib
 from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import IO
+from typing import IO, Any
 
 import numpy as np
 import pandas as pd
@@ -28,7 +30,7 @@ import pandas as pd
 from .._errors import DataError
 
 __all__ = ["KIND_OVERRIDES", "MISSING_TEXTS", "file_sha256", "is_text_table",
-           "read_kind_overrides", "read_table"]
+           "read_kind_overrides", "read_table", "read_table_chunks"]
 
 log = logging.getLogger(__name__)
 
@@ -252,38 +254,65 @@ def _fast_field_counts(path: Path, compression: str | None, enc: str,
     return np.concatenate(out) if out else np.zeros((0, 2), dtype=np.int64)
 
 
-def _check_row_lengths(path: Path, frame: pd.DataFrame, compression: str | None, enc: str,
-                       delimiter: str, n_header: int) -> None:
+def _record_lengths(path: Path, layout: _TextLayout) -> np.ndarray:
+    """(line number, field count) of every data record (the header's record dropped)."""
+    table = _fast_field_counts(path, layout.compression, layout.enc, layout.delimiter)
+    if table is None:
+        table = np.asarray(list(_iter_records(path, layout.compression, layout.enc,
+                                              layout.delimiter)),
+                           dtype=np.int64).reshape(-1, 2)
+    return table[1:]  # the first non-blank line is the header
+
+
+def _check_row_lengths(path: Path, frame: pd.DataFrame, layout: _TextLayout, *,
+                       first_row: int = 0,
+                       records: dict[str, np.ndarray] | None = None) -> None:
     """Refuse rows shorter than the header (pandas pads them, losing their last cells -- the
     label, often). Only rows whose last cell is missing can be short, so a table without
-    such cells is not scanned again."""
+    such cells is not scanned again.
+
+    Without ``records`` the frame is the whole table; a chunk passes its first row's position
+    and a dict that keeps the file's field counts between chunks.
+    """
     if frame.shape[1] < 2 or not frame.iloc[:, -1].isna().any():
         return
-    table = _fast_field_counts(path, compression, enc, delimiter)
-    if table is None:
-        table = np.asarray(list(_iter_records(path, compression, enc, delimiter)),
-                           dtype=np.int64).reshape(-1, 2)
-    records = table[1:]  # the first non-blank line is the header
-    if len(records) != frame.shape[0]:
+    cache = {} if records is None else records
+    if "lengths" not in cache:
+        cache["lengths"] = _record_lengths(path, layout)
+    lengths = cache["lengths"]
+    if (records is None and len(lengths) != len(frame)) \
+            or len(lengths) < first_row + len(frame):
         log.debug("%s: %d records by field count, %d rows by pandas; row lengths not "
-                  "checked", path, len(records), frame.shape[0])
+                  "checked", path, len(lengths), first_row + len(frame))
         return
-    short = np.flatnonzero(records[:, 1] < n_header)
-    short_line = short_fields = None
-    n_short = int(short.size)
-    if n_short:
-        short_line, short_fields = int(records[short[0], 0]), int(records[short[0], 1])
-    if short_line is not None:
+    part = lengths[first_row:first_row + len(frame)]
+    n_header = len(layout.header)
+    short = np.flatnonzero(part[:, 1] < n_header)
+    if short.size:
         raise DataError(
-            f"{path}: line {short_line} has {short_fields} field(s) but the header has "
-            f"{n_header} ({n_short} short row(s) in all); its last cells, the label among "
-            "them, would be lost, so add the missing fields (empty ones are fine: a,b,) or "
-            "quote values that contain the delimiter"
+            f"{path}: line {int(part[short[0], 0])} has {int(part[short[0], 1])} field(s) but "
+            f"the header has {n_header} ({int(short.size)} short row(s) in all); its last "
+            "cells, the label among them, would be lost, so add the missing fields (empty "
+            "ones are fine: a,b,) or quote values that contain the delimiter"
         )
 
 
-def _read_text(path: Path, delimiter: str | None, encoding: str | None,
-               text_columns: Sequence[str], compression: str | None = None) -> pd.DataFrame:
+@dataclass(frozen=True)
+class _TextLayout:
+    """What the checks of a text table found: its encoding, delimiter and header, and the
+    ``pandas.read_csv`` arguments that read it (the whole file or chunk by chunk)."""
+
+    enc: str
+    delimiter: str
+    header: list[str]
+    compression: str | None
+    read_args: dict[str, Any] = field(default_factory=dict)
+
+
+def _text_layout(path: Path, delimiter: str | None, encoding: str | None,
+                 text_columns: Sequence[str], compression: str | None = None) -> _TextLayout:
+    """Check the first bytes of a text table (magic numbers, JSON, blank file, delimiter,
+    duplicate header names) and return how to read it."""
     enc = _normalise_encoding(path, encoding)
     errors = _compression_errors()
     try:
@@ -358,20 +387,21 @@ def _read_text(path: Path, delimiter: str | None, encoding: str | None,
     wanted = {c for c in text_columns if c}
     text_raw = [name for name in header if name.strip() in wanted]
     na_values = {name: ([""] if name in text_raw else sorted(MISSING_TEXTS)) for name in header}
+    return _TextLayout(enc=enc, delimiter=delimiter, header=header, compression=compression,
+                       read_args={"sep": delimiter, "encoding": enc, "compression": compression,
+                                  "dtype": {c: str for c in text_raw}, "keep_default_na": False,
+                                  "na_values": na_values, "skipinitialspace": False,
+                                  "low_memory": False})
+
+
+@contextmanager
+def _text_read_errors(path: Path, layout: _TextLayout) -> Iterator[None]:
+    """Turn pandas' and the decompressors' exceptions while reading into one-line errors."""
+    errors = _compression_errors()
     try:
-        frame = pd.read_csv(
-            path,
-            sep=delimiter,
-            encoding=enc,
-            compression=compression,
-            dtype={c: str for c in text_raw},
-            keep_default_na=False,
-            na_values=na_values,
-            skipinitialspace=False,
-            low_memory=False,
-        )
+        yield
     except UnicodeDecodeError as exc:  # past the sniffed sample: pandas' offset is per chunk
-        raise _decode_error(path, enc, exc, position_known=False) from None
+        raise _decode_error(path, layout.enc, exc, position_known=False) from None
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: no columns found; export the table again with a header row")\
             from None
@@ -379,23 +409,34 @@ def _read_text(path: Path, delimiter: str | None, encoding: str | None,
         detail = str(exc).strip().splitlines()[-1]
         raise DataError(
             f"{path}: rows do not split into the same number of fields with delimiter "
-            f"{_delim_name(delimiter)} ({detail}); quote values that contain the delimiter or "
-            "pass the right --delimiter"
+            f"{_delim_name(layout.delimiter)} ({detail}); quote values that contain the "
+            "delimiter or pass the right --delimiter"
         ) from None
     except errors as exc:
-        if compression is None:
+        if layout.compression is None:
             raise
-        raise _compression_error(path, compression, exc) from None
-    if not frame.index.equals(pd.RangeIndex(len(frame))):
+        raise _compression_error(path, layout.compression, exc) from None
+
+
+def _check_index(path: Path, frame: pd.DataFrame, layout: _TextLayout) -> None:
+    if not isinstance(frame.index, pd.RangeIndex):
         # pandas takes the first column(s) as the index when every row is longer than the
         # header: the cells would shift under the wrong names.
-        n_fields = len(header) + frame.index.nlevels
+        n_fields = len(layout.header) + frame.index.nlevels
         raise DataError(
             f"{path}: the data rows have {n_fields} fields but the header names only "
-            f"{len(header)}; add the missing column name(s) to the header, or remove the "
-            "delimiter that ends every row"
+            f"{len(layout.header)}; add the missing column name(s) to the header, or remove "
+            "the delimiter that ends every row"
         )
-    _check_row_lengths(path, frame, compression, enc, delimiter, len(header))
+
+
+def _read_text(path: Path, delimiter: str | None, encoding: str | None,
+               text_columns: Sequence[str], compression: str | None = None) -> pd.DataFrame:
+    layout = _text_layout(path, delimiter, encoding, text_columns, compression)
+    with _text_read_errors(path, layout):
+        frame = pd.read_csv(path, **layout.read_args)
+    _check_index(path, frame, layout)
+    _check_row_lengths(path, frame, layout)
     frame.columns = [str(c).strip() for c in frame.columns]
     return frame
 
@@ -413,7 +454,8 @@ def _nested_column(schema) -> tuple[str, str] | None:
     return None
 
 
-def _read_parquet(path: Path) -> pd.DataFrame:
+def _check_parquet_schema(path: Path) -> None:
+    """Refuse an unreadable Parquet file, duplicate column names and nested columns."""
     try:
         import pyarrow.parquet as pq
 
@@ -435,6 +477,12 @@ def _read_parquet(path: Path) -> pd.DataFrame:
             "cannot be features; flatten it into plain columns (numbers or text) or leave it "
             "out of the file"
         )
+
+
+def _read_parquet(path: Path) -> pd.DataFrame:
+    _check_parquet_schema(path)
+    import pyarrow.parquet as pq
+
     try:
         # self_destruct frees each Arrow column once converted: peak memory ~1 copy, not 2.
         table = pq.read_table(path)
@@ -560,6 +608,56 @@ def read_table(
         frame = _read_text(path, delimiter, encoding, text_columns, compression)
     log.debug("%s: read %d rows x %d columns", path, frame.shape[0], frame.shape[1])
     return frame
+
+
+def read_table_chunks(
+    path: str | os.PathLike[str],
+    *,
+    chunk_rows: int,
+    delimiter: str | None = None,
+    encoding: str | None = None,
+    text_columns: Sequence[str] = (),
+) -> Iterator[pd.DataFrame]:
+    """Read a table as :func:`read_table` does, ``chunk_rows`` rows at a time.
+
+    The same formats, checks and one-line errors as :func:`read_table` (a check that needs
+    the whole file, such as short rows, runs when a chunk needs it); the same cells are
+    missing. Memory is bounded by the chunk (a Parquet file: by its row groups; a workbook is
+    read whole, then handed out in chunks). Each chunk keeps the table's row positions as its
+    index start.
+    """
+    path = Path(path)
+    _check_file(path)
+    kind, compression = _table_format(path)
+    if kind == "excel":
+        frame = _read_excel(path, text_columns)
+        for first in range(0, max(len(frame), 1), chunk_rows):
+            yield frame.iloc[first:first + chunk_rows]
+        return
+    if kind == "parquet":
+        _check_parquet_schema(path)
+        import pyarrow.parquet as pq
+
+        try:
+            batches = pq.ParquetFile(path).iter_batches(batch_size=chunk_rows)
+            for batch in batches:
+                frame = batch.to_pandas()
+                frame.columns = [str(c) for c in frame.columns]
+                yield frame
+        except Exception as exc:  # noqa: BLE001  (pyarrow raises several types)
+            raise DataError(f"{path}: Parquet file cannot be read ({type(exc).__name__}: "
+                            f"{exc}); write it again with pandas or pyarrow") from None
+        return
+    layout = _text_layout(path, delimiter, encoding, text_columns, compression)
+    records: dict[str, np.ndarray] = {}
+    first = 0
+    with _text_read_errors(path, layout):
+        for frame in pd.read_csv(path, chunksize=chunk_rows, **layout.read_args):
+            _check_index(path, frame, layout)
+            _check_row_lengths(path, frame, layout, first_row=first, records=records)
+            frame.columns = [str(c).strip() for c in frame.columns]
+            first += len(frame)
+            yield frame
 
 
 def read_kind_overrides(path: str | os.PathLike[str]) -> dict[str, str]:

@@ -10,7 +10,6 @@ from __future__ import annotations
 import logging
 import os
 import time
-from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -21,17 +20,11 @@ import pandas as pd
 from .._atomic import atomic_path
 from .._errors import ConfigError, DataError
 from ..data._columns import as_text
-from ..data._read import (
-    _PARQUET_SUFFIXES,
-    _SNIFF_BYTES,
-    _check_file,
-    _normalise_encoding,
-    _sniff_delimiter,
-)
+from ..data import is_text_table, read_table_chunks
 from ._model import FittedModel
 from ._prepare import InputCounts, check_columns
 
-__all__ = ["DEFAULT_CHUNK_ROWS", "PredictSummary", "predict_file", "read_chunks"]
+__all__ = ["DEFAULT_CHUNK_ROWS", "PredictSummary", "predict_file"]
 
 log = logging.getLogger(__name__)
 
@@ -77,52 +70,6 @@ class PredictSummary:
             lines.append(f"ignored columns the model does not use: "
                          f"{', '.join(map(repr, self.ignored_columns[:8]))}")
         return "\n".join(lines)
-
-
-def read_chunks(path: Path, *, chunk_rows: int, delimiter: str | None, encoding: str | None,
-                text_columns: tuple[str, ...]) -> Iterator[pd.DataFrame]:
-    """DataFrames of at most ``chunk_rows`` rows from a CSV / TSV / Parquet file."""
-    _check_file(path)
-    if path.suffix.lower() in _PARQUET_SUFFIXES:
-        try:
-            import pyarrow.parquet as pq
-
-            handle = pq.ParquetFile(path)
-            batches = handle.iter_batches(batch_size=chunk_rows)
-        except Exception as exc:  # noqa: BLE001  (pyarrow raises several types)
-            raise DataError(f"{path}: not a readable Parquet file ({type(exc).__name__}); check "
-                            "the file, or give a .csv/.tsv file instead") from None
-        for batch in batches:
-            frame = batch.to_pandas()
-            frame.columns = [str(c) for c in frame.columns]
-            yield frame
-        return
-    enc = _normalise_encoding(path, encoding)
-    if delimiter is None:
-        if path.suffix.lower() == ".tsv":
-            delimiter = "\t"
-        else:
-            with open(path, "rb") as handle:  # noqa: PTH123
-                sample = handle.read(_SNIFF_BYTES).decode(enc, errors="ignore")
-            delimiter = _sniff_delimiter(sample) or ","
-    elif delimiter in ("\\t", "tab", "TAB"):
-        delimiter = "\t"
-    try:
-        reader = pd.read_csv(path, sep=delimiter, encoding=enc, chunksize=chunk_rows,
-                             dtype={c: str for c in text_columns})
-        for frame in reader:
-            frame.columns = [str(c).strip() for c in frame.columns]
-            yield frame
-    except UnicodeDecodeError:
-        label = "utf-8" if enc == "utf-8-sig" else enc
-        raise DataError(f"{path}: cannot be decoded as {label}; re-save the file as UTF-8 or "
-                        "pass the right --encoding (e.g. latin-1)") from None
-    except pd.errors.EmptyDataError:
-        raise DataError(f"{path}: no columns found; give a table with a header row") from None
-    except pd.errors.ParserError as exc:
-        detail = str(exc).strip().splitlines()[-1]
-        raise DataError(f"{path}: rows do not split into the same number of fields ({detail}); "
-                        "quote values that contain the delimiter or pass --delimiter") from None
 
 
 def _ids(frame: pd.DataFrame, id_column: str | None, first_row: int, source: str,
@@ -207,7 +154,7 @@ def predict_file(
     suffix = out.suffix.lower()
     fmt = "parquet" if suffix in (".parquet", ".pq") else "tsv" if suffix == ".tsv" else "csv"
     source = str(data)
-    text_file = data.suffix.lower() not in _PARQUET_SUFFIXES
+    text_file = is_text_table(data)
     counts = InputCounts()
     predicted = np.zeros(len(model.classes), dtype=np.int64)
     n_rows = n_flagged = 0
@@ -220,8 +167,9 @@ def predict_file(
     with atomic_path(out) as tmp:
         with open(tmp, "wb") as handle:  # noqa: PTH123
             try:
-                for frame in read_chunks(data, chunk_rows=chunk_rows, delimiter=delimiter,
-                                         encoding=encoding, text_columns=text_columns):
+                for frame in read_table_chunks(data, chunk_rows=chunk_rows,
+                                               delimiter=delimiter, encoding=encoding,
+                                               text_columns=text_columns):
                     if not checked:
                         checked = True
                         check_columns(frame.columns, model.schema, source=source,
