@@ -418,8 +418,9 @@ def _text_read_errors(path: Path, layout: _TextLayout) -> Iterator[None]:
         raise _compression_error(path, layout.compression, exc) from None
 
 
-def _check_index(path: Path, frame: pd.DataFrame, layout: _TextLayout) -> None:
-    if not isinstance(frame.index, pd.RangeIndex):
+def _check_index(path: Path, frame: pd.DataFrame, layout: _TextLayout,
+                 first_row: int = 0) -> None:
+    if not frame.index.equals(pd.RangeIndex(first_row, first_row + len(frame))):
         # pandas takes the first column(s) as the index when every row is longer than the
         # header: the cells would shift under the wrong names.
         n_fields = len(layout.header) + frame.index.nlevels
@@ -653,7 +654,7 @@ def read_table_chunks(
     first = 0
     with _text_read_errors(path, layout):
         for frame in pd.read_csv(path, chunksize=chunk_rows, **layout.read_args):
-            _check_index(path, frame, layout)
+            _check_index(path, frame, layout, first)
             _check_row_lengths(path, frame, layout, first_row=first, records=records)
             frame.columns = [str(c).strip() for c in frame.columns]
             first += len(frame)
