@@ -2,8 +2,10 @@
 
 The user's table is never modified. Labels returned by annotators (``semisup add-labels``)
 are merged into :data:`ADDED_LABELS_FILE` in the study folder (columns ``row_id``,
-``label``), written atomically; the study design reads it as an overlay on the table's
-labels (:func:`read_added_labels`, :func:`apply_added_labels`).
+``label``, ``round``: each ``add-labels`` run that adds rows is the next round), written
+atomically; the study design reads it as an overlay on the table's labels
+(:func:`read_added_labels`, :func:`apply_added_labels`). The rows of a round are training
+rows only (DEVELOPERS.md "The study protocol", growing studies).
 
 A sheet the plan writes names the study it belongs to in :data:`SHEET_STUDY_COLUMN`:
 :func:`study_id` (a digest of the table's content, its label column and its id column), so a
@@ -55,17 +57,27 @@ def study_id(study: Mapping) -> str | None:
 
 @dataclass(frozen=True)
 class AddedLabels:
-    """Labels added to a study: ``row_ids`` and ``labels`` (strings), in file order."""
+    """Labels added to a study: ``row_ids`` and ``labels`` (strings) and the labeling round
+    of each (1, 2, ...; all 1 when not given), in file order."""
 
     row_ids: tuple[str, ...]
     labels: tuple[str, ...]
+    rounds: tuple[int, ...] = ()
+
+    def __post_init__(self) -> None:
+        if not self.rounds:
+            object.__setattr__(self, "rounds", (1,) * len(self.row_ids))
 
     def __len__(self) -> int:
         return len(self.row_ids)
 
+    @property
+    def last_round(self) -> int:
+        return max(self.rounds, default=0)
+
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame({"row_id": list(self.row_ids), "label": list(self.labels)},
-                            dtype=object)
+        return pd.DataFrame({"row_id": list(self.row_ids), "label": list(self.labels),
+                             "round": [str(r) for r in self.rounds]}, dtype=object)
 
 
 def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
@@ -81,7 +93,15 @@ def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
     if list(frame.columns[:2]) != ["row_id", "label"]:
         raise DataError(f"{path} should have the columns row_id, label; remove it or restore "
                         "it from a backup")
-    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]))
+    rounds: tuple[int, ...] = ()
+    if "round" in frame.columns:
+        text = frame["round"].str.strip()
+        if not text.str.fullmatch(r"[1-9][0-9]*").all():
+            bad = frame["round"][~text.str.fullmatch(r"[1-9][0-9]*")].iloc[0]
+            raise DataError(f"{path}: column 'round' holds {bad!r}, not a round number (1, 2, "
+                            "...); remove it or restore the file from a backup")
+        rounds = tuple(int(v) for v in text)
+    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]), rounds)
 
 
 def write_added_labels(out_dir: str | os.PathLike[str], added: AddedLabels) -> Path:
@@ -247,6 +267,8 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
                         f"{', '.join(names)}); correct it, or pass --allow-new-class if it "
                         "really is a new class")
     added_ids, added_labels = list(before.row_ids), list(before.labels)
+    added_rounds = list(before.rounds)
+    this_round = before.last_round + 1
     n_known = 0
     for rid, label, p in zip(ids, labels, pos, strict=True):
         old = int(current.y[p])
@@ -259,39 +281,9 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
             continue
         added_ids.append(rid)
         added_labels.append(label)
-    path = write_added_labels(out, AddedLabels(tuple(added_ids), tuple(added_labels)))
+        added_rounds.append(this_round)
+    path = write_added_labels(out, AddedLabels(tuple(added_ids), tuple(added_labels),
+                                               tuple(added_rounds)))
     log.info("added %d labels to %s", len(added_ids) - len(before), path)
     return AddResult(n_added=len(added_ids) - len(before), n_known=n_known, n_blank=n_blank,
                      path=path, new_classes=tuple(new))
-
-
-def stored_meta(store_path: str | os.PathLike[str], key: str) -> str | None:
-    """A value of an existing study store's meta table, read only (None if absent)."""
-    import sqlite3
-
-    path = Path(store_path)
-    if not path.is_file():
-        return None
-    try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30)
-        try:
-            row = con.execute("SELECT value FROM meta WHERE key = ?", (key,)).fetchone()
-        finally:
-            con.close()
-    except sqlite3.DatabaseError:
-        return None
-    return None if row is None else str(row[0])
-
-
-def is_new_round(out_dir: str | os.PathLike[str], design) -> bool:
-    """True when the folder's store holds the same study before labels were added.
-
-    Same base fingerprint (spec and table), another fingerprint (the added labels changed).
-    Then the old cells no longer measure this design and the runner starts the cells again,
-    keeping labels_added.csv and the content-keyed cache of the unsupervised stage.
-    """
-    store = Path(out_dir) / "study.sqlite"
-    old = stored_meta(store, "fingerprint")
-    if old is None or old == design.fingerprint:
-        return False
-    return stored_meta(store, "base_fingerprint") == design.base_fingerprint
