@@ -141,7 +141,7 @@ def train_module(
     bar = _progress_bar(config.max_epochs) if show_bar else None
     # not at a terminal: a line every tenth of the epochs or 30 s (an upper bound of the time
     # left: early stopping may end sooner)
-    lines = None if show_bar else Progress(config.max_epochs, "VAE epochs")
+    lines = None if _is_terminal() else Progress(config.max_epochs, "VAE epochs")
     epoch = 0
     try:
         for epoch in range(1, config.max_epochs + 1):
