@@ -27,6 +27,7 @@ import pandas as pd
 
 from .._atomic import atomic_write_text
 from .._errors import DataError
+from ._folder import StudyRecord, read_study_record
 
 __all__ = ["ADDED_LABELS_FILE", "SHEET_STUDY_COLUMN", "AddResult", "AddedLabels",
            "add_labels", "apply_added_labels", "read_added_labels", "study_id",
@@ -40,15 +41,14 @@ ADDED_LABELS_FILE = "labels_added.csv"
 SHEET_STUDY_COLUMN = "semisup_study"
 
 
-def study_id(study: Mapping) -> str | None:
+def study_id(study: Mapping | StudyRecord) -> str | None:
     """A short id of the study a sheet belongs to, from study.json (None if unknown).
 
     Built from the table's sha256 and the label and id columns: unchanged by added labels
     (the table is never modified), different for another table or another label column.
     """
-    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
-    digest = data.get("sha256")
+    record = study if isinstance(study, StudyRecord) else StudyRecord.from_dict(study)
+    digest, spec = record.data.sha256, record.spec
     if not digest:
         return None
     key = "\0".join([str(digest), str(spec.get("label_column")), str(spec.get("id_column"))])
@@ -162,17 +162,11 @@ class AddResult:
         return text + ". Run 'semisup study' on the folder again to use them."
 
 
-def _read_json(path: Path) -> dict:
-    import json
-
+def _read_study(path: Path) -> StudyRecord:
     if not path.is_file():
         raise DataError(f"{path.parent} is not a study folder ({path.name} is missing); run "
                         "'semisup study' first, or give the study's --out folder")
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (ValueError, OSError) as exc:
-        raise DataError(f"{path} cannot be read ({exc}); run the study again") from None
-    return data if isinstance(data, dict) else {}
+    return read_study_record(path, DataError)
 
 
 def _column(frame: pd.DataFrame, name: str, where: str, what: str) -> str:
@@ -185,13 +179,12 @@ def _column(frame: pd.DataFrame, name: str, where: str, what: str) -> str:
                     "'semisup plan' wrote, with that column kept")
 
 
-def _returned_labels(study: Mapping, returned: Path) -> tuple[list[str], list[str], int]:
+def _returned_labels(study: StudyRecord, returned: Path) -> tuple[list[str], list[str], int]:
     """``(row ids, labels, blank rows)`` of a returned sheet, quotes taken off, checked."""
     from .._escape import restore_cell
     from ..data import read_table
 
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
-    label_column = str(spec.get("label_column") or "label")
+    label_column = str(study.spec.get("label_column") or "label")
     where = str(returned)
     frame = read_table(returned, text_columns=("row_id", label_column, SHEET_STUDY_COLUMN))
     frame.columns = [str(c) for c in frame.columns]
@@ -240,8 +233,8 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
     from ..data import load_dataset
 
     out = Path(study_dir)
-    study = _read_json(out / "study.json")
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    study = _read_study(out / "study.json")
+    spec = study.spec
     ids, labels, n_blank = _returned_labels(study, Path(returned))
     if not spec.get("data") or not spec.get("label_column"):
         raise DataError(f"{out / 'study.json'} does not name the study's table and label "
