@@ -103,15 +103,31 @@ def _method_identity(method: Any) -> list[str]:
             where(method.search_space), where(method.build)]
 
 
+def _seen_unlabeled_digest(ctx: CellContext, fold: int, memo: dict) -> str:
+    """Digest of the rows a semi-supervised cell of ``fold`` may see unlabeled before its
+    draw is taken out and the cap applied (see :func:`_unlabeled_rows`): the unlabeled rows,
+    the fold's pool and, when transductive, its evaluation rows, as one sorted set."""
+    if fold not in memo:
+        parts = [ctx.unlabeled_idx, ctx.pools[fold]]
+        if ctx.transductive:
+            parts.append(ctx.evals[fold])
+        h = hashlib.sha256(f"{ctx.transductive}:{ctx.max_unlabeled}".encode())
+        _array_digest(h, np.unique(np.concatenate(parts)))
+        memo[fold] = h.hexdigest()
+    return memo[fold]
+
+
 def cell_key(ctx: CellContext, cell: Cell, representation_key: str,
-             class_names: list[str]) -> str:
+             class_names: list[str], memo: dict | None = None) -> str:
     """A digest of everything the cell's numbers depend on.
 
     The method's identity and the code version, the representation's own key, the classes,
     the tuning settings, the cell's seed, the training rows and their labels, the evaluation
-    rows and their labels, and for a semi-supervised method the rows it sees unlabeled. A
-    stored cell with the same key measures the same thing and is kept; any difference runs
-    it again, so "unchanged" is checked, never assumed.
+    rows and their labels, and for a semi-supervised method the rows it sees unlabeled (the
+    fold's set less the draw, capped with the cell's seed: the set's digest, the cap and the
+    draw decide them). A stored cell with the same key measures the same thing and is kept;
+    any difference runs it again, so "unchanged" is checked, never assumed. ``memo`` keeps
+    the per-fold digests between calls.
     """
     fold = ctx.repeat_fold[cell.repeat]
     method = ctx.methods[cell.method]
@@ -125,8 +141,7 @@ def cell_key(ctx: CellContext, cell: Cell, representation_key: str,
     for part in (draw, ctx.y[draw], eval_idx, ctx.y[eval_idx]):
         _array_digest(h, part)
     if method.semi_supervised:
-        h.update(b"unlabeled")
-        _array_digest(h, _unlabeled_rows(ctx, fold, draw, seed))
+        h.update(_seen_unlabeled_digest(ctx, fold, {} if memo is None else memo).encode())
     return h.hexdigest()
 
 

@@ -214,9 +214,10 @@ def _cell_keys(ctx: CellContext, design) -> dict[Cell, str]:
     resolved = design.spec
     names = list(design.ds.class_names)
     full = dataclasses.replace(ctx, methods=design.methods)  # failed stages' methods too
+    memo: dict = {}
     return {
         cell: cell_key(full, cell, design.representation_keys[
-            design.methods[cell.method].representation], names)
+            design.methods[cell.method].representation], names, memo)
         for s in resolved.strategies for r in range(resolved.repeats)
         for b in design.budgets for m in resolved.methods
         for cell in [Cell(m, b, r, s)]
