@@ -33,7 +33,6 @@ GOAL_RATIO = 0.5
 
 def _table(workdir: Path, n_labels: int):
     import numpy as np
-    import pandas as pd
     from sklearn.datasets import load_breast_cancer
 
     frame = load_breast_cancer(as_frame=True).frame
