@@ -97,7 +97,7 @@ def help_defaults() -> dict[str, str]:
         "methods": ", ".join(default_methods()),
         "budgets": f"a geometric grid of about {n_points} budgets from 2 x the number of "
                    "classes up to the pool size (the labeled rows less one repeat's "
-                   "evaluation rows)",
+                   "evaluation rows), plus the grown pool after each labeling round",
         "repeats": str(_field_default(StudySpec, "repeats")),
         "trials": str(_field_default(StudySpec, "trials")),
         "strategies": ", ".join(_field_default(StudySpec, "strategies")),  # type: ignore[arg-type]
@@ -144,7 +144,9 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("study", help="run a label-budget study",
                        description="Fit the unsupervised stage once, then measure every method "
                                    "at every label budget over repeated draws. Re-running the "
-                                   "same command resumes.")
+                                   "same command resumes; with more repeats, budgets, methods "
+                                   "or returned labels (add-labels) it grows the study, keeping "
+                                   "every unchanged cell.")
     _add_table_args(p)
     p.add_argument("--config", type=Path, metavar="FILE.toml",
                    help="study spec (examples in experiments/)")

@@ -89,11 +89,13 @@ def write_study(
             "spec": {"seed": seed, "methods": list(truth), "budgets": list(budgets),
                      "repeats": repeats, "strategies": list(strategies)},
             "data": {"n_rows": 5000, "n_labeled": n_labeled, "n_unlabeled": 5000 - n_labeled,
-                     "n_holdout": n_holdout, "class_names": list(class_names),
-                     "class_counts": counts, "feature_names": list(column_names)},
+                     "class_names": list(class_names), "class_counts": counts,
+                     "feature_names": list(column_names)},
+            # the study's layout (semisup/study/_folder.py): the holdout's size under holdout
+            "holdout": {"n_rows": n_holdout},
             "protocol": ["stratified nested draws", "equal tuning budget per method"],
             "warnings": [],
-            "representation": {"vae": {"elbo": -12.5}},
+            "representation": {"diagnostics": {"vae": {"elbo": -12.5}}, "errors": {}},
         }
         (folder / "study.json").write_text(json.dumps(study), encoding="utf-8")
     if candidates:

@@ -258,7 +258,6 @@ def test_reads_the_study_runner_layout(tmp_path):
     study = json.loads((folder / "study.json").read_text())
     study["holdout"] = {"n_rows": 30, "class_counts": {"cat": 15, "dog": 15}}
     study["spec"]["holdout"] = 0.3
-    study["data"].pop("n_holdout")
     (folder / "study.json").write_text(json.dumps(study))
     rng = np.random.default_rng(0)
     np.savez(folder / "candidates.npz", row_ids=np.array(["a", "b", "c", "d"]),

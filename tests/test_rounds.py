@@ -1,6 +1,7 @@
 """Taking labels back: semisup add-labels merges a returned sheet into the study's own
-labeled set, the next study run uses it (cell by cell the same numbers as a study run from
-scratch on a table with those labels), and every bad return is one line, exit 2, nothing
+labeled set, the next study run grows the study with it (cell by cell the same numbers as a
+study run from scratch on the table and the same labels_added.csv, every earlier cell kept),
+and every bad return is one line, exit 2, nothing
 changed (the harness of tests/test_bad_input_catalogue.py: exit status, one error line,
 SHA-256 of every input before and after)."""
 
@@ -39,7 +40,7 @@ def _with_blanks(truth: pd.DataFrame) -> pd.DataFrame:
 def _spec(data) -> StudySpec:
     return StudySpec.build(overrides={"data": data, "label_column": "label",
                                       "id_column": "case", "methods": ["supervised-logreg"],
-                                      "budgets": [4, 8, 16], "repeats": 2, "trials": 1})
+                                      "repeats": 2, "trials": 1})
 
 
 def _hashes(*paths) -> dict[str, str]:
@@ -87,21 +88,27 @@ def test_added_labels_give_the_same_cells_as_a_study_from_scratch(folder, tmp_pa
     assert code == 0, err
     assert "added 12 label(s)" in stdout
     added = pd.read_csv(out / ADDED_LABELS_FILE, dtype=str)
-    assert list(added.columns) == ["row_id", "label"] and len(added) == 12
+    assert list(added.columns) == ["row_id", "label", "round"] and len(added) == 12
+    assert set(added["round"]) == {"1"}
     assert _hashes(table) == before  # the user's table is never modified
     # again: nothing new, every row already carries that label
     assert _cli("add-labels", out, tmp_path / "returned.csv", "-q")[0] == 0
     assert len(pd.read_csv(out / ADDED_LABELS_FILE)) == 12
 
+    n_before = len(pd.read_csv(out / "cells.csv"))
     grown = run_study(_spec(table), out, jobs=1, progress=False)  # a new round, no --restart
     assert (out / ADDED_LABELS_FILE).is_file()
-    # the same labels written into a table, run from scratch
-    scratch_table = tmp_path / "cases_scratch.csv"
-    frame = _with_blanks(truth)
-    frame.loc[frame["case"].isin(sheet["row_id"]), "label"] = truth.loc[
-        frame["case"].isin(sheet["row_id"]), "label"]
-    frame.to_csv(scratch_table, index=False)
-    scratch = run_study(_spec(scratch_table), tmp_path / "scratch", jobs=1, progress=False)
+    # the round's rows follow the table's own in every pool, so every earlier cell is kept;
+    # the default grid gains the grown pool (the old pool plus the 12 rows), 2 repeats
+    assert grown.info["this_run"]["kept"] == n_before
+    assert grown.info["this_run"]["run"] == 2
+    assert max(grown.info["budgets"]) == 48 + 12
+    assert sheet["row_id"].isin(pd.read_csv(out / ADDED_LABELS_FILE)["row_id"]).all()
+    # the same inputs (the table and labels_added.csv) run from scratch
+    (tmp_path / "scratch").mkdir()
+    shutil.copy(out / ADDED_LABELS_FILE, tmp_path / "scratch" / ADDED_LABELS_FILE)
+    scratch = run_study(_spec(table), tmp_path / "scratch", jobs=1, progress=False)
+    assert scratch.info["this_run"]["kept"] == 0
     a = pd.read_csv(out / "cells.csv")
     b = pd.read_csv(tmp_path / "scratch" / "cells.csv")
     keys = ["method", "strategy", "n_labels", "repeat"]
@@ -176,4 +183,4 @@ def test_new_class_with_the_flag_and_xlsx_and_neutralised_ids(folder, tmp_path):
     assert code == 0, err
     assert "new class(es): r" in stdout
     added = pd.read_csv(out / ADDED_LABELS_FILE, dtype=str)
-    assert added.to_dict("list") == {"row_id": [first], "label": ["r"]}
+    assert added.to_dict("list") == {"row_id": [first], "label": ["r"], "round": ["1"]}

@@ -107,3 +107,39 @@ def test_sigkill_then_rerun_gives_same_cells_and_recomputes_nothing(tmp_path):
     resumed = pd.read_csv(killed_dir / "cells.csv").drop(columns=TIMING)
     clean = pd.read_csv(clean_dir / "cells.csv").drop(columns=TIMING)
     pd.testing.assert_frame_equal(resumed, clean)
+
+
+GROW_SCRIPT = SCRIPT.replace(f'"repeats": {REPEATS}', '"repeats": int(sys.argv[2])')
+
+
+@pytest.mark.slow
+def test_sigkill_while_a_study_grows_then_rerun_matches_a_study_from_scratch(tmp_path):
+    """Grow 1 -> 3 repeats, kill the growing run, run it again: the first repeat's cells
+    are never touched, the rest equal a 3-repeat study from scratch."""
+    script = tmp_path / "grow.py"
+    script.write_text(GROW_SCRIPT)
+    folder, counter = tmp_path / "grown", tmp_path / "fits.txt"
+    subprocess.run([sys.executable, str(script), str(folder), "1"], env=_env(counter, "0"),
+                   cwd=tmp_path, check=True)
+    first = _stamps(folder / "study.sqlite")
+    assert len(first) == 2 * len(BUDGETS)
+    proc = subprocess.Popen([sys.executable, str(script), str(folder), "3"],
+                            env=_env(counter, "0.3"), cwd=tmp_path)
+    deadline = time.monotonic() + 120
+    while _n_cells(folder / "study.sqlite") < len(first) + 3:
+        assert proc.poll() is None, "study finished or crashed before it could be killed"
+        assert time.monotonic() < deadline
+        time.sleep(0.05)
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+    subprocess.run([sys.executable, str(script), str(folder), "3"], env=_env(counter, "0"),
+                   cwd=tmp_path, check=True)
+    after = _stamps(folder / "study.sqlite")
+    assert len(after) == 2 * len(BUDGETS) * 3
+    for key, stamp in first.items():
+        assert after[key] == stamp  # kept through the growth and the kill
+    clean = tmp_path / "clean"
+    subprocess.run([sys.executable, str(script), str(clean), "3"], env=_env(tmp_path / "c.txt",
+                   "0"), cwd=tmp_path, check=True)
+    pd.testing.assert_frame_equal(pd.read_csv(folder / "cells.csv").drop(columns=TIMING),
+                                  pd.read_csv(clean / "cells.csv").drop(columns=TIMING))

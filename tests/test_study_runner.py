@@ -120,8 +120,8 @@ def test_resume_skips_finished_and_changed_spec_is_refused(tmp_path, roles, ds):
             assert new[key][1] == attempts + 1  # failed cells run again on request
         else:
             assert new[key] == (stamp, attempts)
-    with pytest.raises(StoreError, match="--restart"):
-        _run(spec.replace(repeats=3), tmp_path, ds, jobs=1)
+    with pytest.raises(StoreError, match="--restart"):  # trials change every cell
+        _run(spec.replace(trials=spec.trials + 1), tmp_path, ds, jobs=1)
     restarted = _run(spec.replace(repeats=1), tmp_path, ds, jobs=1, restart=True)
     assert len(restarted.cells) == 2 * 2
 

@@ -28,6 +28,7 @@ import pandas as pd
 from .. import __version__
 from .._errors import ConfigError, DataError, StoreError
 from .._seeding import derive_seed
+from ..study._folder import StudyRecord, read_curves
 from ._crossfit import DEFAULT_CUTS, confidence_table, crossfit_proba
 from ._json import read_json
 from ._model import FittedModel, encoder_state
@@ -165,20 +166,19 @@ def _study_estimate(folder: Path, plan: dict | None, method: str) -> dict[str, A
             "predicted": chosen.get("predicted"), "probability": chosen.get("probability"),
             "extrapolated": chosen.get("extrapolated"),
         }
-    curves = folder / "curves.csv"
-    if curves.is_file():
-        try:
-            c = pd.read_csv(curves)
-            measured = c["measured"].astype(str).str.lower().isin(("true", "1"))
-            sel = c[(c["method"] == method) & (c["metric"] == "accuracy") & measured
-                    & (c["strategy"] == "random")]
-            if len(sel):
-                r = sel.sort_values("n_labels").iloc[-1]
-                out["curve"] = {"metric": "accuracy", "n_labels": int(r["n_labels"]),
-                                "mean": float(r["mean"]), "low": float(r["low"]),
-                                "high": float(r["high"])}
-        except (KeyError, ValueError, OSError) as exc:
-            log.warning("curves.csv not used for the study's estimate: %s", exc)
+    try:
+        c = read_curves(folder / "curves.csv", StoreError)
+    except StoreError as exc:
+        log.warning("curves.csv not used for the study's estimate: %s", exc)
+        c = None
+    if c is not None:
+        sel = c[(c["method"] == method) & (c["metric"] == "accuracy") & c["measured"]
+                & (c["strategy"] == "random")]
+        if len(sel):
+            r = sel.sort_values("n_labels").iloc[-1]
+            out["curve"] = {"metric": "accuracy", "n_labels": int(r["n_labels"]),
+                            "mean": float(r["mean"]), "low": float(r["low"]),
+                            "high": float(r["high"])}
     return out
 
 
@@ -197,12 +197,15 @@ def _stage_rows(spec: Any, y: np.ndarray) -> np.ndarray:
     return np.flatnonzero(keep)
 
 
-def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict):
-    """The study's fitted stage ``kind``: from its cache entry, else refitted as it was."""
+def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
+                        own_y: np.ndarray):
+    """The study's fitted stage ``kind``: from its cache entry, else refitted as it was
+    (``own_y``: the table's own labels, from which the study carved its holdout; labels
+    added in rounds are training rows and leave the stage's rows as they were)."""
     from ..pretrain import fit_representation
     from ..pretrain._cache import load_entry
 
-    diag = ((info.get("representation") or {}).get("diagnostics") or {}).get(kind) or {}
+    diag = StudyRecord.from_dict(info).representation.get(kind) or {}
     key, cached = diag.get("cache_key"), diag.get("cache_path")
     if key and cached:
         entry = folder / "cache" / Path(str(cached)).name
@@ -214,7 +217,7 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict)
         if stage is not None and int(stage.n_features_in_) == ds.X.shape[1]:
             log.info("%s stage reused from the study's cache (%s)", kind, entry)
             return stage, "reused from the study's cache"
-    rows = _stage_rows(spec, np.asarray(ds.y))
+    rows = _stage_rows(spec, np.asarray(own_y))
     log.info("fitting the %s stage on %d rows as the study did (no cache entry found)", kind,
              len(rows))
     stage, diag = fit_representation(
@@ -235,7 +238,7 @@ def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict):
     ds = load_dataset(path, label_column=spec.label_column, id_column=spec.id_column,
                       unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
                       delimiter=spec.delimiter, encoding=spec.encoding)
-    study_sha = (info.get("data") or {}).get("sha256")
+    study_sha = StudyRecord.from_dict(info).data.sha256
     notes = []
     if study_sha and ds.sha256 and study_sha != ds.sha256:
         notes.append(f"the table {path} changed since the study (new SHA-256); the model is "
@@ -292,6 +295,7 @@ def fit_model(
     from ..study._rounds import apply_added_labels, read_added_labels
 
     added = read_added_labels(folder)  # labels returned by annotators (semisup add-labels)
+    own_y = np.asarray(ds.y)
     if len(added):
         ds = apply_added_labels(ds, added, where=str(folder / "labels_added.csv"))
         notes.append(f"{len(added)} labels added to the study (labels_added.csv) are used")
@@ -308,15 +312,15 @@ def fit_model(
     X_enc = np.asarray(ds.X, dtype=np.float32)
     if m.representation != "raw":
         representation, stage_note = _unsupervised_stage(m.representation, ds, spec, folder,
-                                                         info)
+                                                         info, own_y)
         X = np.asarray(representation.transform(X_enc), dtype=np.float32)
         density, density_kind = representation, m.representation
     else:
         X = X_enc
-        diags = (info.get("representation") or {}).get("diagnostics") or {}
+        diags = StudyRecord.from_dict(info).representation
         density_kind = "vae" if "vae" in diags else "mixture"
         log.info("fitting/reading the %s stage for the out-of-distribution flag", density_kind)
-        density, _ = _unsupervised_stage(density_kind, ds, spec, folder, info)
+        density, _ = _unsupervised_stage(density_kind, ds, spec, folder, info, own_y)
 
     X_lab, y_lab = X[labeled], y[labeled]
     X_unl = None

@@ -109,22 +109,6 @@ def read_candidates(study_dir: Path) -> dict[str, np.ndarray] | None:
     return arrays
 
 
-def _lookup(sources: Iterable[Mapping], *names: str) -> Any:
-    """First value found under any of ``names`` at the top level or one level down."""
-    for src in sources:
-        if not isinstance(src, Mapping):
-            continue
-        for name in names:
-            if name in src and src[name] is not None:
-                return src[name]
-        for value in src.values():
-            if isinstance(value, Mapping):
-                for name in names:
-                    if name in value and value[name] is not None:
-                        return value[name]
-    return None
-
-
 def _as_int(value: Any) -> int | None:
     try:
         out = float(value)
@@ -181,43 +165,36 @@ class StudyFacts:
 
 
 def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
-    """Pull the facts the plan needs out of study.json (and data_card.json as a fallback)."""
-    sources = [study, card or {}]
+    """Pull the facts the plan needs out of study.json (read by the names the study writes,
+    :class:`semisup.study._folder.StudyRecord`), with data_card.json's counts as a fallback."""
+    from ..study._folder import StudyRecord
+
+    record = StudyRecord.from_dict(study)
+    card = card if isinstance(card, Mapping) else {}
     facts = StudyFacts()
-    facts.seed = _as_int(_lookup(sources, "seed", "study_seed")) or 0
-    facts.n_rows = _as_int(_lookup(sources, "n_rows"))
-    facts.n_labeled = _as_int(_lookup(sources, "n_labeled", "n_labelled", "labeled_rows"))
-    facts.n_unlabeled = _as_int(_lookup(sources, "n_unlabeled", "unlabeled_rows"))
-    holdout = _lookup(sources, "n_holdout", "holdout_size", "holdout_rows")
-    if holdout is None:
-        raw = _lookup(sources, "holdout")
-        holdout = raw if not isinstance(raw, Mapping) else _lookup([raw], "n_rows", "n", "size",
-                                                                    "rows")
-        if isinstance(holdout, float) and 0 < holdout < 1:
-            holdout = None  # a fraction, not a size
-    facts.n_holdout = _as_int(holdout)
-    evaluation = study.get("evaluation") if isinstance(study, Mapping) else None
-    if isinstance(evaluation, Mapping):
-        proto = str(evaluation.get("protocol") or "holdout").strip().lower().replace("-", "_")
-        facts.protocol = {"crossfit": "cross_fit", "cross_fitted": "cross_fit",
-                          "test": "test_file"}.get(proto, proto)
-        facts.n_eval = _as_int(evaluation.get("n_eval_min"))
-        facts.n_rows_evaluated = _as_int(evaluation.get("n_rows_evaluated"))
-        facts.folds = _as_int(evaluation.get("folds"))
-        per_repeat = evaluation.get("per_repeat")
-        facts.n_repeats = (len(per_repeat) if isinstance(per_repeat, list) and per_repeat
-                           else _as_int(_lookup(sources, "repeats")))
-    facts.evaluation = dict(evaluation) if isinstance(evaluation, Mapping) else None
-    data = study.get("data") if isinstance(study, Mapping) else None
-    counts = _lookup([data or {}, *sources], "labeled_class_counts", "class_counts")
+    facts.seed = record.seed or 0
+    facts.n_rows = record.data.n_rows if record.data.n_rows is not None else \
+        _as_int(card.get("n_rows"))
+    facts.n_labeled = record.data.n_labeled if record.data.n_labeled is not None else \
+        _as_int(card.get("n_labeled"))
+    facts.n_unlabeled = record.data.n_unlabeled
+    if facts.n_unlabeled is None and facts.n_rows is not None and facts.n_labeled is not None:
+        facts.n_unlabeled = facts.n_rows - facts.n_labeled
+    facts.n_holdout = record.holdout_rows
+    evaluation = record.evaluation
+    if evaluation is not None:
+        proto = str(evaluation.protocol or "holdout").strip().lower().replace("-", "_")
+        facts.protocol = proto
+        facts.n_eval = evaluation.n_eval_min
+        facts.n_rows_evaluated = evaluation.n_rows_evaluated
+        facts.folds = evaluation.folds
+        facts.n_repeats = evaluation.n_repeats or _as_int(record.spec.get("repeats"))
+        facts.evaluation = dict(evaluation.raw)
+    counts = record.data.class_counts or card.get("class_counts")
     if isinstance(counts, Mapping):
-        parsed = {str(k): float(v) for k, v in counts.items()
-                  if _as_int(v) is not None and float(v) >= 0}
-        facts.class_counts = parsed
-    facts.batch_size = _as_int(_lookup(sources, "uncertainty_batch", "selection_batch"))
-    warns = study.get("warnings") if isinstance(study, Mapping) else None
-    if isinstance(warns, list):
-        facts.warnings = [str(w) for w in warns]
+        facts.class_counts = {str(k): float(v) for k, v in counts.items()
+                              if _as_int(v) is not None and float(v) >= 0}
+    facts.warnings = list(record.warnings)
     return facts
 
 

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import torch
 
+from .._progress import Progress
 from ._config import VAEConfig
 from ._likelihood import BlockLayout
 from ._vae import VAEModule, row_terms
@@ -138,6 +139,9 @@ def train_module(
     started = time.perf_counter()
     show_bar = config.progress and _is_terminal()
     bar = _progress_bar(config.max_epochs) if show_bar else None
+    # not at a terminal: a line every tenth of the epochs or 30 s (an upper bound of the time
+    # left: early stopping may end sooner)
+    lines = None if _is_terminal() else Progress(config.max_epochs, "VAE epochs")
     epoch = 0
     try:
         for epoch in range(1, config.max_epochs + 1):
@@ -189,6 +193,8 @@ def train_module(
             record["seconds"] = time.perf_counter() - epoch_started
             record["cpu_seconds"] = time.process_time() - epoch_cpu
             _report(bar, record, epoch, config.max_epochs, started)
+            if lines is not None:
+                lines.update()
             if wait >= config.patience:
                 stopped_early = True
                 break

@@ -21,6 +21,7 @@ from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
 from .._errors import ConfigError, PlanError, StoreError
 from ..plan import METRICS, data_warnings, read_json, study_facts, tidy_cells
+from ..study._folder import StudyRecord, read_curves
 from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
 from ._text import (
@@ -69,37 +70,9 @@ def _read_csv(path: Path) -> pd.DataFrame | None:
         raise StoreError(f"{path} cannot be read as CSV ({exc}); write it again") from None
 
 
-def _find(src: Mapping, *names: str):
-    """First value under one of ``names`` at the top level or one level down."""
-    for name in names:
-        if isinstance(src, Mapping) and src.get(name) is not None:
-            return src[name]
-    for value in (src.values() if isinstance(src, Mapping) else ()):
-        if isinstance(value, Mapping):
-            for name in names:
-                if value.get(name) is not None:
-                    return value[name]
-    return None
-
-
-def _truthy(series: pd.Series) -> pd.Series:
-    if series.dtype == bool:
-        return series
-    return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
-
-
 def _curves_table(study_dir: Path) -> pd.DataFrame | None:
     """curves.csv as the study (measured points) or the plan (measured and fitted) wrote it."""
-    curves = _read_csv(study_dir / "curves.csv")
-    needed = {"method", "strategy", "metric", "n_labels", "mean", "low", "high", "measured"}
-    if curves is None or not needed <= set(curves.columns):
-        return None
-    curves = curves.copy()
-    curves["measured"] = _truthy(curves["measured"])
-    curves["method"] = curves["method"].astype(str)
-    curves["strategy"] = curves["strategy"].astype(str)
-    curves["metric"] = curves["metric"].astype(str)
-    return curves
+    return read_curves(study_dir / "curves.csv", StoreError)
 
 
 def _measured_level(curves: pd.DataFrame | None, plan: Mapping | None) -> float:
@@ -157,8 +130,7 @@ def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, s
     budgets = sorted({int(b) for b in curves.loc[curves["measured"], "n_labels"]})
     if not budgets:
         return None, ""
-    pool = _find(study.get("pool") or {}, "n_rows") if isinstance(study.get("pool"),
-                                                                   Mapping) else None
+    pool = StudyRecord.from_dict(study).pool_rows
     below = [b for b in budgets if pool is None or b < int(pool)]
     if not below:
         return budgets[-1], "every budget uses the whole pool, so the repeats do not differ"
@@ -190,8 +162,8 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
                          (_eval_rows_label(facts), facts.n_holdout)):
         if value is not None:
             rows.append([label, count(value)])
-    classes = _find(study, "class_names", "classes")
-    if isinstance(classes, (list, tuple)):
+    classes = StudyRecord.from_dict(study).data.class_names
+    if classes:
         rows.append(["classes", ", ".join(str(c) for c in classes)])
     if cells is not None:
         rows.append(["methods", ", ".join(sorted(cells["method"].astype(str).unique()))])
@@ -273,7 +245,7 @@ def _card_section(card: Mapping, study: Mapping) -> Section:
     text = imbalance_text(card)
     if text:
         s.para(text)
-    counts = _find(card, "class_counts") or _find(study, "class_counts")
+    counts = card.get("class_counts") or StudyRecord.from_dict(study).data.class_counts
     shares = card.get("labeled_class_shares")
     if isinstance(counts, Mapping) and counts:
         rows = [[str(k), count(v)] + ([percent((shares or {}).get(k))]
@@ -523,21 +495,20 @@ def _protocol_section(study: Mapping) -> Section:
     if isinstance(spec, Mapping) and spec:
         s.heading("Study settings")
         s.table(Table(["setting", "value"], pairs(spec, limit=40)))
-    rep = _find(study, "representation", "representations")
-    if isinstance(rep, Mapping) and rep:
-        diag = rep.get("diagnostics") if isinstance(rep.get("diagnostics"), Mapping) else rep
-        errors = rep.get("errors") if diag is not rep else None
+    record = StudyRecord.from_dict(study)
+    diag, errors = record.representation, record.representation_errors
+    if diag or errors:
         s.heading("Unsupervised stage diagnostics")
-        s.table(Table(["item", "value"], pairs(diag, limit=60)))
+        if diag:
+            s.table(Table(["item", "value"], pairs(diag, limit=60)))
         if isinstance(errors, Mapping) and errors:
             s.bullets([f"{k}: {short(v, 300)}" for k, v in errors.items()], "warn")
     return s
 
 
 def _title(study: Mapping, study_dir: Path) -> str:
-    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
-    source = data.get("source") or spec.get("data")
+    record = StudyRecord.from_dict(study)
+    source = record.data.source or record.spec.get("data")
     if source:
         return f"Label-budget study of {Path(str(source)).name}"
     return f"Label-budget study in {study_dir.resolve().name}"

@@ -6,6 +6,8 @@ same cell gives the same numbers on any worker of any backend.
 
 from __future__ import annotations
 
+import hashlib
+import json
 import logging
 import sys
 import time
@@ -21,7 +23,11 @@ from ..methods import align_proba
 from ._metrics import holdout_metrics
 from ._tuning import fit_method, tune_params
 
-__all__ = ["Cell", "CellContext", "cell_seed", "run_cell"]
+__all__ = ["CELL_CODE_VERSION", "Cell", "CellContext", "cell_key", "cell_seed", "run_cell"]
+
+#: Version of what a cell computes (this module, _tuning.py, _metrics.py): raise it when a
+#: change there changes a cell's numbers, so stored cells are measured again.
+CELL_CODE_VERSION = 1
 
 log = logging.getLogger(__name__)
 
@@ -80,6 +86,63 @@ def _unlabeled_rows(ctx: CellContext, fold: int, draw: np.ndarray, seed: int) ->
         rng = np.random.default_rng(derive_seed(seed, "unlabeled-sample"))
         rows = np.sort(rng.choice(rows, size=ctx.max_unlabeled, replace=False))
     return rows
+
+
+def _array_digest(h, a: np.ndarray) -> None:
+    a = np.ascontiguousarray(a, dtype=np.int64)
+    h.update(str(a.shape).encode())
+    h.update(a.tobytes())
+
+
+def _method_identity(method: Any) -> list[str]:
+    def where(fn: Any) -> str:
+        return f"{getattr(fn, '__module__', '')}.{getattr(fn, '__qualname__', repr(fn))}"
+
+    return [method.name, method.representation, str(bool(method.semi_supervised)),
+            json.dumps(method.default_params, sort_keys=True, default=str),
+            where(method.search_space), where(method.build)]
+
+
+def _seen_unlabeled_digest(ctx: CellContext, fold: int, memo: dict) -> str:
+    """Digest of the rows a semi-supervised cell of ``fold`` may see unlabeled before its
+    draw is taken out and the cap applied (see :func:`_unlabeled_rows`): the unlabeled rows,
+    the fold's pool and, when transductive, its evaluation rows, as one sorted set."""
+    if fold not in memo:
+        parts = [ctx.unlabeled_idx, ctx.pools[fold]]
+        if ctx.transductive:
+            parts.append(ctx.evals[fold])
+        h = hashlib.sha256(f"{ctx.transductive}:{ctx.max_unlabeled}".encode())
+        _array_digest(h, np.unique(np.concatenate(parts)))
+        memo[fold] = h.hexdigest()
+    return memo[fold]
+
+
+def cell_key(ctx: CellContext, cell: Cell, representation_key: str,
+             class_names: list[str], memo: dict | None = None) -> str:
+    """A digest of everything the cell's numbers depend on.
+
+    The method's identity and the code version, the representation's own key, the classes,
+    the tuning settings, the cell's seed, the training rows and their labels, the evaluation
+    rows and their labels, and for a semi-supervised method the rows it sees unlabeled (the
+    fold's set less the draw, capped with the cell's seed: the set's digest, the cap and the
+    draw decide them). A stored cell with the same key measures the same thing and is kept;
+    any difference runs it again, so "unchanged" is checked, never assumed. ``memo`` keeps
+    the per-fold digests between calls.
+    """
+    fold = ctx.repeat_fold[cell.repeat]
+    method = ctx.methods[cell.method]
+    seed = cell_seed(ctx.seed, cell)
+    draw = ctx.pools[fold][ctx.orders[(cell.strategy, cell.repeat)][: cell.n_labels]]
+    eval_idx = ctx.evals[fold]
+    h = hashlib.sha256()
+    h.update(json.dumps([CELL_CODE_VERSION, _method_identity(method), representation_key,
+                         list(class_names), ctx.n_classes, ctx.trials, ctx.cv_folds, seed,
+                         cell.n_labels]).encode("utf-8"))
+    for part in (draw, ctx.y[draw], eval_idx, ctx.y[eval_idx]):
+        _array_digest(h, part)
+    if method.semi_supervised:
+        h.update(_seen_unlabeled_digest(ctx, fold, {} if memo is None else memo).encode())
+    return h.hexdigest()
 
 
 def run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:

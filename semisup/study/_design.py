@@ -1,7 +1,11 @@
 """The study's design: the data, the evaluation rows, the budgets, the methods, the fingerprint.
 
-Everything here is decided before any model is fitted, and everything that decides a cell's
-numbers goes into the fingerprint, so a resumed study never mixes cells of two designs.
+Everything here is decided before any model is fitted. Two fingerprints: the settings
+fingerprint covers what would change every cell (the table, the protocol, seed, trials, the
+unsupervised stage); a store holding another is refused. Repeats, budgets, methods,
+strategies and added labels only add (or drop) cells; each cell's own content key
+(:func:`semisup.study._cell.cell_key`) then decides whether a stored cell still measures this
+design. The full fingerprint names the study's state (study.json, plans).
 """
 
 from __future__ import annotations
@@ -13,6 +17,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
@@ -52,10 +57,14 @@ class StudyDesign:
     kinds: set[str]
     fingerprint: str
     test: Any = None
-    #: the fingerprint without the labels added by rounds (labels_added.csv): a study whose
-    #: base is unchanged but whose added labels grew is a new round, not another spec
-    base_fingerprint: str = ""
+    #: what invalidates every cell (not repeats, budgets, methods, strategies, added labels)
+    settings_fingerprint: str = ""
     n_added_labels: int = 0
+    #: ``pool_parts[f]``: ``(round, n_rows)`` of pool ``f`` in order (round 0: the table's
+    #: own labeled rows; then each labeling round's rows, training rows only)
+    pool_parts: dict[int, list[tuple[int, int]]] = dataclasses.field(default_factory=dict)
+    #: per representation kind ("raw" too), a digest of what its features depend on
+    representation_keys: dict[str, str] = dataclasses.field(default_factory=dict)
 
     def eval_idx(self, repeat: int) -> np.ndarray:
         return self.evals[self.repeat_fold[repeat]]
@@ -99,26 +108,60 @@ def _data_digest(ds) -> str:
     return h.hexdigest()
 
 
-def _fingerprint(resolved: StudySpec, kinds: set[str], ds, injected_representation: bool,
-                 test: Any) -> str:
+#: Spec keys that only add or drop cells: they are left out of the settings fingerprint.
+GROWING_KEYS = ("repeats", "budgets", "methods", "strategies", "metrics")
+#: Spec keys that decide how the table is read (and so the raw features).
+_LOADING_KEYS = ("label_column", "id_column", "unlabeled_markers", "kinds", "delimiter",
+                 "encoding")
+
+
+def _digest(*parts: Any) -> str:
+    return hashlib.sha256(json.dumps(parts, sort_keys=True, default=str).encode("utf-8")
+                          ).hexdigest()
+
+
+def _resolved_pretrain(resolved: StudySpec, kinds: set[str], injected: bool) -> dict:
+    # The unsupervised stages' parameters with their defaults filled in: a new default in a
+    # later release must not resume cells measured on the old representation. An injected
+    # stand-in has its own parameters.
+    if injected:
+        return {kind: dict(resolved.pretrain.get(kind, {})) for kind in sorted(kinds)}
+    from ..pretrain import representation_params
+
+    return {kind: representation_params(kind, dict(resolved.pretrain.get(kind, {})))
+            for kind in sorted(kinds)}
+
+
+def _settings_fingerprint(resolved: StudySpec, kinds: set[str], data_digest: str,
+                          injected_representation: bool, test: Any) -> str:
     # The tables' paths are left out (their content hashes are in): moving a file keeps the
     # study.
-    facts = {k: v for k, v in resolved.to_dict().items() if k not in ("data", "test_data")}
+    facts = {k: v for k, v in resolved.to_dict().items()
+             if k not in ("data", "test_data", *GROWING_KEYS)}
     if test is not None:
         facts["test_data_sha256"] = test.sha256
-    # The unsupervised stages' parameters with their defaults filled in: a new default in a
-    # later release must not resume cells measured on the old representation.
-    if kinds and not injected_representation:  # an injected stand-in has its own parameters
-        from ..pretrain import representation_params
-
-        facts.pop("pretrain", None)  # replaced by the resolved parameters below
-        facts["pretrain_resolved"] = {
-            kind: representation_params(kind, dict(resolved.pretrain.get(kind, {})))
-            for kind in sorted(kinds)
-        }
+    if kinds:
+        facts.pop("pretrain", None)  # replaced by the resolved parameters
+        facts["pretrain_resolved"] = _resolved_pretrain(resolved, kinds,
+                                                        injected_representation)
     return hashlib.sha256(
-        (json.dumps(facts, sort_keys=True, default=str) + _data_digest(ds)).encode("utf-8")
+        (json.dumps(facts, sort_keys=True, default=str) + data_digest).encode("utf-8")
     ).hexdigest()
+
+
+def _representation_keys(resolved: StudySpec, kinds: set[str], data_digest: str,
+                         injected: bool, test: Any, rep_rows: np.ndarray) -> dict[str, str]:
+    """What each representation's features depend on: the table as read, and for a fitted
+    stage its resolved parameters, its seed and the rows it is fitted on."""
+    loading = {k: resolved.to_dict()[k] for k in _LOADING_KEYS}
+    raw = _digest("raw", data_digest, loading, None if test is None else test.sha256)
+    keys = {"raw": raw}
+    params = _resolved_pretrain(resolved, kinds, injected) if kinds else {}
+    rows = hashlib.sha256(np.ascontiguousarray(rep_rows, dtype=np.int64).tobytes()).hexdigest()
+    for kind in sorted(kinds):
+        keys[kind] = _digest(kind, raw, params[kind], derive_seed(resolved.seed, "pretrain", kind),
+                             rows)
+    return keys
 
 
 def _check_folds(spec: StudySpec, y_lab: np.ndarray, class_names: list[str]) -> None:
@@ -139,7 +182,8 @@ def _check_folds(spec: StudySpec, y_lab: np.ndarray, class_names: list[str]) -> 
 
 
 def _crossfit(spec: StudySpec, ds, y, labeled):
-    """Fold assignments: repeat r uses fold r % K of cycle r // K (a fresh seeded assignment)."""
+    """Fold assignments of the table's own labeled rows: repeat r uses fold r % K of cycle
+    r // K (a fresh seeded assignment)."""
     k = spec.folds
     _check_folds(spec, y[labeled], list(ds.class_names))
     keys = np.asarray(ds.row_ids, dtype=str)[labeled]
@@ -151,6 +195,30 @@ def _crossfit(spec: StudySpec, ds, y, labeled):
             evals[cycle * k + j] = labeled[fold == j]
             pools[cycle * k + j] = labeled[fold != j]
     return evals, pools, list(range(spec.repeats))
+
+
+def _round_rows(ds, added: Any, own_labeled: np.ndarray) -> list[tuple[int, np.ndarray]]:
+    """``(round, row positions)`` of the rows the rounds labeled (not already labeled in the
+    table), rounds in order, rows of a round in table order."""
+    if added is None or not len(added):
+        return []
+    ids = pd.Index(np.asarray(ds.row_ids).astype(str))
+    pos = ids.get_indexer(list(added.row_ids))
+    rounds = np.asarray(added.rounds, dtype=np.int64)
+    fresh = ~np.isin(pos, own_labeled)
+    return [(int(r), np.sort(pos[fresh & (rounds == r)])) for r in np.unique(rounds[fresh])]
+
+
+def _default_budgets(n_classes: int, base_pool: int,
+                     rounds: list[tuple[int, np.ndarray]]) -> list[int]:
+    """The grid of the table's own pool, and the whole pool after each round: a round adds
+    budgets and keeps the earlier ones."""
+    grid = set(default_budgets(n_classes, base_pool)) if base_pool else set()
+    total = base_pool
+    for _, rows in rounds:
+        total += len(rows)
+        grid.add(total)
+    return sorted(grid)
 
 
 def make_design(spec: StudySpec, dataset: Any = None, *,
@@ -166,11 +234,14 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     from ..methods import get_method
 
     ds = dataset if dataset is not None else _load_dataset(spec)
+    data_digest = _data_digest(ds)  # of the table as given: added labels are not in it
+    own_labeled = np.flatnonzero(np.asarray(ds.y) >= 0)
     n_added = len(added) if added is not None else 0
     if n_added:
         from ._rounds import ADDED_LABELS_FILE, apply_added_labels
 
         ds = apply_added_labels(ds, added, where=ADDED_LABELS_FILE)
+    rounds = _round_rows(ds, added, own_labeled)
     y = np.asarray(ds.y, dtype=np.int64)
     n_classes = len(ds.class_names)
     n_table = len(y)
@@ -188,19 +259,20 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     protocol = spec.evaluation
     where = "labeled rows of the smallest training pool"
     if protocol == "cross-fit":
-        evals, pools, repeat_fold = _crossfit(spec, ds, y, labeled)
+        evals, pools, repeat_fold = _crossfit(spec, ds, y, own_labeled)
         # Features of every row, never a label: see DEVELOPERS.md "The study protocol".
         rep_rows = np.sort(np.concatenate([unlabeled_idx, labeled]))
         final = labeled
         n_folds = spec.folds
     elif protocol == "holdout":
-        hold_pos, pool_pos = split_holdout(y[labeled], spec.holdout,
+        hold_pos, pool_pos = split_holdout(y[own_labeled], spec.holdout,
                                            derive_seed(spec.seed, "holdout"))
-        evals, pools = {0: labeled[hold_pos]}, {0: labeled[pool_pos]}
+        evals, pools = {0: own_labeled[hold_pos]}, {0: own_labeled[pool_pos]}
         repeat_fold = [0] * spec.repeats
-        parts = [unlabeled_idx, pools[0]] + ([evals[0]] if spec.transductive else [])
-        rep_rows = np.sort(np.concatenate(parts))
-        final = pools[0]
+        # the rounds' rows join the pool below: features of every row but the holdout's
+        parts = [unlabeled_idx, pools[0]] + [r for _, r in rounds]
+        rep_rows = np.sort(np.concatenate(parts + ([evals[0]] if spec.transductive else [])))
+        final = np.sort(np.concatenate([pools[0]] + [r for _, r in rounds]))
         n_folds = 1
         where = "labeled rows outside the holdout"
     else:  # test-file
@@ -212,7 +284,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         )
         y = np.asarray(ds.y, dtype=np.int64)
         test_idx = np.arange(n_table, len(y))
-        evals, pools = {0: test_idx}, {0: labeled}
+        evals, pools = {0: test_idx}, {0: own_labeled}
         repeat_fold = [0] * spec.repeats
         parts = [unlabeled_idx, labeled] + ([test_idx] if spec.transductive else [])
         rep_rows = np.sort(np.concatenate(parts))
@@ -220,8 +292,16 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         n_folds = 1
         where = "labeled rows of the table"
 
+    # the rounds' rows are training rows of every repeat, after the table's own (so the
+    # random draws of a smaller pool stay prefixes): DEVELOPERS.md "The study protocol"
+    base_pool = min(len(p) for p in pools.values())
+    pool_parts = {f: [(0, len(p))] + [(r, len(rows)) for r, rows in rounds]
+                  for f, p in pools.items()}
+    pools = {f: np.concatenate([p] + [rows for _, rows in rounds]).astype(np.int64)
+             for f, p in pools.items()}
     n_pool = min(len(pools[f]) for f in set(repeat_fold))
-    budgets = list(spec.budgets) if spec.budgets else default_budgets(n_classes, n_pool)
+    budgets = (list(spec.budgets) if spec.budgets
+               else _default_budgets(n_classes, base_pool, rounds))
     too_big = [b for b in budgets if b > n_pool]
     if too_big:
         raise ConfigError(
@@ -230,16 +310,20 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         )
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
     kinds = {m.representation for m in methods.values()} - {"raw"}
-    base = _fingerprint(resolved, kinds, ds, injected_representation, test)
-    fingerprint = base
+    settings = _settings_fingerprint(resolved, kinds, data_digest, injected_representation,
+                                     test)
+    grown = {k: resolved.to_dict()[k] for k in GROWING_KEYS}
     if n_added:  # the table's hash does not change with added labels; their content does
-        pairs = "\n".join(f"{i}\0{lab}" for i, lab in zip(added.row_ids, added.labels,
-                                                           strict=True))
-        fingerprint = hashlib.sha256((base + "\0added\0" + pairs).encode("utf-8")).hexdigest()
+        grown["added"] = [list(t) for t in zip(added.row_ids, added.labels, added.rounds,
+                                               strict=True)]
+    fingerprint = _digest(settings, grown)
     return StudyDesign(
         spec=resolved, ds=ds, y=y, n_classes=n_classes, n_table_rows=n_table, labeled=labeled,
         unlabeled_idx=unlabeled_idx, protocol=protocol, n_folds=n_folds, evals=evals,
         pools=pools, repeat_fold=repeat_fold, representation_rows=rep_rows,
         final_train_idx=final, budgets=budgets, methods=methods, kinds=kinds,
-        fingerprint=fingerprint, test=test, base_fingerprint=base, n_added_labels=n_added,
+        fingerprint=fingerprint, test=test, settings_fingerprint=settings,
+        n_added_labels=n_added, pool_parts=pool_parts,
+        representation_keys=_representation_keys(resolved, kinds, data_digest,
+                                                  injected_representation, test, rep_rows),
     )

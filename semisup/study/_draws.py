@@ -19,7 +19,8 @@ from .._seeding import derive_seed
 from ..selection import acquisition_order, stratified_order
 
 __all__ = [
-    "acquisition_orders", "crossfit_folds", "default_budgets", "nested_draws", "split_holdout",
+    "acquisition_orders", "crossfit_folds", "default_budgets", "grown_order", "nested_draws",
+    "split_holdout",
 ]
 
 
@@ -139,23 +140,55 @@ def default_budgets(n_classes: int, pool_size: int, n_points: int = 6) -> list[i
     return sorted({int(round(v)) for v in grid})
 
 
+def grown_order(y_pool: np.ndarray, parts: Sequence[tuple[int, int]], seed: int,
+                repeat: int) -> np.ndarray:
+    """A stratified random order of a pool made of parts: the base rows, then each round's.
+
+    ``parts`` lists ``(round, n_rows)`` in pool order (round 0 is the table's own labeled
+    rows). Each part is ordered on its own (:func:`semisup.selection.stratified_order`; the
+    base part with the seed a study without rounds uses) and the parts follow each other, so
+    a round appended to the pool leaves every earlier prefix, and so every earlier draw, as it
+    was.
+    """
+    y_pool = np.asarray(y_pool)
+    if sum(n for _, n in parts) != len(y_pool):
+        raise ValueError(f"parts hold {sum(n for _, n in parts)} rows, the pool {len(y_pool)}")
+    out: list[np.ndarray] = []
+    start = 0
+    for rnd, n in parts:
+        if n:
+            s = derive_seed(seed, "draw", repeat) if rnd == 0 else \
+                derive_seed(seed, "draw", repeat, "round", rnd)
+            out.append(start + stratified_order(y_pool[start:start + n], s))
+        start += n
+    return np.concatenate(out) if out else np.zeros(0, dtype=np.int64)
+
+
 def acquisition_orders(
     features: dict[str, np.ndarray], y: np.ndarray, pools: Sequence[np.ndarray],
     budgets: Sequence[int], strategies: Sequence[str], seed: int,
+    parts: Sequence[Sequence[tuple[int, int]]] | None = None,
 ) -> tuple[dict[tuple[str, int], np.ndarray], str]:
     """Per (strategy, repeat), the order in which the repeat's pool labels are revealed.
 
-    ``pools[repeat]`` holds the table rows repeat ``repeat`` may train on; an order indexes
-    into it. Strategies that look at the rows use the VAE latent when there is one, else the
+    Selection-based strategies use the VAE latent space when the study fitted one, else the
     raw table; returns ``(orders, kind used)``. Every strategy of a repeat starts from the same
-    seed, so uncertainty starts from the random draw.
+    seed, so uncertainty starts from the random draw. ``parts[r]`` (see :func:`grown_order`)
+    splits pool ``r`` into the base rows and the rounds' rows; the random strategy keeps the
+    draws of a smaller pool as prefixes. The other strategies choose from the whole pool, so
+    their draws may change when it grows (the cells' content keys then tell).
     """
     z_kind = "vae" if "vae" in features else "raw"
     orders: dict[tuple[str, int], np.ndarray] = {}
+    n_max = max(int(b) for b in budgets) if len(budgets) else 0
     for strategy in strategies:
         for repeat, pool_idx in enumerate(pools):
-            order, _ = acquisition_order(strategy, features[z_kind][pool_idx], y[pool_idx],
-                                         budgets, seed=derive_seed(seed, "draw", repeat),
-                                         proba_fn=None)
+            if strategy == "random":
+                own = parts[repeat] if parts is not None else [(0, len(pool_idx))]
+                order = grown_order(y[pool_idx], own, seed, repeat)[:n_max]
+            else:
+                order, _ = acquisition_order(strategy, features[z_kind][pool_idx], y[pool_idx],
+                                             budgets, seed=derive_seed(seed, "draw", repeat),
+                                             proba_fn=None)
             orders[(strategy, repeat)] = order
     return orders, z_kind

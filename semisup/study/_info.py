@@ -61,9 +61,20 @@ _COMMON_NOTES = [
 ]
 
 
-def protocol_notes(protocol: str) -> list[str]:
-    """The protocol lines study.json records for evaluation ``protocol``."""
-    return [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES]
+#: The note of a study grown by labeling rounds (labels_added.csv).
+ROUNDS_NOTE = (
+    "labels returned in labeling rounds (labels_added.csv) are training rows only: they join "
+    "every repeat's pool after the table's own labeled rows, round after round, each round in "
+    "its own stratified random order, so the draws of the smaller pool stay as they were; they "
+    "are never evaluated (the plan chose them, so they are no random sample) and the "
+    "evaluation rows stay the table's own"
+)
+
+
+def protocol_notes(protocol: str, rounds: bool = False) -> list[str]:
+    """The protocol lines study.json records for evaluation ``protocol`` (``rounds``: the
+    study holds labels returned in labeling rounds)."""
+    return [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES, *([ROUNDS_NOTE] if rounds else [])]
 
 
 #: The default (cross-fit) protocol's notes.
@@ -83,6 +94,8 @@ def evaluation_facts(design: Any) -> dict[str, Any]:
     n_pool = [int(len(design.pool_idx(r))) for r in repeats]
     rep_rows = design.representation_rows
     test = design.test
+    parts = design.pool_parts.get(design.repeat_fold[0], []) if design.pool_parts else []
+    rounds = [{"round": int(r), "n_rows": int(n)} for r, n in parts if r > 0]
     return {
         "protocol": design.protocol,
         "folds": int(design.n_folds),
@@ -93,6 +106,9 @@ def evaluation_facts(design: Any) -> dict[str, Any]:
         "n_rows_evaluated": design.n_rows_evaluated,
         "n_eval_min": min(n_eval), "n_eval_max": max(n_eval),
         "n_pool_min": min(n_pool), "n_pool_max": max(n_pool),
+        # rows labeled in rounds (labels_added.csv): in every pool, never evaluated
+        "rounds": rounds,
+        "n_round_rows": int(sum(r["n_rows"] for r in rounds)),
         "per_repeat": [{"repeat": r, "fold": int(design.repeat_fold[r]), "n_eval": n_eval[r],
                         "n_pool": n_pool[r]} for r in repeats],
         "evaluated_class_counts": _counts(
@@ -182,7 +198,7 @@ def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: 
         "max_unlabeled_per_cell": spec.max_unlabeled,
         "selection_representation": order_kind,
         "status_counts": {k: int(v) for k, v in counts.items()},
-        "protocol": protocol_notes(design.protocol),
+        "protocol": protocol_notes(design.protocol, bool(evaluation["rounds"])),
         "warnings": warnings_,
         "representation": {"diagnostics": diagnostics, "errors": rep_errors},
         "timing": timing,

@@ -9,7 +9,8 @@ here once (:data:`OUTPUT_FILES`, :data:`OUTPUT_FOLDERS`), so that
 - ``--restart`` removes every output of the old study (:func:`remove_outputs`), so no
   plan.json, label_next.csv or report of the old study is shown with the new one.
 
-Nothing else in the folder is touched.
+Nothing else in the folder is touched. What the files hold is read back, typed, by
+:mod:`semisup.study._folder` (study.json, curves.csv).
 """
 
 from __future__ import annotations

@@ -2,8 +2,10 @@
 
 The user's table is never modified. Labels returned by annotators (``semisup add-labels``)
 are merged into :data:`ADDED_LABELS_FILE` in the study folder (columns ``row_id``,
-``label``), written atomically; the study design reads it as an overlay on the table's
-labels (:func:`read_added_labels`, :func:`apply_added_labels`).
+``label``, ``round``: each ``add-labels`` run that adds rows is the next round), written
+atomically; the study design reads it as an overlay on the table's labels
+(:func:`read_added_labels`, :func:`apply_added_labels`). The rows of a round are training
+rows only (DEVELOPERS.md "The study protocol", growing studies).
 
 A sheet the plan writes names the study it belongs to in :data:`SHEET_STUDY_COLUMN`:
 :func:`study_id` (a digest of the table's content, its label column and its id column), so a
@@ -25,6 +27,7 @@ import pandas as pd
 
 from .._atomic import atomic_write_text
 from .._errors import DataError
+from ._folder import StudyRecord, read_study_record
 
 __all__ = ["ADDED_LABELS_FILE", "SHEET_STUDY_COLUMN", "AddResult", "AddedLabels",
            "add_labels", "apply_added_labels", "read_added_labels", "study_id",
@@ -38,15 +41,14 @@ ADDED_LABELS_FILE = "labels_added.csv"
 SHEET_STUDY_COLUMN = "semisup_study"
 
 
-def study_id(study: Mapping) -> str | None:
+def study_id(study: Mapping | StudyRecord) -> str | None:
     """A short id of the study a sheet belongs to, from study.json (None if unknown).
 
     Built from the table's sha256 and the label and id columns: unchanged by added labels
     (the table is never modified), different for another table or another label column.
     """
-    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
-    digest = data.get("sha256")
+    record = study if isinstance(study, StudyRecord) else StudyRecord.from_dict(study)
+    digest, spec = record.data.sha256, record.spec
     if not digest:
         return None
     key = "\0".join([str(digest), str(spec.get("label_column")), str(spec.get("id_column"))])
@@ -55,17 +57,27 @@ def study_id(study: Mapping) -> str | None:
 
 @dataclass(frozen=True)
 class AddedLabels:
-    """Labels added to a study: ``row_ids`` and ``labels`` (strings), in file order."""
+    """Labels added to a study: ``row_ids`` and ``labels`` (strings) and the labeling round
+    of each (1, 2, ...; all 1 when not given), in file order."""
 
     row_ids: tuple[str, ...]
     labels: tuple[str, ...]
+    rounds: tuple[int, ...] = ()
+
+    def __post_init__(self) -> None:
+        if not self.rounds:
+            object.__setattr__(self, "rounds", (1,) * len(self.row_ids))
 
     def __len__(self) -> int:
         return len(self.row_ids)
 
+    @property
+    def last_round(self) -> int:
+        return max(self.rounds, default=0)
+
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame({"row_id": list(self.row_ids), "label": list(self.labels)},
-                            dtype=object)
+        return pd.DataFrame({"row_id": list(self.row_ids), "label": list(self.labels),
+                             "round": [str(r) for r in self.rounds]}, dtype=object)
 
 
 def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
@@ -81,7 +93,15 @@ def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
     if list(frame.columns[:2]) != ["row_id", "label"]:
         raise DataError(f"{path} should have the columns row_id, label; remove it or restore "
                         "it from a backup")
-    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]))
+    rounds: tuple[int, ...] = ()
+    if "round" in frame.columns:
+        text = frame["round"].str.strip()
+        if not text.str.fullmatch(r"[1-9][0-9]*").all():
+            bad = frame["round"][~text.str.fullmatch(r"[1-9][0-9]*")].iloc[0]
+            raise DataError(f"{path}: column 'round' holds {bad!r}, not a round number (1, 2, "
+                            "...); remove it or restore the file from a backup")
+        rounds = tuple(int(v) for v in text)
+    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]), rounds)
 
 
 def write_added_labels(out_dir: str | os.PathLike[str], added: AddedLabels) -> Path:
@@ -142,17 +162,11 @@ class AddResult:
         return text + ". Run 'semisup study' on the folder again to use them."
 
 
-def _read_json(path: Path) -> dict:
-    import json
-
+def _read_study(path: Path) -> StudyRecord:
     if not path.is_file():
         raise DataError(f"{path.parent} is not a study folder ({path.name} is missing); run "
                         "'semisup study' first, or give the study's --out folder")
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (ValueError, OSError) as exc:
-        raise DataError(f"{path} cannot be read ({exc}); run the study again") from None
-    return data if isinstance(data, dict) else {}
+    return read_study_record(path, DataError)
 
 
 def _column(frame: pd.DataFrame, name: str, where: str, what: str) -> str:
@@ -165,13 +179,12 @@ def _column(frame: pd.DataFrame, name: str, where: str, what: str) -> str:
                     "'semisup plan' wrote, with that column kept")
 
 
-def _returned_labels(study: Mapping, returned: Path) -> tuple[list[str], list[str], int]:
+def _returned_labels(study: StudyRecord, returned: Path) -> tuple[list[str], list[str], int]:
     """``(row ids, labels, blank rows)`` of a returned sheet, quotes taken off, checked."""
     from .._escape import restore_cell
     from ..data import read_table
 
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
-    label_column = str(spec.get("label_column") or "label")
+    label_column = str(study.spec.get("label_column") or "label")
     where = str(returned)
     frame = read_table(returned, text_columns=("row_id", label_column, SHEET_STUDY_COLUMN))
     frame.columns = [str(c) for c in frame.columns]
@@ -220,8 +233,8 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
     from ..data import load_dataset
 
     out = Path(study_dir)
-    study = _read_json(out / "study.json")
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    study = _read_study(out / "study.json")
+    spec = study.spec
     ids, labels, n_blank = _returned_labels(study, Path(returned))
     if not spec.get("data") or not spec.get("label_column"):
         raise DataError(f"{out / 'study.json'} does not name the study's table and label "
@@ -247,6 +260,8 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
                         f"{', '.join(names)}); correct it, or pass --allow-new-class if it "
                         "really is a new class")
     added_ids, added_labels = list(before.row_ids), list(before.labels)
+    added_rounds = list(before.rounds)
+    this_round = before.last_round + 1
     n_known = 0
     for rid, label, p in zip(ids, labels, pos, strict=True):
         old = int(current.y[p])
@@ -259,39 +274,9 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
             continue
         added_ids.append(rid)
         added_labels.append(label)
-    path = write_added_labels(out, AddedLabels(tuple(added_ids), tuple(added_labels)))
+        added_rounds.append(this_round)
+    path = write_added_labels(out, AddedLabels(tuple(added_ids), tuple(added_labels),
+                                               tuple(added_rounds)))
     log.info("added %d labels to %s", len(added_ids) - len(before), path)
     return AddResult(n_added=len(added_ids) - len(before), n_known=n_known, n_blank=n_blank,
                      path=path, new_classes=tuple(new))
-
-
-def stored_meta(store_path: str | os.PathLike[str], key: str) -> str | None:
-    """A value of an existing study store's meta table, read only (None if absent)."""
-    import sqlite3
-
-    path = Path(store_path)
-    if not path.is_file():
-        return None
-    try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30)
-        try:
-            row = con.execute("SELECT value FROM meta WHERE key = ?", (key,)).fetchone()
-        finally:
-            con.close()
-    except sqlite3.DatabaseError:
-        return None
-    return None if row is None else str(row[0])
-
-
-def is_new_round(out_dir: str | os.PathLike[str], design) -> bool:
-    """True when the folder's store holds the same study before labels were added.
-
-    Same base fingerprint (spec and table), another fingerprint (the added labels changed).
-    Then the old cells no longer measure this design and the runner starts the cells again,
-    keeping labels_added.csv and the content-keyed cache of the unsupervised stage.
-    """
-    store = Path(out_dir) / "study.sqlite"
-    old = stored_meta(store, "fingerprint")
-    if old is None or old == design.fingerprint:
-        return False
-    return stored_meta(store, "base_fingerprint") == design.base_fingerprint

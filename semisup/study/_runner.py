@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import logging
 import os
-import sys
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -15,9 +15,10 @@ from typing import Any
 import pandas as pd
 
 from .._errors import ConfigError
+from .._progress import Progress
 from ._backends import run_cells
 from ._candidates import refit_candidates
-from ._cell import Cell, CellContext, cell_seed
+from ._cell import Cell, CellContext, cell_key, cell_seed
 from ._design import make_design
 from ._draws import acquisition_orders
 from ._exports import cells_frame, write_data_card, write_exports
@@ -25,7 +26,7 @@ from ._info import PROTOCOL_NOTES, study_info
 from ._layout import check_input_outside_outputs, check_out_folder, remove_outputs
 from ._lock import study_lock
 from ._representations import fit_representations
-from ._rounds import ADDED_LABELS_FILE, is_new_round, read_added_labels
+from ._rounds import read_added_labels
 from ._spec import StudySpec
 from ._store import Store
 
@@ -64,6 +65,10 @@ class StudyResult:
                              f"{int(r['size'])} repeats)")
         for w in self.info.get("warnings", [])[:3]:
             lines.append(f"warning: {w}")
+        run = self.info.get("this_run") or {}
+        if run.get("kept"):
+            lines.append(f"{run['kept']} cell(s) kept from earlier runs (unchanged draw, "
+                         f"evaluation rows and settings), {run['run']} run now")
         lines.append(f"wrote cells.csv, curves.csv, study.json, candidates.npz in {self.out_dir}")
         return "\n".join(lines)
 
@@ -93,19 +98,6 @@ def summary_budget(info: dict, budgets: pd.Series) -> int:
         if below:
             return below[-1]
     return levels[-1]
-
-
-def _progress(total: int, enabled: bool | None):
-    try:
-        from tqdm.auto import tqdm
-    except ImportError:  # pragma: no cover
-        return None
-    if enabled is None:
-        # A bar only where a person watches: stderr is a terminal and info messages are on.
-        enabled = sys.stderr.isatty() and log.getEffectiveLevel() <= logging.INFO
-    disable = not enabled
-    return tqdm(total=total, desc="cells", unit="cell", disable=disable, leave=False,
-                mininterval=1.0)
 
 
 def run_study(
@@ -140,7 +132,8 @@ def run_study(
     representation_fn : callable, optional
         Stand-in for ``semisup.pretrain.fit_representation`` (same signature).
     progress : bool, optional
-        Show a progress bar (default: when logging is at INFO or more detailed).
+        Show progress: a bar on a terminal, else a line every tenth of the cells or 30 s
+        (default: when logging is at INFO or more detailed).
     """
     t_start = time.perf_counter()
     out = Path(out_dir)
@@ -166,13 +159,10 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
     resolved, ds, y, methods = design.spec, design.ds, design.y, design.methods
     if restart:  # every output of the old study goes, not only its store
         remove_outputs(out)
-    elif is_new_round(out, design):  # labels were added: the cells run again on them
-        log.info("%d added labels: a new round, the cells are measured again",
-                 design.n_added_labels)
-        remove_outputs(out, keep=(ADDED_LABELS_FILE, "cache"))
-    store = Store(out / "study.sqlite", design.fingerprint, restart=restart)
-    if store.get_meta("base_fingerprint") is None:
-        store.set_meta("base_fingerprint", design.base_fingerprint)
+    # A grown study (more repeats, budgets, methods or added labels) keeps its store: each
+    # stored cell whose content key this design computes again is kept.
+    store = Store(out / "study.sqlite", design.settings_fingerprint, state=design.fingerprint,
+                  restart=restart)
     try:
         # ---- unsupervised stage: once per study, on features only (never a label)
         features, diagnostics, rep_errors, rep_seconds = fit_representations(
@@ -183,6 +173,7 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         orders, order_kind = acquisition_orders(
             features, y, [design.pool_idx(r) for r in range(resolved.repeats)], design.budgets,
             resolved.strategies, resolved.seed,
+            parts=[design.pool_parts[design.repeat_fold[r]] for r in range(resolved.repeats)],
         )
 
         ctx = CellContext(
@@ -194,14 +185,16 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
             cv_folds=resolved.cv_folds, max_unlabeled=resolved.max_unlabeled,
             transductive=resolved.transductive,
         )
-        cells_seconds = _run_all_cells(ctx, design, store, rep_errors, jobs, cluster,
-                                       rerun_failed, progress)
+        keys = _cell_keys(ctx, design)
+        cells_seconds, counts = _run_all_cells(ctx, design, keys, store, rep_errors, jobs,
+                                               cluster, rerun_failed, progress)
 
-        cells = cells_frame(store.cells(), list(ds.class_names))
+        cells = cells_frame(store.cells(set(keys.values())), list(ds.class_names))
         info = study_info(design, cells, diagnostics, rep_errors,
                           json.loads(store.get_meta("pretrain_seconds")), order_kind, jobs,
                           cluster)
         info["timing"]["this_run_cells_seconds"] = cells_seconds
+        info["this_run"] = counts
         info["candidates"] = refit_candidates(out, ds, ctx, methods, cells, features, resolved,
                                               design.final_train_idx)
         card = write_data_card(out, resolved, dataset is not None, info)
@@ -216,33 +209,44 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
     return StudyResult(out_dir=out, cells=cells, info=info)
 
 
-def _run_all_cells(ctx, design, store, rep_errors, jobs, cluster, rerun_failed,
-                   progress) -> float:
-    """Run the cells the store does not hold yet; return the seconds spent running them."""
+def _cell_keys(ctx: CellContext, design) -> dict[Cell, str]:
+    """Every cell of the design with its content key (see :func:`cell_key`)."""
     resolved = design.spec
-    all_cells = [
-        Cell(m, b, r, s)
+    names = list(design.ds.class_names)
+    full = dataclasses.replace(ctx, methods=design.methods)  # failed stages' methods too
+    memo: dict = {}
+    return {
+        cell: cell_key(full, cell, design.representation_keys[
+            design.methods[cell.method].representation], names, memo)
         for s in resolved.strategies for r in range(resolved.repeats)
         for b in design.budgets for m in resolved.methods
-    ]
-    done = store.statuses()
-    todo = []
-    for cell in all_cells:
-        status = done.get((cell.method, cell.n_labels, cell.repeat, cell.strategy))
-        if status is None or (rerun_failed and status == "failed"):
-            todo.append(cell)
-    log.info("%d cells in the study, %d to run", len(all_cells), len(todo))
+        for cell in [Cell(m, b, r, s)]
+    }
 
-    bar = _progress(len(todo), progress)
-    failed = [0]
+
+def _run_all_cells(ctx, design, keys, store, rep_errors, jobs, cluster, rerun_failed,
+                   progress) -> tuple[float, dict[str, int]]:
+    """Run the cells the store does not hold with their key yet; return the seconds spent
+    running them and the counts ``total`` / ``kept`` / ``run``."""
+    resolved = design.spec
+    stored = store.statuses()
+    todo = []
+    for cell, key in keys.items():
+        status, old_key = stored.get((cell.method, cell.n_labels, cell.repeat, cell.strategy),
+                                     (None, None))
+        if old_key != key or (rerun_failed and status == "failed"):
+            todo.append(cell)
+    counts = {"total": len(keys), "kept": len(keys) - len(todo), "run": len(todo)}
+    log.info("%d cells in the study: %d kept from earlier runs, %d to run", counts["total"],
+             counts["kept"], counts["run"])
+
+    bar = Progress(len(todo), "cells", enabled=progress)
 
     def on_result(row: dict) -> None:
+        row["cell_key"] = keys[Cell(row["method"], row["n_labels"], row["repeat"],
+                                    row["strategy"])]
         store.put(row)
-        if row["status"] != "ok":
-            failed[0] += 1
-        if bar is not None:
-            bar.update(1)
-            bar.set_postfix(failed=failed[0])
+        bar.update(1, failed=row["status"] != "ok")
 
     runnable = []
     for cell in todo:
@@ -261,6 +265,5 @@ def _run_all_cells(ctx, design, store, rep_errors, jobs, cluster, rerun_failed,
     try:
         run_cells(ctx, runnable, on_result, jobs=jobs, cluster=cluster)
     finally:
-        if bar is not None:
-            bar.close()
-    return time.perf_counter() - t_cells
+        bar.close()
+    return time.perf_counter() - t_cells, counts

@@ -1,4 +1,8 @@
-"""The study's SQLite store: one row per finished cell, committed the moment it finishes."""
+"""The study's SQLite store: one row per finished cell, committed the moment it finishes.
+
+Each row carries its cell's content key (:func:`semisup.study._cell.cell_key`): a later run
+of a grown study keeps the rows whose key it computes again, and runs the others.
+"""
 
 from __future__ import annotations
 
@@ -34,6 +38,7 @@ CREATE TABLE IF NOT EXISTS cells (
     error TEXT,
     finished_at REAL NOT NULL,
     attempts INTEGER NOT NULL DEFAULT 1,
+    cell_key TEXT,
     PRIMARY KEY (method, n_labels, repeat, strategy)
 );
 """
@@ -43,7 +48,7 @@ CELL_COLUMNS = (
     "method", "n_labels", "repeat", "strategy", "seed", "status", "accuracy", "accuracy_low",
     "accuracy_high", "balanced_accuracy", "macro_f1", "log_loss", "per_class_recall", "params",
     "tuning", "n_unlabeled_used", "n_eval", "fold", "seconds", "tune_seconds", "fit_seconds",
-    "error", "finished_at", "attempts",
+    "error", "finished_at", "attempts", "cell_key",
 )
 
 
@@ -55,12 +60,17 @@ class Store:
     path : Path
         The SQLite file.
     fingerprint : str
-        The study's fingerprint; an existing store with another fingerprint is refused.
+        The study's settings fingerprint (what invalidates every cell); an existing store
+        with another is refused.
+    state : str, optional
+        The study's full fingerprint (its state: settings, cells and added labels), kept in
+        the meta table as ``fingerprint``.
     restart : bool
         Discard whatever the store holds and start again.
     """
 
-    def __init__(self, path: str | Path, fingerprint: str, *, restart: bool = False) -> None:
+    def __init__(self, path: str | Path, fingerprint: str, *, state: str | None = None,
+                 restart: bool = False) -> None:
         self.path = Path(path)
         self.path.parent.mkdir(parents=True, exist_ok=True)
         if restart and self.path.exists():
@@ -72,15 +82,23 @@ class Store:
             raise StoreError(
                 f"{self.path} is not a usable study store ({exc}); use a new --out or --restart"
             ) from None
-        old = self.get_meta("fingerprint")
+        old = self.get_meta("settings_fingerprint")
+        if old is None and self.get_meta("fingerprint") is not None:
+            raise StoreError(
+                f"{self.path.parent} holds a study of an earlier semisup release (its cells "
+                "carry no content keys); use a new --out or --restart to discard it"
+            )
         if old is None:
-            self.set_meta("fingerprint", fingerprint)
+            self.set_meta("settings_fingerprint", fingerprint)
             self.set_meta("created_at", repr(time.time()))
         elif old != fingerprint:
             raise StoreError(
-                f"{self.path.parent} holds a study with a different spec (fingerprint "
-                f"{old[:12]} vs {fingerprint[:12]}); use a new --out or --restart to discard it"
+                f"{self.path.parent} holds a study with a different spec (settings fingerprint "
+                f"{old[:12]} vs {fingerprint[:12]}: the table, protocol, seed, trials or "
+                "unsupervised stage changed, which changes every cell); use a new --out or "
+                "--restart to discard it"
             )
+        self.set_meta("fingerprint", fingerprint if state is None else state)
         self.fingerprint = fingerprint
 
     def close(self) -> None:
@@ -106,9 +124,11 @@ class Store:
             )
 
     # -------------------------------------------------------------- cells
-    def statuses(self) -> dict[tuple[str, int, int, str], str]:
-        rows = self._con.execute("SELECT method, n_labels, repeat, strategy, status FROM cells")
-        return {(m, int(b), int(r), s): st for m, b, r, s, st in rows}
+    def statuses(self) -> dict[tuple[str, int, int, str], tuple[str, str | None]]:
+        """``(method, n_labels, repeat, strategy) -> (status, cell key)`` of every row."""
+        rows = self._con.execute(
+            "SELECT method, n_labels, repeat, strategy, status, cell_key FROM cells")
+        return {(m, int(b), int(r), s): (st, k) for m, b, r, s, st, k in rows}
 
     def put(self, result: dict[str, Any]) -> None:
         """Insert or replace one cell and commit at once."""
@@ -131,10 +151,15 @@ class Store:
                 [row[c] for c in cols],
             )
 
-    def cells(self) -> pd.DataFrame:
+    def cells(self, keys: set[str] | None = None) -> pd.DataFrame:
+        """The stored rows; with ``keys``, only the rows whose content key is among them
+        (the cells of the current design: a row of a larger or older design stays in the
+        store, to be kept if that design comes back, but is not exported)."""
         frame = pd.read_sql_query(
             f"SELECT {', '.join(CELL_COLUMNS)} FROM cells "
             "ORDER BY method, strategy, n_labels, repeat",
             self._con,
         )
+        if keys is not None:
+            frame = frame[frame["cell_key"].isin(keys)].reset_index(drop=True)
         return frame

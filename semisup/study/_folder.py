@@ -1,0 +1,213 @@
+"""What a study folder holds, as typed records: study.json and curves.csv.
+
+The study writes study.json (:func:`semisup.study._info.study_info`) and curves.csv (the
+study's measured points; the plan rewrites it with the fitted ones). Every reader (plan,
+report, final model, labeling rounds) reads them through :class:`StudyRecord` and
+:func:`read_curves` here, by the names the writers use, instead of guessing key aliases.
+The names of the files themselves are in :mod:`semisup.study._layout`.
+
+Every field may be unknown (None or empty): a study.json of an earlier release, or one a test
+wrote by hand, lacks some blocks, and what depends on them is turned off by the reader.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+__all__ = ["CURVE_REQUIRED", "DataFacts", "EvaluationFacts", "StudyRecord", "read_curves",
+           "read_study_record"]
+
+#: Columns every curves.csv has (the study's and the plan's writers).
+CURVE_REQUIRED = ("method", "strategy", "metric", "n_labels", "mean", "low", "high",
+                  "measured")
+
+
+def _int(value: Any) -> int | None:
+    if isinstance(value, bool):
+        return None
+    try:
+        out = float(value)
+    except (TypeError, ValueError):
+        return None
+    return int(out) if math.isfinite(out) else None
+
+
+def _block(src: Mapping, name: str) -> Mapping:
+    value = src.get(name) if isinstance(src, Mapping) else None
+    return value if isinstance(value, Mapping) else {}
+
+
+def _counts(value: Any) -> dict[str, int]:
+    if not isinstance(value, Mapping):
+        return {}
+    out = {str(k): _int(v) for k, v in value.items()}
+    return {k: v for k, v in out.items() if v is not None and v >= 0}
+
+
+@dataclass(frozen=True)
+class DataFacts:
+    """study.json's ``data`` block: the table the study read."""
+
+    source: str | None = None
+    sha256: str | None = None
+    n_rows: int | None = None
+    n_labeled: int | None = None
+    n_unlabeled: int | None = None
+    n_features: int | None = None
+    class_names: tuple[str, ...] = ()
+    class_counts: dict[str, int] = field(default_factory=dict)
+
+    @classmethod
+    def from_dict(cls, d: Mapping) -> DataFacts:
+        names = d.get("class_names")
+        return cls(
+            source=None if d.get("source") is None else str(d["source"]),
+            sha256=None if not d.get("sha256") else str(d["sha256"]),
+            n_rows=_int(d.get("n_rows")), n_labeled=_int(d.get("n_labeled")),
+            n_unlabeled=_int(d.get("n_unlabeled")), n_features=_int(d.get("n_features")),
+            class_names=tuple(str(c) for c in names) if isinstance(names, list) else (),
+            class_counts=_counts(d.get("class_counts")),
+        )
+
+
+@dataclass(frozen=True)
+class EvaluationFacts:
+    """study.json's ``evaluation`` block (DEVELOPERS.md "The study protocol")."""
+
+    protocol: str | None = None  # "cross-fit", "holdout" or "test-file"
+    folds: int | None = None
+    cycles: int | None = None
+    shared_across_repeats: bool | None = None
+    n_labeled: int | None = None
+    n_rows_evaluated: int | None = None
+    n_eval_min: int | None = None
+    n_eval_max: int | None = None
+    n_pool_min: int | None = None
+    n_pool_max: int | None = None
+    #: repeats of the study (one entry of ``per_repeat`` each)
+    n_repeats: int | None = None
+    #: rows labeled in labeling rounds: training rows of every repeat, never evaluated
+    n_round_rows: int = 0
+    #: the block as written (``summarize_curves(evaluation=...)`` takes it)
+    raw: dict = field(default_factory=dict)
+
+    @classmethod
+    def from_dict(cls, d: Mapping) -> EvaluationFacts:
+        per_repeat = d.get("per_repeat")
+        shared = d.get("shared_across_repeats")
+        return cls(
+            protocol=None if d.get("protocol") is None else str(d["protocol"]),
+            folds=_int(d.get("folds")), cycles=_int(d.get("cycles")),
+            shared_across_repeats=shared if isinstance(shared, bool) else None,
+            n_labeled=_int(d.get("n_labeled")), n_rows_evaluated=_int(d.get("n_rows_evaluated")),
+            n_eval_min=_int(d.get("n_eval_min")), n_eval_max=_int(d.get("n_eval_max")),
+            n_pool_min=_int(d.get("n_pool_min")), n_pool_max=_int(d.get("n_pool_max")),
+            n_repeats=len(per_repeat) if isinstance(per_repeat, list) and per_repeat else None,
+            n_round_rows=_int(d.get("n_round_rows")) or 0,
+            raw=dict(d),
+        )
+
+
+@dataclass(frozen=True)
+class StudyRecord:
+    """study.json as the readers use it."""
+
+    spec: dict = field(default_factory=dict)
+    fingerprint: str | None = None
+    data: DataFacts = field(default_factory=DataFacts)
+    evaluation: EvaluationFacts | None = None
+    #: the smallest evaluation set of a repeat (``holdout.n_rows``)
+    holdout_rows: int | None = None
+    #: the smallest training pool of a repeat (``pool.n_rows``)
+    pool_rows: int | None = None
+    budgets: tuple[int, ...] = ()
+    warnings: tuple[str, ...] = ()
+    #: the protocol notes (a list of lines)
+    protocol: tuple[str, ...] = ()
+    #: per unsupervised stage its diagnostics (``cache_key``, ``cache_path``, ...)
+    representation: dict[str, dict] = field(default_factory=dict)
+    representation_errors: dict[str, str] = field(default_factory=dict)
+    raw: dict = field(default_factory=dict)
+
+    @classmethod
+    def from_dict(cls, d: Mapping | None) -> StudyRecord:
+        d = d if isinstance(d, Mapping) else {}
+        evaluation = _block(d, "evaluation")
+        rep = _block(d, "representation")
+        diag = _block(rep, "diagnostics")
+        warnings = d.get("warnings")
+        protocol = d.get("protocol")
+        budgets = d.get("budgets") if isinstance(d.get("budgets"), list) else []
+        return cls(
+            spec=dict(_block(d, "spec")),
+            fingerprint=None if not d.get("fingerprint") else str(d["fingerprint"]),
+            data=DataFacts.from_dict(_block(d, "data")),
+            evaluation=EvaluationFacts.from_dict(evaluation) if evaluation else None,
+            holdout_rows=_int(_block(d, "holdout").get("n_rows")),
+            pool_rows=_int(_block(d, "pool").get("n_rows")),
+            budgets=tuple(b for b in (_int(v) for v in budgets) if b is not None),
+            warnings=tuple(str(w) for w in warnings) if isinstance(warnings, list) else (),
+            protocol=tuple(str(p) for p in protocol) if isinstance(protocol, list) else (),
+            representation={str(k): dict(v) for k, v in diag.items() if isinstance(v, Mapping)},
+            representation_errors={str(k): str(v)
+                                   for k, v in _block(rep, "errors").items()},
+            raw=dict(d),
+        )
+
+    @property
+    def seed(self) -> int | None:
+        return _int(self.spec.get("seed"))
+
+
+def read_study_record(path: str | os.PathLike[str], error: type[Exception]) -> StudyRecord:
+    """study.json at ``path`` (an empty record when the file is absent); a damaged file is
+    one ``error`` line."""
+    path = Path(path)
+    if not path.is_file():
+        return StudyRecord()
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (ValueError, UnicodeDecodeError, OSError) as exc:
+        raise error(f"{path} is not valid JSON ({exc}); run the study again to rewrite it") \
+            from None
+    if not isinstance(data, dict):
+        raise error(f"{path} should hold a JSON object, found {type(data).__name__}; run the "
+                    "study again to rewrite it")
+    return StudyRecord.from_dict(data)
+
+
+def read_curves(path: str | os.PathLike[str], error: type[Exception]) -> pd.DataFrame | None:
+    """curves.csv, typed: ``measured`` as bool, names as text, numbers as floats (budgets as
+    int); None when the file is absent or lacks a column of :data:`CURVE_REQUIRED` (a file
+    of another program); a file that is not CSV is one ``error`` line."""
+    path = Path(path)
+    if not path.is_file():
+        return None
+    try:
+        curves = pd.read_csv(path)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise error(f"{path} cannot be read as CSV ({exc}); write it again") from None
+    if not set(CURVE_REQUIRED) <= set(curves.columns):
+        return None
+    measured = curves["measured"]
+    if measured.dtype != bool:
+        measured = measured.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
+    curves["measured"] = measured
+    for col in ("method", "strategy", "metric"):
+        curves[col] = curves[col].astype(str)
+    for col in ("mean", "low", "high"):
+        curves[col] = pd.to_numeric(curves[col], errors="coerce")
+    budgets = pd.to_numeric(curves["n_labels"], errors="coerce")
+    if budgets.isna().any():
+        raise error(f"{path} column 'n_labels' has the value "
+                    f"{curves.loc[budgets.isna(), 'n_labels'].iloc[0]!r}; write it again")
+    curves["n_labels"] = budgets.astype(int)
+    return curves
