@@ -169,7 +169,8 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
     elif is_new_round(out, design):  # labels were added: the cells run again on them
         log.info("%d added labels: a new round, the cells are measured again",
                  design.n_added_labels)
-        remove_outputs(out, keep=(ADDED_LABELS_FILE, "cache"))
+        # the plans are kept too: their track record is scored on the new round's cells
+        remove_outputs(out, keep=(ADDED_LABELS_FILE, "cache", "plans", "plan.json"))
     store = Store(out / "study.sqlite", design.fingerprint, restart=restart)
     if store.get_meta("base_fingerprint") is None:
         store.set_meta("base_fingerprint", design.base_fingerprint)
