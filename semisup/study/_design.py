@@ -230,12 +230,16 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         )
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
     kinds = {m.representation for m in methods.values()} - {"raw"}
-    base = _fingerprint(resolved, kinds, ds, injected_representation, test)
-    fingerprint = base
+    fingerprint = _fingerprint(resolved, kinds, ds, injected_representation, test)
+    # The base leaves the budgets as given (none = the default grid up to the pool): added
+    # labels grow the pool and so the default grid, which is a new round, not another spec.
+    base = _fingerprint(spec.replace(methods=tuple(names)), kinds, ds,
+                        injected_representation, test)
     if n_added:  # the table's hash does not change with added labels; their content does
         pairs = "\n".join(f"{i}\0{lab}" for i, lab in zip(added.row_ids, added.labels,
                                                            strict=True))
-        fingerprint = hashlib.sha256((base + "\0added\0" + pairs).encode("utf-8")).hexdigest()
+        fingerprint = hashlib.sha256((fingerprint + "\0added\0" + pairs).encode("utf-8")
+                                     ).hexdigest()
     return StudyDesign(
         spec=resolved, ds=ds, y=y, n_classes=n_classes, n_table_rows=n_table, labeled=labeled,
         unlabeled_idx=unlabeled_idx, protocol=protocol, n_folds=n_folds, evals=evals,
