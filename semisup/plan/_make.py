@@ -543,7 +543,9 @@ def make_plan(
     previous = read_json(study_dir / "plan.json")
     prev_status = PlanStatus(previous, state) if previous else None
     plan.name, plan.made_at, plan.state = name, made_at.isoformat(), state
-    plan.previous_stale = prev_status.message("plan") if prev_status is not None else ""
+    plan.previous_stale = (f"plan ({prev_status.name}) was made from another state of the "
+                           f"study: {prev_status.reason}"
+                           if prev_status is not None and prev_status.stale else "")
     plan.history = [_history_entry(p, state) for p in earlier]
     plan.track = track_record(((p, read_forecast(study_dir, p)) for p in earlier),
                               read_measured(study_dir))
