@@ -182,3 +182,19 @@ def test_xlsx_sheet_neutralised_and_read_back(tmp_path):
     assert ids == list(csv["row_id"]) and all(i.startswith("'=cmd|") for i in ids)
     assert json.loads((folder / "plan.json").read_text())["label_next"]["file"] == (
         "label_next.xlsx")
+
+
+def test_xlsx_without_openpyxl_is_one_line_exit_2_before_any_work(tmp_path, monkeypatch,
+                                                                   capsys):
+    import sys
+
+    from semisup.cli import main
+
+    folder = write_study(tmp_path / "s")
+    monkeypatch.setitem(sys.modules, "openpyxl", None)  # import openpyxl now raises
+    code = main(["plan", str(folder), "--target", "accuracy=0.9", "--cost-per-label", "1",
+                 "--sheet-format", "xlsx", "-q"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1
+    assert "pip install 'semisup[excel]'" in err[0]
+    assert not (folder / "plan.json").exists() and not (folder / "plans").exists()
