@@ -13,20 +13,12 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy.interpolate import interp1d
+from test_rounds import _truth
 
 from semisup.cli import main
 from semisup.study import StudySpec, run_study
 
 pytestmark = pytest.mark.slow  # two small studies (one raw-feature method), ~20 s
-
-
-def _truth(n: int = 120, seed: int = 1) -> pd.DataFrame:
-    rng = np.random.default_rng(seed)
-    y = np.array(["p", "q"])[np.arange(n) % 2]
-    shift = np.where(y == "p", 0.0, 1.2)
-    return pd.DataFrame({"case": [f"c{i:03d}" for i in range(n)],
-                         "f1": rng.normal(size=n) + shift, "f2": rng.normal(size=n),
-                         "label": y})
 
 
 def _cli(*argv) -> tuple[int, str, str]:
@@ -38,7 +30,7 @@ def _cli(*argv) -> tuple[int, str, str]:
 
 def test_two_rounds_keep_plans_and_score_the_first_forecast(tmp_path):
     openpyxl = pytest.importorskip("openpyxl")
-    truth = _truth()
+    truth = _truth(n=120, seed=1)
     table = tmp_path / "cases.csv"
     frame = truth.copy()
     frame.loc[frame.index >= 50, "label"] = None   # 50 labels to start with

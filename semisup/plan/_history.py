@@ -173,7 +173,8 @@ def read_forecast(study_dir: str | Path, plan: Mapping | None) -> pd.DataFrame |
                         "again") from None
 
 
-def _truthy(series: pd.Series) -> pd.Series:
+def truthy(series: pd.Series) -> pd.Series:
+    """A boolean column read back from CSV (True / "true" / 1 / "yes")."""
     if series.dtype == bool:
         return series
     return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
@@ -195,7 +196,7 @@ def read_measured(study_dir: str | Path) -> pd.DataFrame | None:
     curves = curves.copy()
     if "strategy" not in curves.columns:
         curves["strategy"] = "random"
-    curves["measured"] = (_truthy(curves["measured"]) if "measured" in curves.columns
+    curves["measured"] = (truthy(curves["measured"]) if "measured" in curves.columns
                           else True)
     for c in ("method", "strategy", "metric"):
         curves[c] = curves[c].astype(str)

@@ -16,13 +16,9 @@ from collections.abc import Iterable, Mapping
 import numpy as np
 import pandas as pd
 
+from ._history import truthy as _truthy
+
 __all__ = ["score_plan", "track_lines", "track_record"]
-
-
-def _truthy(series: pd.Series) -> pd.Series:
-    if series.dtype == bool:
-        return series
-    return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
 
 
 def _curve_key(o: Mapping | None) -> tuple[str, str] | None:
