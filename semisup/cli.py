@@ -195,7 +195,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("plan", help="choose the cheapest budget and method that reach a target",
                        description="Fit learning curves to a finished study and price the "
-                                   "options; writes plan.json, curves.csv and label_next.csv.",
+                                   "options; keeps the plan by name in plans/ (with the study "
+                                   "state it was made from and its forecast points), copies it "
+                                   "to plan.json with the earlier plans' track record, and "
+                                   "writes the annotator sheet label_next.csv.",
                        epilog=f"Exit status: {EXIT_OK} when an option reaches the target; "
                               f"{EXIT_NOT_REACHABLE} when none does (the plan says 'do not "
                               "buy' and writes no label_next.csv unless --next is given); "
@@ -221,6 +224,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--next", type=int, default=None, metavar="N", dest="n_next",
                    help="rows to list in label_next.csv (default: what the plan buys; none "
                         "when the target is not reachable)")
+    p.add_argument("--sheet-format", choices=("csv", "xlsx"), default="csv",
+                   help="annotator sheet as label_next.csv or label_next.xlsx (.xlsx needs "
+                        "pip install 'semisup[excel]') (default: csv)")
     _add_common(p)
 
     p = sub.add_parser("add-labels", help="merge labels returned by annotators into a study",
@@ -414,7 +420,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
         class_costs=class_costs,
         n_next=args.n_next,
     )
-    plan = make_plan(args.study_dir, request)
+    plan = make_plan(args.study_dir, request, sheet_format=args.sheet_format)
     print(plan.summary())
     return EXIT_OK if plan.reached else EXIT_NOT_REACHABLE
 

@@ -56,6 +56,7 @@ def write_study(
     study_json: bool = True,
     failed: int = 0,
     row_prefix: str = "r",
+    curves: bool = True,
 ) -> Path:
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -83,6 +84,10 @@ def write_study(
                      "balanced_accuracy": np.nan, "macro_f1": np.nan, "log_loss": np.nan,
                      "seconds": 0.0, "error": "ValueError: synthetic failure"})
     pd.DataFrame(rows).to_csv(folder / "cells.csv", index=False)
+    if curves:  # the study's measured points, written as the study writes them
+        from semisup.study import summarize_curves
+
+        summarize_curves(pd.DataFrame(rows)).to_csv(folder / "curves.csv", index=False)
     counts = class_counts or {name: n_labeled // len(class_names) for name in class_names}
     if study_json:
         study = {

@@ -73,3 +73,16 @@ def test_committed_card_describes_todays_demo_table(tmp_path):
     assert card["n_rows"] == 1797
     assert all(card["user_fields"][k] for k in ("provenance", "license", "collection_dates",
                                                 "known_biases"))
+
+
+def test_fewer_labels_are_the_first_of_the_same_clerk_labels():
+    digits = load_digits()  # reference: scikit-learn's bundled digits (the true classes)
+    full = demo_table()
+    few = demo_table(n_labeled=250)
+    mask = few[DEMO_LABEL_COLUMN].notna().to_numpy()
+    assert mask.sum() == 250
+    assert full[DEMO_LABEL_COLUMN].notna().to_numpy()[mask].all()   # a subset of the 400
+    np.testing.assert_array_equal(few.loc[mask, DEMO_LABEL_COLUMN].astype(int),
+                                  digits.target[mask])
+    pd.testing.assert_frame_equal(few.drop(columns=DEMO_LABEL_COLUMN),
+                                  full.drop(columns=DEMO_LABEL_COLUMN))

@@ -42,12 +42,15 @@ def test_plan_files_and_fixed_keys(study):
     assert set(chosen["predicted"]) == {"mean", "low", "high"}
     for b in data["backtest"]:
         assert {"method", "n_labels", "predicted", "measured", "covered"} <= set(b)
-    curves = pd.read_csv(study / "curves.csv")
+    # curves.csv is the study's (measured points only); the plan's forecast is its own file
+    assert pd.read_csv(study / "curves.csv")["measured"].all()
+    assert data["forecast_file"] == f"plans/{data['name']}.forecast.csv"
+    curves = pd.read_csv(study / data["forecast_file"])
     assert list(curves.columns[: len(CURVE_COLUMNS)]) == CURVE_COLUMNS
-    assert curves["measured"].any() and (~curves["measured"]).any()
+    assert (~curves["measured"]).all()
     assert set(curves["metric"]) == {"accuracy", "balanced_accuracy", "macro_f1"}
-    assert curves.loc[curves["extrapolated"], "measured"].eq(False).all()
     assert curves["n_labels"].max() == 4 * 320
+    assert json.loads((study / "plans" / f"{data['name']}.json").read_text()) == data
     nxt = pd.read_csv(study / "label_next.csv")
     assert list(nxt.columns[:3]) == ["rank", "row_id", "reason"]
     assert list(nxt["rank"]) == list(range(1, len(nxt) + 1))
@@ -91,7 +94,7 @@ def test_not_reachable_says_do_not_buy_first_and_lists_no_rows(tmp_path):
     assert not (folder / "label_next.csv").exists()  # the old list is not this plan's
     data = json.loads((folder / "plan.json").read_text())
     assert data["label_next"] == {"strategy": plan.label_next_strategy, "n_rows": 0,
-                                  "written": False}
+                                  "written": False, "file": None}
     assert data["labels"]["to_buy"] == 0
     # asked for explicitly, the rows are listed even so
     plan = _plan(folder, target=0.99, n_next=7)
@@ -179,9 +182,17 @@ def test_deterministic_and_inputs_untouched(tmp_path):
     folder = write_study(tmp_path / "s")
     digest = hashlib.sha256((folder / "cells.csv").read_bytes()).hexdigest()
     _plan(folder, labels_owned=50)
-    first = (folder / "plan.json").read_text()
+    first = json.loads((folder / "plan.json").read_text())
     _plan(folder, labels_owned=50)
-    assert (folder / "plan.json").read_text() == first
+    second = json.loads((folder / "plan.json").read_text())
+    # Only the plan's own name, time and history differ; each run is kept by name.
+    own = ("name", "made_at", "forecast_file", "history", "track_record")
+    assert {k: v for k, v in second.items() if k not in own} == {
+        k: v for k, v in first.items() if k not in own}
+    assert second["state"] == first["state"] and second["name"] != first["name"]
+    assert [h["name"] for h in second["history"]] == [first["name"]]
+    assert not second["history"][0]["stale"]
+    assert len(list((folder / "plans").glob("*.json"))) == 2
     assert hashlib.sha256((folder / "cells.csv").read_bytes()).hexdigest() == digest
 
 

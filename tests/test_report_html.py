@@ -216,6 +216,9 @@ def readable_report(tmp_path_factory):
     study = json.loads((folder / "study.json").read_text(encoding="utf-8"))
     study["data"]["source"] = "/data/intake/records_2024.csv"
     study["pool"] = {"n_rows": 250}  # budgets 20..160 draw different rows, 320 would not
+    # one holdout shared by the repeats: the study's summary_budget then stays below the pool
+    study["evaluation"] = {"protocol": "holdout", "shared_across_repeats": True,
+                           "n_pool_min": 250}
     study["representation"] = {"diagnostics": {"vae": {"elbo": {"train": -44.48, "held_out":
                                                                  -52.9},
                                                         "recon": {"numeric": 0.31}}},
@@ -258,7 +261,8 @@ def test_summary_shows_the_plan_metric_where_repeats_differ(readable_report):
     _, _, text = readable_report
     # The plan's metric (macro-F1) at 160 labels: the largest budget below the pool of 250.
     assert "Macro-F1 at 160 training labels" in text
-    assert "90% Student-t interval of the mean over 5 repeats" in text
+    # measured points come from the study's curves.csv (summarize_curves' 95% default)
+    assert "95% Student-t interval of the mean over 5 repeats" in text
 
 
 def test_prices_carry_the_currency_and_intervals_their_kind(readable_report):

@@ -34,13 +34,17 @@ _BOX_SHARES = (0.35, 0.3, 0.2, 0.15)
 _INK_MISSING_SHARE = 0.03
 
 
-def demo_table(*, all_labeled: bool = False) -> pd.DataFrame:
+def demo_table(*, all_labeled: bool = False, n_labeled: int = DEMO_N_LABELED) -> pd.DataFrame:
     """The demo table (1797 rows): ``form_id``, ``scan_batch``, ``box``, ``ink_density``,
     64 pixel columns ``px_<row>_<col>`` (ints 0-16) and the label column ``digit``.
 
     Deterministic. ``all_labeled=True`` fills in every digit (the ground truth that the
-    scenario hides; for checks only).
+    scenario hides; for checks and the demo's simulated annotator). ``n_labeled`` (at most
+    :data:`DEMO_N_LABELED`) keeps the first that many of the clerk's labels: the same rows
+    for every count, so a smaller table is an earlier stage of the same office.
     """
+    if not 0 <= n_labeled <= DEMO_N_LABELED:
+        raise ValueError(f"n_labeled must lie in [0, {DEMO_N_LABELED}], got {n_labeled}")
     from sklearn.datasets import load_digits
 
     digits = load_digits()
@@ -61,7 +65,7 @@ def demo_table(*, all_labeled: bool = False) -> pd.DataFrame:
     labels = digits.target.astype(str).astype(object)
     if not all_labeled:
         keep = np.zeros(n_rows, dtype=bool)
-        keep[rng.choice(n_rows, size=DEMO_N_LABELED, replace=False)] = True
+        keep[rng.choice(n_rows, size=DEMO_N_LABELED, replace=False)[:n_labeled]] = True
         labels = np.where(keep, labels, None)
 
     columns: dict[str, object] = {
@@ -79,10 +83,11 @@ def demo_table(*, all_labeled: bool = False) -> pd.DataFrame:
     return frame
 
 
-def write_demo_table(path: str | os.PathLike[str]) -> Path:
+def write_demo_table(path: str | os.PathLike[str], *,
+                     n_labeled: int = DEMO_N_LABELED) -> Path:
     """Write :func:`demo_table` to ``path`` (``.parquet`` as Parquet, else CSV), atomically."""
     path = Path(path)
-    frame = demo_table()
+    frame = demo_table(n_labeled=n_labeled)
     if path.suffix.lower() in (".parquet", ".pq"):
         with atomic_path(path) as tmp:
             frame.to_parquet(tmp, index=False)

@@ -140,6 +140,27 @@ def _spec_view(values: dict, folder: Path, spec_cls: Any) -> SimpleNamespace:
     return SimpleNamespace(**out)
 
 
+def _current_plan(folder: Path, plan: dict | None, method: str | None) -> dict | None:
+    """``plan`` when it was made from the folder's current study state. A stale plan is
+    refused when it would choose the method, and otherwise set aside with one warning."""
+    if plan is None:
+        return None
+    from .._errors import PlanError
+    from ..plan import plan_status
+
+    try:
+        status = plan_status(folder, plan)
+    except PlanError as exc:
+        raise StoreError(str(exc)) from None
+    if not status.stale:
+        return plan
+    if method is None:
+        raise ConfigError(f"{status.message(f'{folder}/plan.json')}, or name a method with "
+                          "--method")
+    log.warning("%s; its estimate is not shown", status.message(f"{folder}/plan.json"))
+    return None
+
+
 def _choose_method(folder: Path, plan: dict | None, method: str | None) -> str:
     if method:
         return method
@@ -288,6 +309,7 @@ def fit_model(
     folder = Path(study_dir)
     info, plan = read_study(folder)
     spec = _spec_view(info["spec"], folder, StudySpec)
+    plan = _current_plan(folder, plan, method)
     name = _choose_method(folder, plan, method)
     m = get_method(name)
     log.info("fitting %s for study %s", name, folder)

@@ -1,7 +1,9 @@
 """Learning curves, their backtest, the cost model, the plan and the rows to label next.
 
-``make_plan(study_dir, PlanRequest(...))`` reads a finished study folder and writes
-``plan.json``, ``curves.csv`` and ``label_next.csv``; the maths underneath is exposed as pure
+``make_plan(study_dir, PlanRequest(...))`` reads a finished study folder and writes the plan
+under its own name in ``plans/`` (with the study state it was made from and its forecast
+points), ``plan.json`` (the latest plan, with the earlier plans' track record) and the
+annotator sheet ``label_next.csv`` (or ``.xlsx``); the maths underneath is exposed as pure
 functions (the curve families and their fits, the bootstrap, the rolling-origin backtests,
 the family weights, the calibration, the shrinkage, the cost helpers and ``choose``) so it
 can be checked on its own.
@@ -30,10 +32,22 @@ from ._curves import (
 )
 from ._ensemble import BacktestRecord, ensemble_records, family_errors, family_weights
 from ._families import FAMILIES, Family, exponential, fit_family_batch, mmf, weibull
+from ._history import (
+    PLANS_FOLDER,
+    PlanStatus,
+    current_state,
+    list_plans,
+    plan_status,
+    read_forecast,
+    read_measured,
+    study_state,
+)
 from ._honest import overlapping, shrink_toward_mean
 from ._inputs import StudyFacts, data_warnings, read_json, study_facts, tidy_cells
 from ._make import CURVE_COLUMNS, Plan, make_plan
 from ._request import METRICS, PlanRequest
+from ._sheet import SHEET_FORMATS
+from ._track import score_plan, track_record
 
 __all__ = [
     "BACKTEST_RATIO",
@@ -49,8 +63,11 @@ __all__ = [
     "Family",
     "OriginForecast",
     "Option",
+    "PLANS_FOLDER",
     "Plan",
     "PlanRequest",
+    "PlanStatus",
+    "SHEET_FORMATS",
     "StudyFacts",
     "backtest_curve",
     "best_effort",
@@ -61,6 +78,7 @@ __all__ = [
     "calibrated_samples",
     "choose",
     "curve_options",
+    "current_state",
     "data_warnings",
     "ensemble_records",
     "expected_label_price",
@@ -72,19 +90,26 @@ __all__ = [
     "fit_learning_curve",
     "fit_power_law_batch",
     "labeling_rounds",
+    "list_plans",
     "make_plan",
     "mmf",
     "overlapping",
     "paule_mandel",
     "plan_cost",
+    "plan_status",
     "power_law",
     "probability_meets",
     "ratio_table",
+    "read_forecast",
     "read_json",
+    "read_measured",
     "rolling_origin",
+    "score_plan",
     "shrink_toward_mean",
     "small_sample_factor",
     "study_facts",
+    "study_state",
     "tidy_cells",
+    "track_record",
     "weibull",
 ]

@@ -1,7 +1,11 @@
 """Make a plan from a study folder (I/O edge): read, fit, price, choose, write.
 
-Writes ``plan.json``, ``curves.csv`` (measured and fitted points) and ``label_next.csv``
-atomically into the study folder; the maths is in the pure modules beside this one.
+Writes, atomically, ``plans/<name>.json`` and ``plans/<name>.forecast.csv`` (the plan kept
+by name with the study state it was made from, and its forecast points; :mod:`._history`),
+``plan.json`` (a copy of the latest plan, with the earlier plans' track record,
+:mod:`._track`) and the annotator sheet ``label_next.csv`` (or ``.xlsx``). The study's
+``curves.csv`` is the study's and is only read. The maths is in the pure modules beside this
+one.
 """
 
 from __future__ import annotations
@@ -11,6 +15,7 @@ import logging
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from datetime import datetime, timezone
 from pathlib import Path
 
 import numpy as np
@@ -19,12 +24,21 @@ import pandas as pd
 from .._atomic import atomic_write_text
 from .._errors import PlanError
 from .._seeding import derive_seed
-from ..study import summarize_curves
 from ._bootstrap import CurveBand
 from ._choose import Option, best_effort, choose
 from ._costs import expected_label_price
 from ._curves import MAX_EXTRAPOLATION
 from ._families import FAMILIES
+from ._history import (
+    FORECAST_SUFFIX,
+    PLANS_FOLDER,
+    PlanStatus,
+    current_state,
+    list_plans,
+    plan_name,
+    read_forecast,
+    read_measured,
+)
 from ._honest import overlapping
 from ._inputs import (
     StudyFacts,
@@ -37,7 +51,15 @@ from ._inputs import (
 from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
 from ._pipeline import Forecasts, forecast_all
 from ._request import METRICS, PlanRequest
-from ._sheet import annotator_sheet, read_study_table
+from ._sheet import (
+    annotator_sheet,
+    check_sheet_format,
+    read_study_table,
+    remove_sheets,
+    sheet_name,
+    write_sheet,
+)
+from ._track import track_lines, track_record
 
 __all__ = ["CURVE_COLUMNS", "Plan", "label_counts", "make_plan", "order_options"]
 
@@ -73,6 +95,13 @@ class Plan:
     evidence: dict = field(default_factory=dict)
     labels: dict = field(default_factory=dict)
     label_next_written: bool = True
+    name: str = ""
+    made_at: str = ""
+    state: dict = field(default_factory=dict)
+    history: list = field(default_factory=list)
+    track: dict = field(default_factory=dict)
+    sheet_file: str = "label_next.csv"
+    previous_stale: str = ""
 
     @property
     def reached(self) -> bool:
@@ -82,6 +111,11 @@ class Plan:
     def to_dict(self) -> dict:
         r = self.request
         return {
+            "name": self.name,
+            "made_at": self.made_at,
+            "state": dict(self.state),
+            "forecast_file": f"{PLANS_FOLDER}/{self.name}{FORECAST_SUFFIX}" if self.name
+            else None,
             "target": {"metric": r.metric, "value": r.target},
             "confidence": r.confidence,
             "cost_per_label": r.cost_per_label,
@@ -101,7 +135,11 @@ class Plan:
             **self.evidence,
             "label_next": {"strategy": self.label_next_strategy,
                            "n_rows": int(len(self.label_next)),
-                           "written": self.label_next_written},
+                           "written": self.label_next_written,
+                           "file": self.sheet_file if self.label_next_written else None},
+            "measured_up_to": dict(self.n_max),
+            "history": list(self.history),
+            "track_record": dict(self.track),
             "warnings": list(self.warnings),
         }
 
@@ -165,36 +203,28 @@ class Plan:
         note = (ev.get("selection") or {}).get("note")
         if note:
             lines.append(f"Overlap: {note}.")
+        lines.extend(track_lines(self.track))
+        if self.previous_stale:
+            lines.append(f"Note: the previous {self.previous_stale}; it is kept in "
+                         f"{PLANS_FOLDER}/ as history, this plan replaces it as plan.json.")
         if self.label_next_written:
             lines.append(f"Rows to label next: {len(self.label_next)} "
-                         f"({self.label_next_strategy} selection) in label_next.csv.")
+                         f"({self.label_next_strategy} selection) in {self.sheet_file}.")
         else:
             lines.append("Rows to label next: none listed, since nothing should be bought "
                          "(pass --next N to list N rows anyway).")
         for w in self.warnings:
             lines.append(f"Warning: {w}")
-        written = "plan.json, curves.csv" + (" and label_next.csv" if self.label_next_written
-                                             else "")
+        kept = f"{PLANS_FOLDER}/{self.name}.json and its forecast" if self.name else ""
+        written = "plan.json" + (f", {kept}" if kept else "") + (
+            f" and {self.sheet_file}" if self.label_next_written else "")
         lines.append(f"Wrote {written} in {self.study_dir}.")
         return "\n".join(lines)
 
 
-def _measured_rows(df: pd.DataFrame, method: str, strategy: str, metric: str,
-                   evaluation: dict | None) -> list[dict]:
-    """The study's measured points (Student-t interval of the mean over repeats, plus the
-    evaluation rows' variance the repeats share), at the plan's interval level and with the
-    plan's extra curve columns."""
-    points = summarize_curves(df, metrics=[metric], confidence=INTERVAL, evaluation=evaluation)
-    return [{"method": method, "strategy": strategy, "metric": metric,
-             "n_labels": int(p["n_labels"]), "mean": p["mean"], "low": p["low"],
-             "high": p["high"], "measured": True, "extrapolated": False, "fit": "",
-             "flagged": False, "n_repeats": int(p["n_repeats"]), "interval": INTERVAL,
-             "sd": p["sd"], "min": p["min"], "max": p["max"]}
-            for p in points.to_dict("records")]
-
-
 def _fitted_rows(band: CurveBand, display: np.ndarray, method: str, strategy: str,
                  metric: str) -> list[dict]:
+    """The forecast points of one curve at the budgets ``display`` (points of its grid)."""
     idx = np.searchsorted(band.grid, display)
     rows = []
     for i in idx:
@@ -372,6 +402,8 @@ def make_plan(
     *,
     select_rows: Callable[..., object] | None = None,
     n_boot: int = N_BOOT_PLAN,
+    sheet_format: str = "csv",
+    now: datetime | None = None,
 ) -> Plan:
     """Fit learning curves to a finished study, price the options and choose.
 
@@ -384,15 +416,22 @@ def make_plan(
         ``semisup.selection.select_rows``; default that function.
     n_boot : bootstrap resamples for the plan's metric and its backtest (half as many for
         the other metrics, whose curves only feed the report).
+    sheet_format : "csv" (``label_next.csv``) or "xlsx" (``label_next.xlsx``, needs the
+        ``excel`` extra).
+    now : the plan's time (its name); default the current UTC time.
 
     Returns
     -------
-    Plan; ``plan.json``, ``curves.csv`` and ``label_next.csv`` are written in ``study_dir``.
+    Plan; ``plans/<name>.json``, ``plans/<name>.forecast.csv``, ``plan.json`` and the
+    annotator sheet are written in ``study_dir``.
     """
     if not isinstance(request, PlanRequest):
         raise PlanError(f"request must be a PlanRequest, got {type(request).__name__}")
+    check_sheet_format(sheet_format)
     study_dir = Path(study_dir)
     cells_all = read_cells(study_dir, METRICS)
+    state = current_state(study_dir)
+    made_at = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
     study = read_json(study_dir / "study.json")
     card = read_json(study_dir / "data_card.json")
     facts = study_facts(study, card)
@@ -440,9 +479,11 @@ def make_plan(
             sub = grp[grp[m].notna()]
             if sub.empty or (method, strategy, m) not in fc.bands:
                 continue
-            curve_rows.extend(_measured_rows(sub, method, strategy, m, facts.evaluation))
-            curve_rows.extend(_fitted_rows(fc.bands[(method, strategy, m)],
-                                           fc.displays[(method, strategy, m)], method,
+            band = fc.bands[(method, strategy, m)]
+            # the plan's metric on its whole grid (the track record reads budgets off it),
+            # the report-only metrics at the display budgets
+            curve_rows.extend(_fitted_rows(band, band.grid if m == metric
+                                           else fc.displays[(method, strategy, m)], method,
                                            strategy, m))
     options = fc.options
     backtests = fc.backtest
@@ -497,23 +538,46 @@ def make_plan(
                                     chosen.n_new if chosen is not None else 0,
                                     owned_given=request.labels_owned is not None),
                 label_next_written=write_list)
-    atomic_write_text(study_dir / "curves.csv", curves.to_csv(index=False))
+    name = plan_name(made_at, state)
+    earlier = list_plans(study_dir)
+    previous = read_json(study_dir / "plan.json")
+    prev_status = PlanStatus(previous, state) if previous else None
+    plan.name, plan.made_at, plan.state = name, made_at.isoformat(), state
+    plan.previous_stale = (f"plan ({prev_status.name}) was made from another state of the "
+                           f"study: {prev_status.reason}"
+                           if prev_status is not None and prev_status.stale else "")
+    plan.history = [_history_entry(p, state) for p in earlier]
+    plan.track = track_record(((p, read_forecast(study_dir, p)) for p in earlier),
+                              read_measured(study_dir))
+    plan.sheet_file = sheet_name(sheet_format)
+    kept = study_dir / PLANS_FOLDER
+    atomic_write_text(kept / f"{name}{FORECAST_SUFFIX}", curves.to_csv(index=False))
     if write_list:
         table, id_column, label_column, sw = read_study_table(study)
         sheet, more = annotator_sheet(plan.label_next, table, id_column=id_column,
                                       label_column=label_column, study=study)
         plan.warnings.extend(sw + more)
-        # CRLF line ends (RFC 4180): the csv writer then quotes a cell holding a lone CR,
-        # which a "\n" line end would leave bare, splitting the row in a spreadsheet.
-        atomic_write_text(study_dir / "label_next.csv",
-                          sheet.to_csv(index=False, lineterminator="\r\n"))
+        write_sheet(sheet, study_dir, sheet_format)
     else:
         # an older plan's list must not be taken for this plan's
-        (study_dir / "label_next.csv").unlink(missing_ok=True)
-    atomic_write_text(study_dir / "plan.json",
-                      json.dumps(_jsonable(plan.to_dict()), indent=2) + "\n")
+        remove_sheets(study_dir)
+    text = json.dumps(_jsonable(plan.to_dict()), indent=2) + "\n"
+    atomic_write_text(kept / f"{name}.json", text)
+    atomic_write_text(study_dir / "plan.json", text)
     log.info("plan written to %s", study_dir / "plan.json")
     return plan
+
+
+def _history_entry(p: dict, state: dict) -> dict:
+    """One earlier plan in the new plan's history: what it chose and whether it is stale."""
+    chosen = p.get("chosen") or p.get("best") or {}
+    status = PlanStatus(p, state)
+    return {"name": p.get("name"), "made_at": p.get("made_at"),
+            "state_id": (p.get("state") or {}).get("id"), "stale": status.stale,
+            "target": p.get("target"), "reached": p.get("reached"),
+            "choice": {k: chosen.get(k) for k in ("method", "strategy", "n_labels",
+                                                   "predicted", "probability")}
+            if chosen else None}
 
 
 def _jsonable(obj):

@@ -15,12 +15,14 @@ from pathlib import Path
 
 import pandas as pd
 
-from .._errors import SemisupError
+from .._atomic import atomic_path, atomic_write_text
+from .._errors import PlanError, SemisupError
 from .._escape import neutralise_frame, restore_cell
 from ..study import SHEET_STUDY_COLUMN, study_id
 from ._label_next import LABEL_NEXT_COLUMNS
 
-__all__ = ["annotator_sheet", "read_study_table"]
+__all__ = ["SHEET_FORMATS", "annotator_sheet", "check_sheet_format", "read_study_table",
+           "remove_sheets", "sheet_name", "write_sheet"]
 
 log = logging.getLogger(__name__)
 
@@ -95,3 +97,55 @@ def annotator_sheet(ranked: pd.DataFrame, table: pd.DataFrame | None, *,
     # Ids, values and column names like "=HYPERLINK(...)" would run as formulas when an
     # annotator opens the sheet (OWASP, "CSV Injection").
     return neutralise_frame(sheet), warnings
+
+
+#: Formats of the annotator sheet: file name in the study folder by format.
+SHEET_FORMATS = {"csv": "label_next.csv", "xlsx": "label_next.xlsx"}
+
+
+def sheet_name(sheet_format: str) -> str:
+    """The sheet's file name for ``sheet_format`` ("csv" or "xlsx"); PlanError otherwise."""
+    try:
+        return SHEET_FORMATS[sheet_format]
+    except KeyError:
+        raise PlanError(f"sheet format {sheet_format!r} is not known; use one of "
+                        f"{', '.join(SHEET_FORMATS)}") from None
+
+
+def check_sheet_format(sheet_format: str) -> None:
+    """PlanError before any work when ``sheet_format`` cannot be written here."""
+    sheet_name(sheet_format)
+    if sheet_format == "xlsx":
+        try:
+            import openpyxl  # noqa: F401
+        except ImportError:
+            raise PlanError("writing the sheet as .xlsx needs the optional package openpyxl; "
+                            "install it with pip install 'semisup[excel]', or leave out "
+                            "--sheet-format to write label_next.csv") from None
+
+
+def write_sheet(sheet: pd.DataFrame, folder: Path, sheet_format: str) -> Path:
+    """Write the (already neutralised) sheet as ``label_next.<format>`` in ``folder``,
+    atomically; the other format's older sheet is removed, so no list of an earlier plan
+    is taken for this one's."""
+    check_sheet_format(sheet_format)
+    path = Path(folder) / sheet_name(sheet_format)
+    if sheet_format == "csv":
+        # CRLF line ends (RFC 4180): the csv writer then quotes a cell holding a lone CR,
+        # which a "\n" line end would leave bare, splitting the row in a spreadsheet.
+        atomic_write_text(path, sheet.to_csv(index=False, lineterminator="\r\n"))
+    else:
+        # Cells come neutralised (a leading "'"), so openpyxl stores no text as a formula;
+        # it writes a string starting with "=" as one, which neutralising rules out.
+        with atomic_path(path) as tmp:
+            sheet.to_excel(tmp, index=False, sheet_name="label_next", engine="openpyxl")
+    for other in SHEET_FORMATS.values():
+        if other != path.name:
+            (Path(folder) / other).unlink(missing_ok=True)
+    return path
+
+
+def remove_sheets(folder: Path) -> None:
+    """Remove every annotator sheet of an earlier plan from ``folder``."""
+    for name in SHEET_FORMATS.values():
+        (Path(folder) / name).unlink(missing_ok=True)

@@ -1,8 +1,10 @@
 """Write report.html and figures/*.png (+ .svg) for a study folder (I/O edge).
 
-Reads what the study and the plan wrote (cells.csv, study.json, data_card.json, curves.csv,
-plan.json, label_next.csv) and shows it; it computes no new statistic. Every number shown is
-read from those files and only formatted here (``_text.py``).
+Reads what the study and the plan wrote (cells.csv, study.json, data_card.json, curves.csv
+with the study's measured points, plan.json and the latest plan's forecast points in
+plans/, the annotator sheet) and shows it; it computes no new statistic. Every number shown
+is read from those files and only formatted here (``_text.py``). A plan made from another
+study state than the folder's current one is shown as stale, never as the current plan.
 """
 
 from __future__ import annotations
@@ -20,8 +22,20 @@ import pandas as pd
 from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
 from .._errors import ConfigError, PlanError, StoreError
-from ..plan import METRICS, data_warnings, read_json, study_facts, tidy_cells
+from ..plan import (
+    METRICS,
+    PlanStatus,
+    current_state,
+    data_warnings,
+    list_plans,
+    read_forecast,
+    read_json,
+    read_measured,
+    study_facts,
+    tidy_cells,
+)
 from ..study._folder import StudyRecord, read_curves
+from ..study._runner import summary_budget
 from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
 from ._text import (
@@ -70,9 +84,26 @@ def _read_csv(path: Path) -> pd.DataFrame | None:
         raise StoreError(f"{path} cannot be read as CSV ({exc}); write it again") from None
 
 
-def _curves_table(study_dir: Path) -> pd.DataFrame | None:
-    """curves.csv as the study (measured points) or the plan (measured and fitted) wrote it."""
-    return read_curves(study_dir / "curves.csv", StoreError)
+def _curves_table(study_dir: Path, plan: Mapping | None) -> pd.DataFrame | None:
+    """The study's measured points (curves.csv) and, for a current plan, its forecast points
+    (plans/<name>.forecast.csv, ``measured`` false)."""
+    try:
+        measured = read_measured(study_dir)
+        forecast = read_forecast(study_dir, plan) if plan else None
+    except PlanError as exc:
+        raise StoreError(str(exc)) from None
+    parts = []
+    if measured is not None:
+        parts.append(measured)
+    if forecast is not None and not forecast.empty:
+        forecast = forecast.copy()
+        forecast["measured"] = False
+        for c in ("method", "strategy", "metric"):
+            forecast[c] = forecast[c].astype(str)
+        parts.append(forecast)
+    if not parts:
+        return None
+    return pd.concat(parts, ignore_index=True)
 
 
 def _measured_level(curves: pd.DataFrame | None, plan: Mapping | None) -> float:
@@ -126,17 +157,22 @@ def recommended_metric(plan: Mapping | None, card: Mapping) -> tuple[str, str]:
 
 
 def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, str]:
-    """The largest measured budget whose repeats draw different rows (below the pool size)."""
-    budgets = sorted({int(b) for b in curves.loc[curves["measured"], "n_labels"]})
-    if not budgets:
+    """The budget the summary shows (the study's rule, ``summary_budget``) and why."""
+    budgets = curves.loc[curves["measured"], "n_labels"]
+    if budgets.empty:
         return None, ""
-    pool = StudyRecord.from_dict(study).pool_rows
-    below = [b for b in budgets if pool is None or b < int(pool)]
-    if not below:
-        return budgets[-1], "every budget uses the whole pool, so the repeats do not differ"
-    why = (f"the largest budget below the pool of {count(pool)} labeled training rows, so "
-           "the repeats draw different rows" if pool is not None else "the largest budget")
-    return below[-1], why
+    budget = summary_budget(dict(study), budgets)
+    evaluation = study.get("evaluation") if isinstance(study.get("evaluation"), Mapping) else {}
+    largest = int(budgets.max())
+    if budget < largest:
+        return budget, (f"the largest budget below the pool of "
+                        f"{count(evaluation.get('n_pool_min'))} labeled training rows, so the "
+                        "repeats train on different rows")
+    if evaluation.get("shared_across_repeats"):
+        return budget, "every budget uses the whole pool, so the repeats do not differ"
+    return budget, ("the largest measured budget; each repeat draws it from its own training "
+                    "folds" if str(evaluation.get("protocol")).replace("-", "_") == "cross_fit"
+                    else "the largest measured budget")
 
 
 def _eval_rows_label(facts) -> str:
@@ -147,9 +183,12 @@ def _eval_rows_label(facts) -> str:
 
 
 def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan,
-                     card: Mapping, currency: str) -> Section:
+                     card: Mapping, currency: str, status: PlanStatus) -> Section:
     s = Section("summary", "Job summary")
-    if plan:
+    if plan and status.stale:
+        s.para(f"No current plan. The latest {status.message('plan')}; it is shown below "
+               "under 'Plan and backtest' as a stale plan only.", "warn")
+    elif plan:
         s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
     else:
         s.para("No plan has been made for this study yet. Make one with "
@@ -362,13 +401,22 @@ def _methods_section(cells, curves, plan, study: Mapping, card: Mapping) -> Sect
     return s
 
 
-def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Section:
+def _plan_section(plan: Mapping | None, study_dir: Path, currency: str,
+                  status: PlanStatus) -> Section:
     s = Section("plan", "Plan and backtest")
     if not plan:
         s.para("No plan.json yet. Run 'semisup plan "
                f"{study_dir} --target METRIC=VALUE --cost-per-label X' to choose a budget, "
                "method and selection strategy, then run 'semisup report' again.", "note")
         return s
+    if status.stale:
+        s.para(f"STALE: {status.message('plan.json')}. What it said, for the record only:",
+               "warn")
+        s.bullets(_decision_lines(plan, currency))
+        return s
+    if plan.get("name"):
+        s.para(f"Plan {plan['name']} (made {plan.get('made_at')}, kept in "
+               f"plans/{plan['name']}.json) from the study's current state.", "note")
     s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
     kind = interval_name(plan.get("interval"), "bootstrap")
     s.para(f"Predicted: the fitted curve at that budget, with its {kind}. Probability: "
@@ -433,6 +481,58 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str) -> Secti
     return s
 
 
+def _rounds_section(plan: Mapping | None, plans: list[dict], state: Mapping) -> Section:
+    """Every kept plan (current or stale now) and the latest plan's track record."""
+    s = Section("rounds", "Plans kept and their track record")
+    if not plans:
+        s.para("No plan has been kept yet ('semisup plan' keeps each plan in plans/).", "note")
+        return s
+    rows = []
+    for p in plans:
+        st = PlanStatus(p, state)
+        pick = p.get("chosen") or p.get("best") or {}
+        target = p.get("target") or {}
+        rows.append([p.get("name"), short(p.get("made_at"), 40),
+                     f"{METRIC_LABELS.get(str(target.get('metric')), target.get('metric'))} "
+                     f">= {num(target.get('value'))}",
+                     (f"{pick.get('method')} ({pick.get('strategy')}) at "
+                      f"{count(pick.get('n_labels'))}" if pick else "\u2013")
+                     + ("" if p.get("chosen") else " (best; target not reached)"),
+                     "stale" if st.stale else "current"])
+    s.table(Table(["plan", "made at (UTC)", "target", "choice", "now"], rows,
+                  caption="Every plan made on this folder, oldest first (plans/*.json)"))
+    track = (plan or {}).get("track_record") or {}
+    scored = [p for p in track.get("plans") or [] if p.get("rows")]
+    if PlanStatus(plan, state).stale or not plan:
+        return s
+    if not scored:
+        s.para("Track record: no budget an earlier plan forecast has been measured since. "
+               "Label the rows of the sheet, 'semisup add-labels', run the study again and "
+               "make a new plan to score the earlier forecasts.", "note")
+        return s
+    s.heading("Track record: earlier forecasts against what was measured since")
+    rows, hl = [], set()
+    for p in scored:
+        for r in p["rows"]:
+            pred, got = r["predicted"], r["measured"]
+            if r.get("plan_choice"):
+                hl.add(len(rows))
+            rows.append([p.get("plan"), r["method"], r["strategy"], count(r["n_labels"]),
+                         num(pred["mean"]), span(pred["low"], pred["high"]), num(got["mean"]),
+                         f"{float(r['error']):+.3f}", "hit" if r["hit"] else "MISS"])
+    level = interval_name(scored[0].get("interval"), "bootstrap", brief=True)
+    s.table(Table(["plan", "method", "strategy", "training labels", "predicted", level,
+                   "measured mean", "error", "inside the interval"], rows, hl,
+                  caption="Each earlier plan's forecast at the budgets measured since (the "
+                          "curve it chose highlighted)"))
+    n, hits = track.get("n_compared") or 0, track.get("n_hit") or 0
+    share = percent(hits / n) if n else "\u2013"
+    s.para(f"{hits} of {n} forecasts fell inside their {level} "
+           f"({share}): this table's own check of the plan's "
+           "stated coverage, round after round.")
+    return s
+
+
 def _evidence_section(plan: Mapping | None, study: Mapping, study_dir: Path) -> Section | None:
     """The plan's evidence, when ``semisup.report._evidence`` is installed: its
     ``evidence_section(plan, study, study_dir)`` returns a :class:`Section` (or None)."""
@@ -444,8 +544,13 @@ def _evidence_section(plan: Mapping | None, study: Mapping, study_dir: Path) -> 
     return builder(plan, study, study_dir) if callable(builder) else None
 
 
-def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None) -> Section:
+def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None,
+                   status: PlanStatus) -> Section:
     s = Section("label-next", "Rows to label next")
+    if plan and status.stale:
+        s.para("No current list: the rows listed by the stale plan were chosen for another "
+               "state of the study; make a new plan.", "warn")
+        return s
     if label_next is None:
         if plan and (plan.get("label_next") or {}).get("written") is False:
             s.para("No rows to label: the plan found nothing worth buying ('semisup plan "
@@ -470,6 +575,19 @@ def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None) -> Sec
                   caption=f"first {len(head)} of {len(label_next)} rows"
                   + (f"; {more} more in label_next.csv" if more else "")))
     return s
+
+
+def _read_sheet(study_dir: Path, plan: Mapping | None) -> pd.DataFrame | None:
+    """The annotator sheet the plan names (label_next.csv or .xlsx), ids as text."""
+    name = ((plan or {}).get("label_next") or {}).get("file") or "label_next.csv"
+    path = study_dir / str(name)
+    if path.suffix.lower() != ".xlsx":
+        return _read_csv(path)
+    if not path.is_file():
+        return None
+    from ..data import read_table
+
+    return read_table(path, text_columns=("row_id",))
 
 
 def _cell(v: object) -> object:
@@ -537,29 +655,39 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
                          "'semisup study' first")
     currency = currency.strip()
     facts = study_facts(study, card)
-    curves = _curves_table(study_dir)
-    label_next = _read_csv(study_dir / "label_next.csv")
+    try:
+        state = current_state(study_dir)
+        plans = list_plans(study_dir)
+    except PlanError as exc:
+        raise StoreError(str(exc)) from None
+    status = PlanStatus(plan, state)
+    live = None if status.stale else plan  # a stale plan is never shown as current
+    curves = _curves_table(study_dir, live)
+    label_next = _read_sheet(study_dir, plan)
 
     figures: list[Path] = []
     warnings = data_warnings(facts)
-    for w in (plan or {}).get("warnings") or []:
+    for w in (live or {}).get("warnings") or []:
         if w not in warnings:
             warnings.append(str(w))
-    chosen = (plan or {}).get("chosen") or {}
+    chosen = (live or {}).get("chosen") or {}
     if chosen.get("extrapolated"):
         note = ("the plan's budget lies beyond the largest measured budget, so its prediction "
                 "is an extrapolation")
         if not any("extrapolat" in w for w in warnings):
             warnings.append(note)
-    evidence = _evidence_section(plan, study, study_dir)
+    if status.stale:
+        warnings.insert(0, status.message("plan.json"))
+    evidence = None if status.stale else _evidence_section(plan, study, study_dir)
     sections = [
-        _summary_section(study_dir, study, facts, cells, curves, plan, card, currency),
+        _summary_section(study_dir, study, facts, cells, curves, plan, card, currency, status),
         _card_section(card, study),
-        _curves_section(curves, plan, study, facts, study_dir / "figures", figures, currency),
-        _methods_section(cells, curves, plan, study, card),
-        _plan_section(plan, study_dir, currency),
+        _curves_section(curves, live, study, facts, study_dir / "figures", figures, currency),
+        _methods_section(cells, curves, live, study, card),
+        _plan_section(plan, study_dir, currency, status),
         *([evidence] if evidence is not None else []),
-        _label_section(label_next, plan),
+        _rounds_section(plan, plans, state),
+        _label_section(label_next, plan, status),
         _protocol_section(study),
         Section("warnings", "Warnings").bullets([warning_text(w) for w in warnings]
                                                 or ["None."], "warn"),

@@ -35,12 +35,12 @@ OUTPUT_FILES = (
     "study.sqlite", "study.sqlite-journal", "study.sqlite-wal", "study.sqlite-shm",
     "cells.csv", "cells.parquet", "curves.csv", "study.json", "candidates.npz",
     "data_card.md", "data_card.json",
-    "plan.json", "label_next.csv",
+    "plan.json", "label_next.csv", "label_next.xlsx",
     "labels_added.csv",
     "report.html",
 )
 #: Folders written in the study folder (everything inside them is ours).
-OUTPUT_FOLDERS = ("cache", "figures")
+OUTPUT_FOLDERS = ("cache", "figures", "plans")
 
 
 def output_paths(out_dir: str | os.PathLike[str]) -> list[Path]:
