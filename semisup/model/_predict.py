@@ -19,8 +19,8 @@ import pandas as pd
 
 from .._atomic import atomic_path
 from .._errors import ConfigError, DataError
-from ..data._columns import as_text
 from ..data import is_text_table, read_table_chunks
+from ..data._columns import as_text
 from ._model import FittedModel
 from ._prepare import InputCounts, check_columns
 

@@ -34,7 +34,7 @@ from ..plan import (
     study_facts,
     tidy_cells,
 )
-from ..study._folder import StudyRecord, read_curves
+from ..study._folder import StudyRecord
 from ..study._runner import summary_budget
 from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
