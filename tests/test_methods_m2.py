@@ -90,8 +90,28 @@ def test_same_seed_same_model_and_early_stopping_on_labels():
     a = M2Classifier(max_epochs=15, hidden=16, random_state=3).fit(X, y_partial)
     b = M2Classifier(max_epochs=15, hidden=16, random_state=3).fit(X, y_partial)
     np.testing.assert_array_equal(a.predict_proba(X), b.predict_proba(X))
-    # 40 labels, two classes: 8 labeled rows held out for early stopping.
-    assert 1 <= len(a.history_) <= 15 and a.n_epochs_ == int(np.argmin(a.history_)) + 1
+    # 40 labels, two classes: 8 labeled rows held out for early stopping; then a warm start
+    # with every label for a quarter of the best epoch count (not a refit from scratch).
+    assert 1 <= len(a.history_) <= 15
+    assert a.history_[a.best_epoch_ - 1] == pytest.approx(min(a.history_), abs=1e-4)
+    assert a.n_epochs_ == a.best_epoch_ + math.ceil(0.25 * a.best_epoch_)
+
+
+def test_early_stopping_keeps_the_best_epochs_network():
+    # With no warm start the fitted classifier is the best epoch's: its log-loss on the
+    # held-out labeled rows (scikit-learn's log_loss) is the smallest of the history.
+    from sklearn.metrics import log_loss
+
+    X = _mixed_table(n=120)
+    y = np.where(X[:, 0] + X[:, 3] > 0.5, 1, 0)
+    y_partial = np.full(120, -1)
+    y_partial[:40] = y[:40]
+    m = M2Classifier(max_epochs=12, hidden=16, patience=2, refit_fraction=0.0,
+                     random_state=3).fit(X, y_partial)
+    val = m._validation_rows(y[:40], 3)
+    got = log_loss(y[val], m.predict_proba(X[val]), labels=[0, 1])
+    assert got == pytest.approx(min(m.history_), abs=1e-5)
+    assert m.n_epochs_ == m.best_epoch_ <= len(m.history_)
 
 
 def test_m2_and_m1_m2_are_registered_generative_methods():
