@@ -135,3 +135,26 @@ def test_m2_well_ahead_of_supervised_on_digits_at_two_labels_per_class():
     acc_m2 = np.mean(m2.predict(X[unl]) == y[unl])
     acc_ref = np.mean(ref.predict(X[unl]) == y[unl])
     assert acc_m2 >= acc_ref + 0.05, (acc_m2, acc_ref)
+
+
+def test_blend_is_scikit_learn_label_spreading_at_weight_zero_and_the_average_between():
+    # Source: scikit-learn's LabelSpreading (kNN kernel) on the min-max scaled rows gives the
+    # blend's probabilities at m2_weight=0; at 0.3 the blend is 0.3 M2 + 0.7 spreading.
+    from sklearn.preprocessing import MinMaxScaler
+    from sklearn.semi_supervised import LabelSpreading
+
+    from semisup.methods import M2SpreadingBlend
+
+    X = _mixed_table(n=90)
+    y = np.where(X[:, 0] + X[:, 3] > 0.5, 1, 0)
+    y_partial = np.full(90, -1)
+    y_partial[:20] = y[:20]
+    ref = LabelSpreading(kernel="knn", n_neighbors=7, alpha=0.2, max_iter=30, tol=1e-3)
+    Xs = MinMaxScaler().fit_transform(X)
+    ref.fit(Xs, y_partial)
+    blend0 = M2SpreadingBlend(m2_weight=0.0, max_epochs=2, random_state=0).fit(X, y_partial)
+    np.testing.assert_allclose(blend0.predict_proba(X), ref.predict_proba(Xs), atol=1e-9)
+    blend = M2SpreadingBlend(m2_weight=0.3, max_epochs=2, random_state=0).fit(X, y_partial)
+    expected = 0.3 * blend.m2_.predict_proba(X) + 0.7 * ref.predict_proba(Xs)
+    np.testing.assert_allclose(blend.predict_proba(X), expected, atol=1e-6)
+    assert get_method("m2-spreading").family == "generative"
