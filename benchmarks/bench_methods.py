@@ -237,10 +237,11 @@ def _table_section(t, reps, budgets, names, gaps):
     balanced = is_imbalanced(imbalance_ratio(first["counts"]))
     lead = 1 if balanced else 0
     metric = "balanced accuracy" if balanced else "accuracy"
-    defaults = set(default_methods(pool_size=sum(first["counts"])))
+    # The default set of a user who has labeled b rows (supervised-gbt joins from 1,000).
+    defaults = {b: set(default_methods(pool_size=b)) for b in budgets}
     print(f"\n### {t}: {first['rows']} rows, {first['columns']} encoded columns, "
           f"{first['classes']} classes, pool class counts {first['counts']}; lead metric "
-          f"{metric} (the data card's imbalance rule); * = default set\n")
+          f"{metric} (the data card's imbalance rule); * = default set at {budgets[-1]} labels\n")
     print("| method | family | " + " | ".join(f"{b} labels" for b in budgets)
           + " | fit s (mean) |")
     print("|" + "---|" * (len(budgets) + 3))
@@ -249,7 +250,7 @@ def _table_section(t, reps, budgets, names, gaps):
     for m in names:
         sd = {b: np.std([r["cells"][b][m][lead] for r in reps]) for b in budgets}
         secs = np.mean([r["cells"][b][m][2] for r in reps for b in budgets])
-        star = "*" if m in defaults else ""
+        star = "*" if m in defaults[budgets[-1]] else ""
         print(f"| {m}{star} | {get_method(m).family} | "
               + " | ".join(f"{mean[m][b]:.3f} ± {sd[b]:.3f}" for b in budgets)
               + f" | {secs:.1f} |")
@@ -260,7 +261,7 @@ def _table_section(t, reps, budgets, names, gaps):
     win_all, win_any = bool(small and gen and sup), False
     for b in budgets:
         best_all = max(names, key=lambda m, b=b: mean[m][b])
-        best_def = max(defaults & set(names), key=lambda m, b=b: mean[m][b])
+        best_def = max(defaults[b] & set(names), key=lambda m, b=b: mean[m][b])
         gap = mean[best_all][b] - mean[best_def][b]
         gaps.append((t, b, gap))
         line = (f"budget {b}: best of all {best_all} {mean[best_all][b]:.3f}; best default "
