@@ -87,8 +87,10 @@ def test_same_seed_same_model_and_early_stopping_on_labels():
     y = np.where(X[:, 0] + X[:, 3] > 0.5, 1, 0)
     y_partial = np.full(120, -1)
     y_partial[:40] = y[:40]
-    a = M2Classifier(max_epochs=15, hidden=16, random_state=3).fit(X, y_partial)
-    b = M2Classifier(max_epochs=15, hidden=16, random_state=3).fit(X, y_partial)
+    a = M2Classifier(max_epochs=15, hidden=16, min_validation_per_class=2,
+                     random_state=3).fit(X, y_partial)
+    b = M2Classifier(max_epochs=15, hidden=16, min_validation_per_class=2,
+                     random_state=3).fit(X, y_partial)
     np.testing.assert_array_equal(a.predict_proba(X), b.predict_proba(X))
     # 40 labels, two classes: 8 labeled rows held out for early stopping; then a warm start
     # with every label for a quarter of the best epoch count (not a refit from scratch).
@@ -107,11 +109,14 @@ def test_early_stopping_keeps_the_best_epochs_network():
     y_partial = np.full(120, -1)
     y_partial[:40] = y[:40]
     m = M2Classifier(max_epochs=12, hidden=16, patience=2, refit_fraction=0.0,
-                     random_state=3).fit(X, y_partial)
+                     min_validation_per_class=2, random_state=3).fit(X, y_partial)
     val = m._validation_rows(y[:40], 3)
     got = log_loss(y[val], m.predict_proba(X[val]), labels=[0, 1])
     assert got == pytest.approx(min(m.history_), abs=1e-5)
     assert m.n_epochs_ == m.best_epoch_ <= len(m.history_)
+    # 8 held-out labels for 2 classes is under the default 5 per class: no early stopping.
+    plain = M2Classifier(max_epochs=3, hidden=16, random_state=3).fit(X, y_partial)
+    assert plain.history_ == [] and plain.n_epochs_ == 3
 
 
 def test_m2_and_m1_m2_are_registered_generative_methods():

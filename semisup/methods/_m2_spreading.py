@@ -51,7 +51,10 @@ class M2SpreadingBlend(PartiallyLabeledClassifier):
     """
 
     uses_unlabeled = True
-    tuning_defaults: ClassVar[dict] = {"m2_weight": 0.5, "alpha": 0.1, "n_neighbors": 7}
+    # m2_weight 0.3: on scikit-learn's digits (seed 7, 2 draws, 20 / 50 / 100 / 200 labels)
+    # 0.3 beat 0.5 and 0.7 at every budget (0.862 / 0.924 / 0.955 / 0.957 with M2 early
+    # stopped; 0.5: 0.837 / 0.917 / 0.937 / 0.952).
+    tuning_defaults: ClassVar[dict] = {"m2_weight": 0.3, "alpha": 0.1, "n_neighbors": 7}
 
     @staticmethod
     def tuning_space(trial) -> dict:
@@ -61,7 +64,7 @@ class M2SpreadingBlend(PartiallyLabeledClassifier):
             "n_neighbors": trial.suggest_int("n_neighbors", 3, 20),
         }
 
-    def __init__(self, m2_weight: float = 0.5, alpha: float = 0.1, max_epochs: int = 60,
+    def __init__(self, m2_weight: float = 0.3, alpha: float = 0.1, max_epochs: int = 60,
                  n_neighbors: int = 7, spread_alpha: float = 0.2, scaling: str = "minmax",
                  n_threads: int | None = 1, random_state=None):
         self.m2_weight = m2_weight
