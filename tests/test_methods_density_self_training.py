@@ -60,3 +60,17 @@ def test_density_score_is_the_mixture_likelihood_rank_and_low_density_counts_les
     plain = DensitySelfTrainingGBT(max_iter=15, n_components=3, rounds=2, threshold=0.5,
                                    density_power=0.0, random_state=0).fit(X, y_partial)
     assert est.pseudo_labeled_ < plain.pseudo_labeled_
+
+
+def test_a_density_floor_keeps_pseudo_labels_above_the_median_row():
+    # Source: scikit-learn's GaussianMixture.score_samples (same settings as the method) for
+    # the rows' log-likelihoods; with min_density=0.5 every adopted row lies above its median.
+    X, _, y_partial = _digits(per_class=10)
+    m = DensitySelfTrainingGBT(threshold=0.5, density_power=0.0, min_density=0.5,
+                               random_state=0).fit(X, y_partial)
+    gm = GaussianMixture(5, covariance_type="diag", reg_covar=1e-3, random_state=0).fit(X)
+    loglik = gm.score_samples(X)
+    assert m.pseudo_labeled_ > 0
+    assert np.all(loglik[m.adopted_] > np.median(loglik))
+    free = DensitySelfTrainingGBT(threshold=0.5, density_power=0.0, random_state=0)
+    assert np.any(loglik[free.fit(X, y_partial).adopted_] <= np.median(loglik))

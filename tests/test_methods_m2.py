@@ -87,11 +87,36 @@ def test_same_seed_same_model_and_early_stopping_on_labels():
     y = np.where(X[:, 0] + X[:, 3] > 0.5, 1, 0)
     y_partial = np.full(120, -1)
     y_partial[:40] = y[:40]
-    a = M2Classifier(max_epochs=15, hidden=16, random_state=3).fit(X, y_partial)
-    b = M2Classifier(max_epochs=15, hidden=16, random_state=3).fit(X, y_partial)
+    a = M2Classifier(max_epochs=15, hidden=16, min_validation_per_class=2,
+                     random_state=3).fit(X, y_partial)
+    b = M2Classifier(max_epochs=15, hidden=16, min_validation_per_class=2,
+                     random_state=3).fit(X, y_partial)
     np.testing.assert_array_equal(a.predict_proba(X), b.predict_proba(X))
-    # 40 labels, two classes: 8 labeled rows held out for early stopping.
-    assert 1 <= len(a.history_) <= 15 and a.n_epochs_ == int(np.argmin(a.history_)) + 1
+    # 40 labels, two classes: 8 labeled rows held out for early stopping; then a warm start
+    # with every label for a quarter of the best epoch count (not a refit from scratch).
+    assert 1 <= len(a.history_) <= 15
+    assert a.history_[a.best_epoch_ - 1] == pytest.approx(min(a.history_), abs=1e-4)
+    assert a.n_epochs_ == a.best_epoch_ + math.ceil(0.25 * a.best_epoch_)
+
+
+def test_early_stopping_keeps_the_best_epochs_network():
+    # With no warm start the fitted classifier is the best epoch's: its log-loss on the
+    # held-out labeled rows (scikit-learn's log_loss) is the smallest of the history.
+    from sklearn.metrics import log_loss
+
+    X = _mixed_table(n=120)
+    y = np.where(X[:, 0] + X[:, 3] > 0.5, 1, 0)
+    y_partial = np.full(120, -1)
+    y_partial[:40] = y[:40]
+    m = M2Classifier(max_epochs=12, hidden=16, patience=2, refit_fraction=0.0,
+                     min_validation_per_class=2, random_state=3).fit(X, y_partial)
+    val = m._validation_rows(y[:40], 3)
+    got = log_loss(y[val], m.predict_proba(X[val]), labels=[0, 1])
+    assert got == pytest.approx(min(m.history_), abs=1e-5)
+    assert m.n_epochs_ == m.best_epoch_ <= len(m.history_)
+    # 8 held-out labels for 2 classes is under the default 5 per class: no early stopping.
+    plain = M2Classifier(max_epochs=3, hidden=16, random_state=3).fit(X, y_partial)
+    assert plain.history_ == [] and plain.n_epochs_ == 3
 
 
 def test_m2_and_m1_m2_are_registered_generative_methods():
@@ -115,3 +140,26 @@ def test_m2_well_ahead_of_supervised_on_digits_at_two_labels_per_class():
     acc_m2 = np.mean(m2.predict(X[unl]) == y[unl])
     acc_ref = np.mean(ref.predict(X[unl]) == y[unl])
     assert acc_m2 >= acc_ref + 0.05, (acc_m2, acc_ref)
+
+
+def test_blend_is_scikit_learn_label_spreading_at_weight_zero_and_the_average_between():
+    # Source: scikit-learn's LabelSpreading (kNN kernel) on the min-max scaled rows gives the
+    # blend's probabilities at m2_weight=0; at 0.3 the blend is 0.3 M2 + 0.7 spreading.
+    from sklearn.preprocessing import MinMaxScaler
+    from sklearn.semi_supervised import LabelSpreading
+
+    from semisup.methods import M2SpreadingBlend
+
+    X = _mixed_table(n=90)
+    y = np.where(X[:, 0] + X[:, 3] > 0.5, 1, 0)
+    y_partial = np.full(90, -1)
+    y_partial[:20] = y[:20]
+    ref = LabelSpreading(kernel="knn", n_neighbors=7, alpha=0.2, max_iter=30, tol=1e-3)
+    Xs = MinMaxScaler().fit_transform(X)
+    ref.fit(Xs, y_partial)
+    blend0 = M2SpreadingBlend(m2_weight=0.0, max_epochs=2, random_state=0).fit(X, y_partial)
+    np.testing.assert_allclose(blend0.predict_proba(X), ref.predict_proba(Xs), atol=1e-9)
+    blend = M2SpreadingBlend(m2_weight=0.3, max_epochs=2, random_state=0).fit(X, y_partial)
+    expected = 0.3 * blend.m2_.predict_proba(X) + 0.7 * ref.predict_proba(Xs)
+    np.testing.assert_allclose(blend.predict_proba(X), expected, atol=1e-6)
+    assert get_method("m2-spreading").family == "generative"

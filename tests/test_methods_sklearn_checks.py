@@ -29,6 +29,7 @@ _SMALL = {
     "density-self-training": {"max_iter": 10, "rounds": 2},
     "latent-density-self-training": {"max_iter": 10, "rounds": 2},
     "m1-m2": {"max_epochs": 20, "hidden": 16},
+    "m2-spreading": {"max_epochs": 20},
 }
 
 # Checks every method is expected to fail, with the reason.

@@ -12,6 +12,7 @@ from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
 from ._density_self_training import DensitySelfTrainingGBT
 from ._m2 import M2Classifier
+from ._m2_spreading import M2SpreadingBlend
 from ._mixture_em import MixtureEMClassifier
 from ._proba import align_proba
 from ._registry import (
@@ -34,6 +35,7 @@ __all__ = [
     "LabeledLogReg",
     "LabeledSVM",
     "M2Classifier",
+    "M2SpreadingBlend",
     "MethodSpec",
     "MethodUnavailable",
     "MixtureEMClassifier",

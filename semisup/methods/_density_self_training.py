@@ -54,12 +54,16 @@ class DensitySelfTrainingGBT(LabeledGBT):
         Components of the diagonal Gaussian mixture that scores density (capped at the rows).
     rounds : int
         Most self-training rounds.
+    min_density : float in [0, 1)
+        Rows whose density score is at most this share are never pseudo-labeled (0.5: only
+        rows denser than the median row; 0: no such floor).
     random_state : int or None
 
     Attributes
     ----------
     density_score_ : (n_samples,) density score of every row given to ``fit``
-    pseudo_labeled_ : int, rows adopted; n_rounds_ : int
+    pseudo_labeled_ : int, rows adopted; adopted_ : (n_samples,) bool, the adopted rows;
+    n_rounds_ : int
     """
 
     uses_unlabeled = True
@@ -81,7 +85,8 @@ class DensitySelfTrainingGBT(LabeledGBT):
                  max_leaf_nodes: int = 15, min_samples_leaf: int = 5,
                  l2_regularization: float = 0.0, threshold: float = 0.7,
                  density_power: float = 1.0, unlabeled_weight: float = 0.5,
-                 n_components: int = 5, rounds: int = 5, random_state=None):
+                 n_components: int = 5, rounds: int = 5, min_density: float = 0.0,
+                 random_state=None):
         super().__init__(learning_rate=learning_rate, max_iter=max_iter,
                          max_leaf_nodes=max_leaf_nodes, min_samples_leaf=min_samples_leaf,
                          l2_regularization=l2_regularization, random_state=random_state)
@@ -90,6 +95,7 @@ class DensitySelfTrainingGBT(LabeledGBT):
         self.unlabeled_weight = unlabeled_weight
         self.n_components = n_components
         self.rounds = rounds
+        self.min_density = min_density
 
     def _fit_encoded(self, X, y_code):
         self.density_score_ = self._density(X)
@@ -103,7 +109,8 @@ class DensitySelfTrainingGBT(LabeledGBT):
             rest = np.flatnonzero(~has_label)
             proba = self.model_.predict_proba(X[rest])
             score = proba.max(axis=1) * self.density_score_[rest] ** float(self.density_power)
-            chosen = score > float(self.threshold)
+            chosen = (score > float(self.threshold)) & (
+                self.density_score_[rest] > float(self.min_density))
             if not chosen.any():
                 break
             rows = rest[chosen]
@@ -112,7 +119,8 @@ class DensitySelfTrainingGBT(LabeledGBT):
                             * self.density_score_[rows] ** float(self.density_power))
             has_label[rows] = True
         super()._fit_encoded(X[has_label], target[has_label], weight[has_label])
-        self.pseudo_labeled_ = int(has_label.sum() - (y_code >= 0).sum())
+        self.adopted_ = has_label & (y_code < 0)
+        self.pseudo_labeled_ = int(self.adopted_.sum())
 
     def _density(self, X: np.ndarray) -> np.ndarray:
         k = int(max(1, min(self.n_components, X.shape[0] // 2)))

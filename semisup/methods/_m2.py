@@ -15,14 +15,17 @@ The paper's ``alpha`` multiplies the summed labeled cross-entropy and is set to 
 divided by N, so one minibatch step estimates ``J / N``. M1+M2 is the same estimator fitted on
 the pretrained VAE's latent means (representation "vae").
 
-Training is CPU-only, minibatched (Adam), seeded and deterministic. Early stopping watches the
-classifier's log-loss on a stratified part of the *labeled* rows given to ``fit`` (never any
-evaluation rows); the model is then refitted on every labeled row for the chosen number of
-epochs.
+Training is CPU-only, minibatched (Adam), seeded and deterministic. With enough labels
+(``min_validation_per_class``) early stopping watches the classifier's log-loss on a
+stratified part of the *labeled* rows given to ``fit`` (never any
+evaluation rows); training then resumes from the best epoch's state with every labeled row
+for a quarter as many epochs again (``refit_fraction``), not from scratch. Evaluation passes
+run under ``torch.inference_mode``.
 """
 
 from __future__ import annotations
 
+import copy
 import math
 from typing import ClassVar
 
@@ -69,12 +72,15 @@ def infer_layout(X: np.ndarray):
     return BlockLayout(d, tuple(numeric), tuple(missing), tuple(categorical))
 
 
-def m2_row_terms(net, x, y_onehot, layout, index, log_prior, eps=None):
-    """``-L(x, y)`` per row for the given classes: (reconstruction, KL, labeled ELBO).
+def _encoder_hidden(net, x, y_onehot):
+    """First encoder layer on ``[x, y]`` as ``x W_x + y W_y + b`` (the same affine map)."""
+    first = net.enc[0]
+    d = x.shape[1]
+    return x @ first.weight[:, :d].T + y_onehot @ first.weight[:, d:].T + first.bias
 
-    ``eps`` fixes the reparameterisation noise (None draws it).
-    """
-    h = net.enc(torch.cat([x, y_onehot], dim=1))
+
+def _row_terms_from_hidden(net, pre, x, y_onehot, layout, index, log_prior, eps):
+    h = net.enc[1](pre)
     mu, logvar = net.enc_mu(h), net.enc_logvar(h)
     if eps is None:
         eps = torch.randn_like(mu)
@@ -85,16 +91,31 @@ def m2_row_terms(net, x, y_onehot, layout, index, log_prior, eps=None):
     return rec, kl, rec + y_onehot @ log_prior - kl
 
 
+def m2_row_terms(net, x, y_onehot, layout, index, log_prior, eps=None):
+    """``-L(x, y)`` per row for the given classes: (reconstruction, KL, labeled ELBO).
+
+    ``eps`` fixes the reparameterisation noise (None draws it).
+    """
+    pre = _encoder_hidden(net, x, y_onehot)
+    return _row_terms_from_hidden(net, pre, x, y_onehot, layout, index, log_prior, eps)
+
+
 def m2_unlabeled_elbo(net, x, layout, index, log_prior, eps=None):
     """``-U(x)`` per row: the labeled ELBO averaged over ``q(y|x)`` plus its entropy.
 
+    Every class of a row goes through the network in one batched pass (the rows tiled once
+    per class, class-major); the encoder's ``x`` part is computed once and shared.
     ``eps`` (n_classes * n, latent), class-major, fixes the noise (None draws it).
     """
     n, k = x.shape[0], log_prior.shape[0]
     log_q = torch.log_softmax(net.clf(x), dim=1)  # (n, k)
+    first = net.enc[0]
+    d = x.shape[1]
+    pre_x = x @ first.weight[:, :d].T + first.bias  # (n, hidden), once for all classes
+    pre = (pre_x.unsqueeze(0) + first.weight[:, d:].T.unsqueeze(1)).reshape(k * n, -1)
     x_rep = x.repeat(k, 1)  # class-major: rows of class 0, then class 1, ...
     y_rep = torch.eye(k, dtype=x.dtype).repeat_interleave(n, dim=0)
-    _, _, elbo = m2_row_terms(net, x_rep, y_rep, layout, index, log_prior, eps)
+    _, _, elbo = _row_terms_from_hidden(net, pre, x_rep, y_rep, layout, index, log_prior, eps)
     elbo = elbo.view(k, n).T  # (n, k)
     q = log_q.exp()
     return (q * elbo).sum(1) - (q * log_q).sum(1)
@@ -145,6 +166,16 @@ class M2Classifier(PartiallyLabeledClassifier):
     validation_fraction : float
         Share of the labeled rows held out for early stopping (stratified; no early stopping
         when a class has fewer than 2 labels).
+    min_validation_per_class : int
+        Early stopping only when the held-out share holds at least this many rows per class
+        on average; with fewer, ``max_epochs`` are trained on every label. On scikit-learn's
+        digits (seed 7, 2 draws, 60 epochs) early stopping on 10 / 20 / 40 held-out labels
+        reached 0.829 / 0.888 / 0.912 holdout accuracy at 50 / 100 / 200 labels, training on
+        every label for 60 epochs 0.915 / 0.914 / 0.915.
+    refit_fraction : float
+        After early stopping, training resumes from the best epoch's state (network and Adam)
+        with every labeled row, the held-out ones included, for ``ceil(refit_fraction *
+        best_epoch)`` more epochs (0: keep the best state as it is).
     weight_decay : float
         L2 penalty of Adam.
     n_threads : int or None
@@ -154,8 +185,9 @@ class M2Classifier(PartiallyLabeledClassifier):
     Attributes
     ----------
     layout_ : BlockLayout (the likelihood of each column, see :func:`infer_layout`)
-    n_epochs_ : int (epochs of the final fit), best_epoch_ : int, history_ : list of float
-    (validation log-loss per epoch; empty without early stopping)
+    n_epochs_ : int (epochs trained in all), best_epoch_ : int (epoch of the best validation
+    log-loss; ``max_epochs`` without early stopping), history_ : list of float (validation
+    log-loss per epoch; empty without early stopping)
     """
 
     uses_unlabeled = True
@@ -174,7 +206,9 @@ class M2Classifier(PartiallyLabeledClassifier):
     def __init__(self, alpha: float = 0.1, hidden: int = 128, latent_dim: int = 16,
                  learning_rate: float = 3e-3, batch_size: int = 128, max_epochs: int = 60,
                  patience: int = 8, validation_fraction: float = 0.2,
-                 weight_decay: float = 1e-4, n_threads: int | None = 1, random_state=None):
+                 min_validation_per_class: int = 5,
+                 refit_fraction: float = 0.25, weight_decay: float = 1e-4,
+                 n_threads: int | None = 1, random_state=None):
         self.alpha = alpha
         self.hidden = hidden
         self.latent_dim = latent_dim
@@ -183,6 +217,8 @@ class M2Classifier(PartiallyLabeledClassifier):
         self.max_epochs = max_epochs
         self.patience = patience
         self.validation_fraction = validation_fraction
+        self.min_validation_per_class = min_validation_per_class
+        self.refit_fraction = refit_fraction
         self.weight_decay = weight_decay
         self.n_threads = n_threads
         self.random_state = random_state
@@ -201,31 +237,47 @@ class M2Classifier(PartiallyLabeledClassifier):
         with torch_state(seed, self.n_threads):
             self.history_ = []
             if val.size:
-                keep = np.ones(lab.size, dtype=bool)
-                keep[val] = False
                 y_train = y_code.copy()
                 y_train[lab[val]] = -2  # neither labeled nor unlabeled: left out
-                _, history = self._train(X, y_train, self.max_epochs, (X[lab[val]],
-                                                                       y_code[lab[val]]))
-                self.history_ = history
-                self.best_epoch_ = int(np.argmin(history)) + 1
+                state, self.history_, self.best_epoch_ = self._train(
+                    X, y_train, self.max_epochs, (X[lab[val]], y_code[lab[val]]))
+                # Warm start from the best state: the held-out labels join for a few more
+                # epochs instead of a refit from scratch for as many epochs again.
+                extra = int(math.ceil(float(self.refit_fraction) * self.best_epoch_))
+                state, _, _ = self._train(X, y_code, extra, None, state)
+                self.n_epochs_ = self.best_epoch_ + extra
             else:
-                self.best_epoch_ = int(self.max_epochs)
-            torch.manual_seed(seed)
-            self.net_, _ = self._train(X, y_code, self.best_epoch_, None)
-        self.n_epochs_ = self.best_epoch_
+                state, _, _ = self._train(X, y_code, self.max_epochs, None)
+                self.best_epoch_ = self.n_epochs_ = int(self.max_epochs)
+            self.net_ = state[0]
+            self.net_.eval()
 
     def _validation_rows(self, y_lab: np.ndarray, seed: int) -> np.ndarray:
         counts = np.bincount(y_lab)
         n_val = int(round(self.validation_fraction * y_lab.size))
-        if counts.min() < 2 or n_val < counts.size or y_lab.size - n_val < counts.size:
+        if (counts.min() < 2 or n_val < int(self.min_validation_per_class) * counts.size
+                or n_val < counts.size or y_lab.size - n_val < counts.size):
             return np.zeros(0, dtype=np.int64)
         from sklearn.model_selection import StratifiedShuffleSplit
 
         split = StratifiedShuffleSplit(n_splits=1, test_size=n_val, random_state=seed)
         return next(split.split(np.zeros(y_lab.size), y_lab))[1]
 
-    def _train(self, X, y_code, epochs, validation):
+    def _new_state(self, d: int):
+        net = M2Net(d, self.classes_.size, int(self.hidden), int(self.latent_dim),
+                    len(self.layout_.numeric))
+        optimiser = torch.optim.Adam(net.parameters(), lr=float(self.learning_rate),
+                                     weight_decay=float(self.weight_decay))
+        generator = torch.Generator().manual_seed(self._seed())
+        return net, optimiser, generator
+
+    def _train(self, X, y_code, epochs, validation, state=None):
+        """Train ``epochs`` passes over the unlabeled rows from ``state`` (None: a new net).
+
+        With ``validation`` (X, y codes) it stops after ``patience`` epochs without a better
+        validation log-loss and returns the state of the best epoch (its number the third
+        item; ``epochs`` without validation) with the validation history.
+        """
         k = self.classes_.size
         Xt = _float_tensor(X)
         lab = np.flatnonzero(y_code >= 0)
@@ -233,51 +285,56 @@ class M2Classifier(PartiallyLabeledClassifier):
         n_rows = lab.size + unl.size
         layout = self.layout_
         index = layout.tensors()
-        net = M2Net(X.shape[1], k, int(self.hidden), int(self.latent_dim), len(layout.numeric))
-        optimiser = torch.optim.Adam(net.parameters(), lr=float(self.learning_rate),
-                                     weight_decay=float(self.weight_decay))
+        net, optimiser, generator = state or self._new_state(X.shape[1])
         log_prior = torch.full((k,), -math.log(k))
+        X_lab, X_unl = Xt[lab], Xt[unl]
         y_lab = torch.as_tensor(y_code[lab], dtype=torch.long)
         eye = torch.eye(k)
-        generator = torch.Generator().manual_seed(self._seed())
         batch = int(self.batch_size)
         n_steps = max(1, math.ceil(max(unl.size, lab.size) / batch))
+        w_lab, w_unl = lab.size / n_rows, unl.size / n_rows
+        ce_weight = float(self.alpha) * lab.size
+        if validation is not None:
+            X_val = _float_tensor(validation[0])
+            y_val = torch.as_tensor(validation[1], dtype=torch.long)
         history: list[float] = []
-        best_loss, stale = math.inf, 0
-        for _ in range(int(epochs)):
+        best_loss, best, best_epoch, stale = math.inf, None, int(epochs), 0
+        for epoch in range(1, int(epochs) + 1):
             net.train()
             unl_order = torch.randperm(unl.size, generator=generator) if unl.size else None
             for step in range(n_steps):
                 pick = torch.randint(lab.size, (min(batch, lab.size),), generator=generator)
-                xl, yl = Xt[lab][pick], y_lab[pick]
+                xl, yl = X_lab[pick], y_lab[pick]
                 _, _, elbo_l = m2_row_terms(net, xl, eye[yl], layout, index, log_prior)
                 ce = F.cross_entropy(net.clf(xl), yl)
-                objective = (lab.size / n_rows) * elbo_l.mean() - self.alpha * lab.size * ce
+                objective = w_lab * elbo_l.mean() - ce_weight * ce
                 if unl.size:
                     rows = unl_order[(step * batch) % unl.size:][:batch]
-                    elbo_u = m2_unlabeled_elbo(net, Xt[unl][rows], layout, index, log_prior)
-                    objective = objective + (unl.size / n_rows) * elbo_u.mean()
-                optimiser.zero_grad()
+                    elbo_u = m2_unlabeled_elbo(net, X_unl[rows], layout, index, log_prior)
+                    objective = objective + w_unl * elbo_u.mean()
+                optimiser.zero_grad(set_to_none=True)
                 (-objective).backward()
                 optimiser.step()
-            if validation is not None:
-                net.eval()
-                with torch.no_grad():
-                    logits = net.clf(_float_tensor(validation[0]))
-                    loss = float(F.cross_entropy(
-                        logits, torch.as_tensor(validation[1], dtype=torch.long)))
-                history.append(loss)
-                if loss < best_loss - 1e-4:
-                    best_loss, stale = loss, 0
-                else:
-                    stale += 1
-                    if stale >= int(self.patience):
-                        break
-        net.eval()
-        return net, history
+            if validation is None:
+                continue
+            net.eval()
+            with torch.inference_mode():
+                loss = float(F.cross_entropy(net.clf(X_val), y_val))
+            history.append(loss)
+            if loss < best_loss - 1e-4:
+                best_loss, best_epoch, stale = loss, epoch, 0
+                best = (copy.deepcopy(net.state_dict()), copy.deepcopy(optimiser.state_dict()))
+            else:
+                stale += 1
+                if stale >= int(self.patience):
+                    break
+        if best is not None:
+            net.load_state_dict(best[0])
+            optimiser.load_state_dict(best[1])
+        return (net, optimiser, generator), history, best_epoch
 
     def _proba_encoded(self, X):
-        with pinned_threads(self.n_threads), torch.no_grad():
+        with pinned_threads(self.n_threads), torch.inference_mode():
             logits = self.net_.clf(_float_tensor(X))
             return torch.softmax(logits, dim=1).double().numpy()
 

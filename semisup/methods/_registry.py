@@ -15,7 +15,14 @@ from __future__ import annotations
 from .._errors import ConfigError
 
 # The estimator modules register their methods on import (order = registration order).
-from . import _classic, _density_self_training, _m2, _mixture_em, _supervised  # noqa: F401
+from . import (  # noqa: F401
+    _classic,
+    _density_self_training,
+    _m2,
+    _m2_spreading,
+    _mixture_em,
+    _supervised,
+)
 from ._spec import MethodSpec, MethodUnavailable, default_rules, register, registered
 
 __all__ = [

@@ -89,11 +89,9 @@ def _load_dataset(spec: StudySpec):
 
 
 def _default_method_names(pool_size: int | None = None) -> list[str]:
-    from .. import methods as m
+    from ..methods import default_methods
 
-    fn = getattr(m, "default_methods", None)
-    specs = fn(pool_size=pool_size) if fn is not None else m.list_methods()
-    names = [s if isinstance(s, str) else s.name for s in specs]
+    names = default_methods(pool_size=pool_size)
     if not names:
         raise ConfigError("no methods are registered; name them with --methods or 'methods'")
     return names
