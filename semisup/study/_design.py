@@ -112,6 +112,7 @@ def _fingerprint(resolved: StudySpec, kinds: set[str], ds, injected_representati
         from ..pretrain import representation_params
 
         facts.pop("pretrain", None)  # replaced by the resolved parameters below
+        facts["pretrain_draws"] = "one per repeat"  # study/_representations.py
         facts["pretrain_resolved"] = {
             kind: representation_params(kind, dict(resolved.pretrain.get(kind, {})))
             for kind in sorted(kinds)

@@ -176,7 +176,8 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
     try:
         # ---- unsupervised stage: once per study, on features only (never a label)
         features, diagnostics, rep_errors, rep_seconds = fit_representations(
-            design.kinds, ds, design.representation_rows, resolved, out, representation_fn
+            design.kinds, ds, design.representation_rows, resolved, out, representation_fn,
+            repeats=resolved.repeats, jobs=jobs,
         )
         if store.get_meta("pretrain_seconds") is None:
             store.set_meta("pretrain_seconds", json.dumps(rep_seconds))
