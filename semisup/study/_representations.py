@@ -53,6 +53,19 @@ def _fit_one(kind, X_all, fit_rows, blocks, params, seed, cache_dir, representat
             time.perf_counter() - t0)
 
 
+def _picklable(fn: Any) -> bool:
+    """Whether ``fn`` can be sent to a worker process (None: the real stage)."""
+    if fn is None:
+        return True
+    import pickle
+
+    try:
+        pickle.dumps(fn)
+    except Exception:  # noqa: BLE001  (a closure or lambda: fitted in this process)
+        return False
+    return True
+
+
 def fit_representations(
     kinds: set[str], ds: Any, fit_rows: np.ndarray, spec: Any, out_dir: Path,
     representation_fn: Callable[..., Any] | None = None, *, repeats: int = 1, jobs: int = 1,
@@ -64,8 +77,8 @@ def fit_representations(
     holds every row of ``ds`` in repeat ``r``'s draw of that representation (``"raw"`` is
     the table itself); ``diagnostics[kind]`` describes the study's own draw (repeat 0); a
     stage any of whose draws fails is in ``errors`` (its methods are not run; the others
-    still are); ``seconds[kind]`` sums the fits. With ``jobs`` > 1 (and the real stage) the
-    draws are fitted in that many processes.
+    still are); ``seconds[kind]`` sums the fits. With ``jobs`` > 1 (and the real stage or a
+    picklable stand-in) the draws are fitted in that many processes.
     """
     features: dict[str, np.ndarray] = {"raw": np.asarray(ds.X, dtype=np.float32)}
     diagnostics: dict[str, Any] = {}
@@ -81,13 +94,14 @@ def fit_representations(
         for kind, r in tasks
     }
     results: dict[tuple[str, int], Any] = {}
-    if jobs > 1 and representation_fn is None and len(tasks) > 1:
+    if jobs > 1 and len(tasks) > 1 and _picklable(representation_fn):
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
 
         with ProcessPoolExecutor(max_workers=min(jobs, len(tasks)),
                                  mp_context=mp.get_context("spawn")) as pool:
-            futures = {t: pool.submit(_fit_one, *args[t]) for t in tasks}
+            futures = {t: pool.submit(_fit_one, *args[t], representation_fn=representation_fn)
+                       for t in tasks}
             for t, fut in futures.items():
                 try:
                     results[t] = fut.result()
