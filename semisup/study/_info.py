@@ -32,8 +32,8 @@ _EVALUATION_NOTES = {
         "holdout carved once from the labeled rows, stratified by class, never trained or "
         "tuned on, shared by every repeat",
         "unsupervised stage fitted once per repeat on the unlabeled rows and the pool's "
-        "features (plus the holdout's features only when transductive), cached under cache/, reused by "
-        "the repeat's cells",
+        "features (plus the holdout's features only when transductive), cached under "
+        "cache/, reused by the repeat's cells",
     ],
     "test-file": [
         "evaluation on the labeled rows of a separate test file only, shared by every repeat; "
