@@ -12,6 +12,7 @@ from semisup.plan import (
     Calibration,
     calibrate,
     calibrated_samples,
+    ensemble_records,
     family_weights,
     paule_mandel,
     power_law,
@@ -176,3 +177,73 @@ def test_shared_evaluation_rows_per_protocol(evaluation, expected):
     # values); a holdout or a test file is shared by every repeat.
     facts = study_facts({"evaluation": evaluation})
     assert facts.shared_eval_rows == (pytest.approx(expected) if expected else None)
+
+
+def test_record_weight_halves_per_doubling_below_half_the_largest_budget():
+    # Hand values of the rule (our own rule, common practice, no source).
+    rec = [BacktestRecord(o, 2 * o, 0.2, 0.01, 0.2, 0.0, 160.0) for o in (80, 40, 20, 10)]
+    assert [r.weight for r in rec] == [1.0, 0.5, 0.25, 0.125]
+    assert BacktestRecord(20, 40, 0.2, 0.01, 0.2, 0.0).weight == 1.0  # largest unknown
+
+
+def test_weighted_paule_mandel_is_paule_mandel_on_replicated_records():
+    # Frequency weights: a record of weight 2 is two copies of it. Reference: statsmodels'
+    # combine_effects(method_re="iterated") (Paule-Mandel) on the replicated records.
+    from statsmodels.stats.meta_analysis import combine_effects
+
+    rng = np.random.default_rng(5)
+    for _ in range(5):
+        v = rng.uniform(0.005, 0.03, 10)
+        e = rng.normal(0.05, np.sqrt(v + 0.02))
+        a = rng.integers(1, 4, 10)
+        beta, se, kappa2, _ = paule_mandel(e, v, a=a.astype(float))
+        ref = combine_effects(np.repeat(e, a), np.repeat(v, a), method_re="iterated")
+        assert kappa2 == pytest.approx(ref.tau2, rel=1e-6)
+        assert beta == pytest.approx(ref.mean_effect_re, rel=1e-6)
+        assert se == pytest.approx(ref.sd_eff_w_re, rel=1e-5)
+
+
+def test_weighted_shift_is_the_statsmodels_wls_slope_at_the_fitted_spread():
+    # Reference: statsmodels WLS through the origin with weights a / (v + kappa^2 u^2); the
+    # fitted kappa^2 solves the weighted Q equation sum a w r^2 = sum a - 1.
+    import statsmodels.api as sm
+
+    rng = np.random.default_rng(6)
+    u = np.log2(rng.choice([1.5, 2.0, 3.0, 4.0], 40))
+    v = rng.uniform(1e-4, 4e-4, 40)
+    e = rng.normal(0.01 * u, np.sqrt(v + (0.02 * u) ** 2))
+    a = rng.choice([0.25, 0.5, 1.0], 40)
+    beta, se, kappa2, _ = paule_mandel(e, v, u, a=a)
+    assert kappa2 > 0
+    w = a / (v + kappa2 * u * u)
+    fit = sm.WLS(e, u[:, None], weights=w).fit()
+    assert beta == pytest.approx(fit.params[0], rel=1e-8)
+    assert np.sum(w * (e - beta * u) ** 2) == pytest.approx(a.sum() - 1, rel=1e-6)
+    assert se == pytest.approx(np.sqrt(1 / np.sum(w * u * u)), rel=1e-8)
+
+
+def test_calibration_leans_on_backtests_from_near_the_largest_budget():
+    # The steep part of the curve (origins 20 and 40 of 160) was forecast 0.03 too
+    # pessimistically per doubling, the top (origin 80) exactly. With one ratio (u = 1) and
+    # equal variances the shift is the weighted mean of the errors whatever the spread:
+    # (0.25 * 0.03 + 0.5 * 0.03 + 1 * 0) / 1.75 (hand value); unweighted it would be 0.02.
+    recs = [BacktestRecord(o, 2 * o, 0.2, 0.01, 0.2 + err, 0.0, 160.0)
+            for o, err in ((20, 0.03), (40, 0.03), (80, 0.0)) for _ in range(4)]
+    cal = calibrate(recs)
+    assert cal.shift_per_doubling == pytest.approx(0.0225 / 1.75, rel=1e-9)
+    assert cal.to_dict()["weighted_backtests"] == pytest.approx(7.0)
+    flat = calibrate([BacktestRecord(r.origin, r.n_labels, r.predicted, r.sd, r.measured,
+                                     r.measured_se) for r in recs])
+    assert flat.shift_per_doubling == pytest.approx(0.02, rel=1e-9)
+
+
+def test_rolling_origin_records_carry_the_weight_of_their_origin():
+    # Doubling budgets 10..320: origins 40, 80, 160 of a curve whose largest budget is 320
+    # weigh 0.25, 0.5 and 1 (hand values of the rule above).
+    budgets = np.array([10, 20, 40, 80, 160, 320.0])
+    n = np.repeat(budgets, 3)
+    rep = np.tile(np.arange(3), budgets.size)
+    err = power_law(n, 0.05, 2.0, 0.6) + np.tile([0.002, -0.001, 0.0], budgets.size)
+    origins = rolling_origin(n, err, rep, n_boot=10, seed=0)
+    recs = ensemble_records(origins, {"power_law": 1.0}, largest=320.0)
+    assert {r.origin: r.weight for r in recs} == {40: 0.25, 80: 0.5, 160: 1.0}

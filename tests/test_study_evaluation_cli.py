@@ -92,8 +92,8 @@ def test_test_file_rows_are_the_only_evaluation_rows(tmp_path, files):
     assert ev["test_file"]["n_rows"] == 30 and ev["n_rows_evaluated"] == 30
     assert ev["n_pool_min"] == len(labeled) and info["holdout"]["n_rows"] == 30
     assert ev["representation_fit"]["includes_evaluation_features"] is False
-    # the unsupervised stage saw the table's rows only
-    assert (out / "cache" / "fits-vae.txt").read_text().split() == [str(len(ds.y))]
+    # the unsupervised stage saw the table's rows only (one draw per repeat)
+    assert (out / "cache" / "fits-vae.txt").read_text().split() == [str(len(ds.y))] * 2
     npz = np.load(out / "candidates.npz")
     assert len(npz["row_ids"]) == int((ds.y < 0).sum())  # candidates are table rows only
     assert not set(npz["row_ids"]) & set(test["flower"])

@@ -129,11 +129,22 @@ def test_crossfit_cells_are_scored_on_their_own_fold_against_scikit_learn(tmp_pa
     assert {"n_eval", "fold"} <= set(on_disk.columns)
 
 
-def test_crossfit_unsupervised_stage_fitted_once_on_every_rows_features(tmp_path, roles, ds):
+def test_crossfit_unsupervised_stage_fitted_once_per_repeat_on_every_rows_features(
+        tmp_path, roles, ds):
+    # One draw of the stage per repeat (study/_representations.py), each on every row's
+    # features, each with its own seed; repeat 0's draw is the study's own.
+    from semisup._seeding import derive_seed
+
+    seeds = []
+
+    def recording(kind, X, **kw):
+        seeds.append(kw["seed"])
+        return pca_representation(kind, X, **kw)
+
     spec = _spec([roles["selftrain"]], repeats=5, budgets=[6])
-    run_study(spec, tmp_path, dataset=ds, representation_fn=pca_representation,
-              progress=False, jobs=1)
-    assert (tmp_path / "cache" / "fits-vae.txt").read_text().split() == [str(len(ds.y))]
+    run_study(spec, tmp_path, dataset=ds, representation_fn=recording, progress=False, jobs=1)
+    assert (tmp_path / "cache" / "fits-vae.txt").read_text().split() == [str(len(ds.y))] * 5
+    assert len(set(seeds)) == 5 and seeds[0] == derive_seed(spec.seed, "pretrain", "vae")
 
 
 def test_too_few_labels_per_class_for_the_folds_is_refused(roles, ds):

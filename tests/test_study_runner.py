@@ -89,13 +89,14 @@ def test_every_cell_scored_against_scikit_learn_refit(tmp_path, roles, ds):
     assert got == pytest.approx(want)
 
 
-def test_pretraining_fitted_once_and_without_holdout(tmp_path, roles, ds):
+def test_pretraining_fitted_once_per_repeat_and_without_holdout(tmp_path, roles, ds):
     names = [roles["logreg"], roles["selftrain"]]
     spec = _spec(names, pretrain={"vae": {"n_components": 5}}, evaluation="holdout")
     _run(spec, tmp_path, ds, jobs=1)
     fits = (tmp_path / "cache" / "fits-vae.txt").read_text().split()
     n_holdout = 36
-    assert fits == [str(len(ds.y) - n_holdout)]  # once, on unlabeled + pool rows only
+    # once per repeat (study/_representations.py), on unlabeled + pool rows only
+    assert fits == [str(len(ds.y) - n_holdout)] * spec.repeats
     c = pd.read_csv(tmp_path / "cells.csv")
     assert (c["status"] == "ok").all()
     npz = np.load(tmp_path / "candidates.npz")

@@ -16,9 +16,18 @@ the budget and ``kappa`` the standard deviation per doubling that the bootstrap 
 Estimation is the Paule-Mandel method of random-effects meta-analysis (Paule & Mandel 1982;
 DerSimonian & Kacker 2007), with ``u_i`` as the covariate of the mean and of the extra
 variance: ``beta`` is the weighted least-squares slope for weights
-``1 / (v_i + kappa**2 u_i**2)``, and ``kappa**2`` the root of the generalised Q statistic
-``sum w_i (e_i - beta u_i)**2 = N - 1`` (0 when Q is already below N - 1). With every
-``u_i = 1`` it is the usual Paule-Mandel estimate of tau**2 and the random-effects mean.
+``a_i / (v_i + kappa**2 u_i**2)``, and ``kappa**2`` the root of the generalised Q statistic
+``sum a_i w_i (e_i - beta u_i)**2 = sum a_i - 1`` (0 when Q is already below it). With every
+``u_i = 1`` and ``a_i = 1`` it is the usual Paule-Mandel estimate of tau**2 and the
+random-effects mean.
+
+The record weights ``a_i`` (``BacktestRecord.weight``) count a forecast from an origin near
+the largest budget fully and one from the steep, small-budget part of the curve less
+(halved per doubling below half the largest budget): the plan extrapolates from the top of
+the curve, and backtests from 20 labels of 160 mostly describe the steep part. They act as
+frequency weights (a record of weight 2 is two copies of it, so the estimate equals
+Paule-Mandel on the replicated records), and the standard error of ``beta`` counts the
+weighted records only.
 
 A plan's curve at budget ``n`` (``u = log2(n / n_max)`` beyond the largest measured budget,
 0 inside) is then shifted by ``beta * u`` and given the extra spread
@@ -79,7 +88,9 @@ class Calibration:
             "calibrated": self.calibrated,
             "method": ("Paule-Mandel fit of rolling-origin backtest errors: error ~ "
                        "Normal(shift * u, bootstrap variance + (sd * u)^2), u = "
-                       "log2(budget / largest budget fitted)"),
+                       "log2(budget / largest budget fitted); a backtest from an origin "
+                       "below half the largest measured budget counts half per doubling "
+                       "further down"),
             # on the metric scale (higher is better): added to the metric per doubling
             "metric_shift_per_doubling": -self.shift_per_doubling,
             "shift_se": self.shift_se,
@@ -92,25 +103,28 @@ class Calibration:
 
 
 def paule_mandel(e: np.ndarray, v: np.ndarray, u: np.ndarray | None = None, *,
-                 tol: float = 1e-12, max_iter: int = 200) -> tuple[float, float, float, float]:
+                 a: np.ndarray | None = None, tol: float = 1e-12,
+                 max_iter: int = 200) -> tuple[float, float, float, float]:
     """Paule-Mandel estimate for ``e_i ~ Normal(beta u_i, v_i + kappa2 u_i**2)``.
 
     Returns ``(beta, se_beta, kappa2, q0)`` where ``q0`` is the Q statistic at kappa2 = 0.
-    ``u`` defaults to ones (the plain random-effects model of meta-analysis).
+    ``u`` defaults to ones (the plain random-effects model of meta-analysis); ``a`` are
+    frequency weights of the records (default ones).
     """
     e = np.asarray(e, dtype=float)
     v = np.maximum(np.asarray(v, dtype=float), 1e-12)
     u = np.ones_like(e) if u is None else np.asarray(u, dtype=float)
-    k = e.size
+    a = np.ones_like(e) if a is None else np.asarray(a, dtype=float)
+    k = float(np.sum(a))
 
     def slope(kappa2: float) -> tuple[float, float, float]:
-        w = 1.0 / (v + kappa2 * u * u)
+        w = a / (v + kappa2 * u * u)
         beta = float(np.sum(w * u * e) / np.sum(w * u * u))
         q = float(np.sum(w * (e - beta * u) ** 2))
         return beta, q, float(np.sqrt(1.0 / np.sum(w * u * u)))
 
     beta, q0, se = slope(0.0)
-    if k < 2 or q0 <= k - 1:
+    if k <= 1 or q0 <= k - 1:
         return beta, se, 0.0, q0
     lo, hi = 0.0, max(float(np.max((e - beta * u) ** 2 / np.maximum(u * u, 1e-12))), 1e-12)
     while slope(hi)[1] > k - 1:
@@ -132,7 +146,8 @@ def _arrays(records: Sequence[BacktestRecord]):
     u = np.log2(np.array([r.ratio for r in records], dtype=float))
     e = np.array([r.measured - r.predicted for r in records], dtype=float)
     v = np.array([r.sd ** 2 + r.measured_se ** 2 for r in records], dtype=float)
-    return u, e, v
+    a = np.array([r.weight for r in records], dtype=float)
+    return u, e, v, a
 
 
 def calibrate(records: Sequence[BacktestRecord], *, min_records: int = MIN_RECORDS
@@ -143,9 +158,10 @@ def calibrate(records: Sequence[BacktestRecord], *, min_records: int = MIN_RECOR
         return Calibration(0.0, 0.0, 0.0, len(records), False,
                            f"only {len(records)} backtest forecast(s) (at least {min_records} "
                            "needed); the uncalibrated widening 1 + log2(n / n_max) is used")
-    u, e, v = _arrays(records)
-    beta, se, kappa2, q0 = paule_mandel(e, v, u)
-    return Calibration(beta, se, float(np.sqrt(kappa2)), len(records), True, "", q0)
+    u, e, v, a = _arrays(records)
+    beta, se, kappa2, q0 = paule_mandel(e, v, u, a=a)
+    return Calibration(beta, se, float(np.sqrt(kappa2)), len(records), True, "", q0,
+                       {"weighted_backtests": float(np.sum(a))})
 
 
 def calibrated_samples(point: np.ndarray, samples: np.ndarray, grid: np.ndarray, n_max: float,
@@ -182,7 +198,7 @@ def ratio_table(records: Sequence[BacktestRecord], cal: Calibration, interval: f
     out = []
     if not records:
         return out
-    u, e, v = _arrays(records)
+    u, e, v, a = _arrays(records)
     ratio = 2.0 ** u
     for label, lo, hi in RATIO_BINS:
         m = (ratio > lo) & (ratio <= hi)
@@ -192,6 +208,7 @@ def ratio_table(records: Sequence[BacktestRecord], cal: Calibration, interval: f
         row = {"ratio": label, "n": int(m.sum()),
                "mean_ratio": float(np.mean(ratio[m])),
                "mean_error": float(np.mean(e[m])), "mae": float(np.mean(np.abs(e[m]))),
+               "weight": float(np.sum(a[m])),
                "covered_bootstrap_only": float(np.mean(np.abs(e[m]) <= z * np.sqrt(v[m])))}
         if cal.calibrated:
             cal_sd = np.sqrt(v[m] + (cal.sd_per_doubling ** 2 + cal.shift_se ** 2) * u[m] ** 2)

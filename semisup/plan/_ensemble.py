@@ -108,8 +108,9 @@ def combine(points: Mapping[str, np.ndarray], samples: Mapping[str, np.ndarray] 
 class BacktestRecord:
     """One rolling-origin forecast of the weighted curve (error rates).
 
-    ``sd`` is the spread of the bootstrap refits (already scaled for few repeats) and
-    ``measured_se`` the standard error of the measured mean (0 when unknown).
+    ``sd`` is the spread of the bootstrap refits (already scaled for few repeats),
+    ``measured_se`` the standard error of the measured mean (0 when unknown) and ``largest``
+    the curve's largest measured budget (NaN when unknown).
     """
 
     origin: float
@@ -118,18 +119,35 @@ class BacktestRecord:
     sd: float
     measured: float
     measured_se: float
+    largest: float = float("nan")
 
     @property
     def ratio(self) -> float:
         return self.n_labels / self.origin
 
+    @property
+    def weight(self) -> float:
+        """How much the record counts in the calibration: 1 for an origin at half the
+        largest budget or above, halved for every doubling further down (1 when ``largest``
+        is unknown).
+
+        The plan extrapolates from the largest budget, where curves are flattest; a forecast
+        from the steep part of the curve (20 labels of 160) says less about that than one
+        from 80 (our own rule, common practice, no source).
+        """
+        if not np.isfinite(self.largest) or self.largest <= 0:
+            return 1.0
+        return float(min(1.0, 2.0 * self.origin / self.largest))
+
 
 def ensemble_records(origins: Sequence[OriginForecast], weights: Mapping[str, float],
-                     spread_factor: float | Mapping[int, float] = 1.0) -> list[BacktestRecord]:
+                     spread_factor: float | Mapping[int, float] = 1.0, *,
+                     largest: float = float("nan")) -> list[BacktestRecord]:
     """Backtest records of the weighted curve at every origin.
 
     ``spread_factor`` scales the bootstrap spread (a number, or a mapping from the number
-    of repeats to the factor).
+    of repeats to the factor); ``largest`` is the curve's largest measured budget (it sets
+    each record's :attr:`BacktestRecord.weight`).
     """
     out = []
     for o in origins:
@@ -142,5 +160,5 @@ def ensemble_records(origins: Sequence[OriginForecast], weights: Mapping[str, fl
         se = np.nan_to_num(o.measured_se, nan=0.0)
         for j, t in enumerate(o.targets):
             out.append(BacktestRecord(o.origin, float(t), float(point[j]), float(sd[j]),
-                                      float(o.measured[j]), float(se[j])))
+                                      float(o.measured[j]), float(se[j]), float(largest)))
     return out

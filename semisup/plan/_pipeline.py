@@ -181,13 +181,14 @@ def forecast_all(
         if not m.weights:
             continue
         for r in ensemble_records(m.origins, m.weights,
-                                  small_sample_factor(m.n_repeats, interval)):
+                                  small_sample_factor(m.n_repeats, interval),
+                                  largest=float(m.levels[-1])):
             raw_records.append(r)
             records.append({"method": k[0], "strategy": k[1], "origin": int(r.origin),
                             "n_labels": int(r.n_labels), "ratio": r.ratio,
                             "predicted": 1 - r.predicted, "measured": 1 - r.measured,
                             "error": r.measured - r.predicted, "sd": r.sd,
-                            "measured_se": r.measured_se})
+                            "measured_se": r.measured_se, "weight": r.weight})
     cal = calibrate(raw_records)
 
     bands: dict[tuple[str, str, str], CurveBand] = {}

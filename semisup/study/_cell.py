@@ -21,6 +21,7 @@ import numpy as np
 from .._seeding import derive_seed
 from ..methods import align_proba
 from ._metrics import holdout_metrics
+from ._representations import repeat_key
 from ._tuning import fit_method, tune_params
 
 __all__ = ["CELL_CODE_VERSION", "Cell", "CellContext", "cell_key", "cell_seed", "run_cell"]
@@ -175,7 +176,9 @@ def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
         eval_idx = ctx.evals[fold]
         row["fold"], row["n_eval"] = int(fold), int(len(eval_idx))
         method = ctx.methods[cell.method]
-        X = ctx.features[method.representation]
+        # the repeat's own draw of the unsupervised stage (study/_representations.py)
+        X = ctx.features.get(repeat_key(method.representation, cell.repeat),
+                             ctx.features[method.representation])
         order = ctx.orders[(cell.strategy, cell.repeat)]
         draw = ctx.pools[fold][order[: cell.n_labels]]
         X_lab, y_lab = X[draw], ctx.y[draw]

@@ -23,22 +23,24 @@ _EVALUATION_NOTES = {
         "draws its budgets from the other folds only, so every labeled row is evaluated and "
         "none is trained or tuned on in the repeat that evaluates it; repeats beyond the fold "
         "count start a fresh, differently seeded fold assignment",
-        "unsupervised stage fitted once per study on the features of every row of the table "
-        "(unlabeled and labeled rows, never a label), as the model is used later on rows whose "
-        "features it has seen; cached under cache/, reused by every cell",
+        "unsupervised stage fitted once per repeat (its own seeded draw) on the features of "
+        "every row of the table (unlabeled and labeled rows, never a label), as the model is "
+        "used later on rows whose "
+        "features it has seen; cached under cache/, reused by the repeat's cells",
     ],
     "holdout": [
         "holdout carved once from the labeled rows, stratified by class, never trained or "
         "tuned on, shared by every repeat",
-        "unsupervised stage fitted once per study on the unlabeled rows and the pool's features "
-        "(plus the holdout's features only when transductive), cached under cache/, reused by "
-        "every cell",
+        "unsupervised stage fitted once per repeat on the unlabeled rows and the pool's "
+        "features (plus the holdout's features only when transductive), cached under "
+        "cache/, reused by the repeat's cells",
     ],
     "test-file": [
         "evaluation on the labeled rows of a separate test file only, shared by every repeat; "
         "its labels are never trained or tuned on",
-        "unsupervised stage fitted once per study on the table's features (plus the test "
-        "file's features only when transductive), cached under cache/, reused by every cell",
+        "unsupervised stage fitted once per repeat on the table's features (plus the test "
+        "file's features only when transductive), cached under cache/, reused by the "
+        "repeat's cells",
     ],
 }
 

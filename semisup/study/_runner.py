@@ -25,7 +25,7 @@ from ._exports import cells_frame, write_data_card, write_exports
 from ._info import PROTOCOL_NOTES, study_info
 from ._layout import check_input_outside_outputs, check_out_folder, remove_outputs
 from ._lock import study_lock
-from ._representations import fit_representations
+from ._representations import fit_representations, repeat_key
 from ._rounds import read_added_labels
 from ._spec import StudySpec
 from ._store import Store
@@ -166,7 +166,8 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
     try:
         # ---- unsupervised stage: once per study, on features only (never a label)
         features, diagnostics, rep_errors, rep_seconds = fit_representations(
-            design.kinds, ds, design.representation_rows, resolved, out, representation_fn
+            design.kinds, ds, design.representation_rows, resolved, out, representation_fn,
+            repeats=resolved.repeats, jobs=jobs,
         )
         if store.get_meta("pretrain_seconds") is None:
             store.set_meta("pretrain_seconds", json.dumps(rep_seconds))
@@ -215,9 +216,14 @@ def _cell_keys(ctx: CellContext, design) -> dict[Cell, str]:
     names = list(design.ds.class_names)
     full = dataclasses.replace(ctx, methods=design.methods)  # failed stages' methods too
     memo: dict = {}
+    def representation(cell: Cell) -> str:
+        # repeat r's own draw of a fitted stage (study/_representations.py); raw is shared
+        kind = design.methods[cell.method].representation
+        key = design.representation_keys[kind]
+        return key if kind == "raw" else f"{key}@{repeat_key(kind, cell.repeat)}"
+
     return {
-        cell: cell_key(full, cell, design.representation_keys[
-            design.methods[cell.method].representation], names, memo)
+        cell: cell_key(full, cell, representation(cell), names, memo)
         for s in resolved.strategies for r in range(resolved.repeats)
         for b in design.budgets for m in resolved.methods
         for cell in [Cell(m, b, r, s)]
