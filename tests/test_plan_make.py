@@ -154,6 +154,14 @@ def test_decision_counts_every_label(study, tmp_path):
     assert lab["owned_for_training"] == 200 and lab["kept_for_evaluation"] == 0
     assert lab["evaluated_by_cross_fit"] == 200 and lab["in_all"] == 240
     assert "160 train and 40 are evaluated" in lab["text"]
+    # Rows returned by a labeling round only train (DEVELOPERS.md, "Studies that grow"): the
+    # folds are dealt from the table's 200, the 50 returned rows are owned but never evaluated.
+    facts = StudyFacts(n_labeled=250, protocol="cross_fit", folds=5, n_round_rows=50)
+    lab = label_counts(facts, 250, 10)
+    assert lab["owned_for_training"] == 250 and lab["evaluated_by_cross_fit"] == 200
+    assert lab["returned_by_rounds"] == 50 and lab["in_all"] == 260
+    assert "200 of the table" in lab["text"] and "160 train and 40 are evaluated" in lab["text"]
+    assert "50 returned by labeling rounds, which only ever train" in lab["text"]
 
 
 def test_labels_owned_default_comes_from_study_json(study):

@@ -137,6 +137,8 @@ class StudyFacts:
     folds: int | None = None
     n_repeats: int | None = None
     evaluation: dict | None = None
+    #: labeled rows returned by labeling rounds (``add-labels``): they train, never evaluate
+    n_round_rows: int = 0
 
     @property
     def shared_eval_rows(self) -> float | None:
@@ -190,6 +192,7 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
         facts.folds = evaluation.folds
         facts.n_repeats = evaluation.n_repeats or _as_int(record.spec.get("repeats"))
         facts.evaluation = dict(evaluation.raw)
+        facts.n_round_rows = int(evaluation.n_round_rows or 0)
     counts = record.data.class_counts or card.get("class_counts")
     if isinstance(counts, Mapping):
         facts.class_counts = {str(k): float(v) for k, v in counts.items()

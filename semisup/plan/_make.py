@@ -265,13 +265,24 @@ def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
     source = " (from --labels-owned)" if owned_given else ""
     if facts.protocol == "cross_fit" and n_lab is not None and not owned_given:
         k = facts.folds
-        folds = (f" ({k} folds: in each repeat about {n_lab - n_lab // k} train and "
-                 f"{n_lab // k} are evaluated)" if k and k > 1 else "")
-        out["evaluated_by_cross_fit"] = int(n_lab)
-        out["text"] = (f"{n_lab} labeled rows in the table; under cross-fitting each of them "
-                       f"trains the model in some repeats and is evaluated in others{folds}, so "
-                       f"all {n_lab} count as owned for training and none is kept aside for "
-                       f"evaluation; to buy: {to_buy}; {n_lab + to_buy} labels in all.")
+        rounds = min(int(facts.n_round_rows or 0), int(n_lab))
+        table = n_lab - rounds  # the rows the folds are dealt from
+        folds = (f" ({k} folds: in each repeat about {table - table // k} train and "
+                 f"{table // k} are evaluated)" if k and k > 1 else "")
+        out["evaluated_by_cross_fit"] = int(table)
+        if rounds:
+            out["returned_by_rounds"] = rounds
+            out["text"] = (f"{n_lab} labeled rows: {table} of the table, each of which trains "
+                           f"the model in some repeats and is evaluated in others{folds}, "
+                           f"and {rounds} returned by labeling rounds, which only ever train; "
+                           f"so all {n_lab} count as owned for training and none is kept aside "
+                           f"for evaluation; to buy: {to_buy}; {n_lab + to_buy} labels in all.")
+        else:
+            out["text"] = (f"{n_lab} labeled rows in the table; under cross-fitting each of "
+                           f"them trains the model in some repeats and is evaluated in "
+                           f"others{folds}, so all {n_lab} count as owned for training and none "
+                           f"is kept aside for evaluation; to buy: {to_buy}; {n_lab + to_buy} "
+                           "labels in all.")
     elif facts.protocol == "test_file":
         n_eval = int(facts.n_eval or 0)
         out["kept_for_evaluation"] = n_eval
