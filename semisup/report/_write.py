@@ -178,7 +178,8 @@ def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, s
 def _eval_rows_label(facts) -> str:
     """What the evaluation-row count means under the study's protocol."""
     if getattr(facts, "protocol", "holdout") == "cross_fit":
-        return "evaluation rows per repeat (cross-fit: each of the table's labeled rows is evaluated in turn; rows returned by labeling rounds only train)"
+        return ("evaluation rows per repeat (cross-fit: each of the table's labeled rows is "
+                "evaluated in turn; rows returned by labeling rounds only train)")
     return "holdout rows (evaluation only)"
 
 
