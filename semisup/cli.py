@@ -106,6 +106,7 @@ def help_defaults() -> dict[str, str]:
         "holdout": f"{holdout:g}",
         "evaluation": str(_field_default(StudySpec, "evaluation")),
         "folds": str(_field_default(StudySpec, "folds")),
+        "stage_draws": str(_field_default(StudySpec, "stage_draws")),
         "confidence": f"{_field_default(PlanRequest, 'confidence'):g}",
         "cost_per_round": f"{_field_default(PlanRequest, 'cost_per_round'):g}",
         "metrics": ", ".join(METRICS),
@@ -184,6 +185,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--transductive", action="store_true",
                    help="let the methods (and, with a holdout or test file, the unsupervised "
                         "stage) see the evaluation rows' features (never their labels)")
+    p.add_argument("--stage-draws", choices=("per-repeat", "one"),
+                   help=f"fit the unsupervised stage once per repeat (its randomness is in the "
+                        f"intervals) or once for the study (faster on large tables) "
+                        f"(default: {d['stage_draws']})")
     p.add_argument("--jobs", type=_positive_int, default=None, metavar="N",
                    help="worker processes (default: all cores)")
     p.add_argument("--cluster", metavar="ADDR",
@@ -387,6 +392,7 @@ def _cmd_study(args: argparse.Namespace) -> int:
         "holdout": args.holdout,
         "test_data": args.test_file,
         "transductive": True if args.transductive else None,
+        "stage_draws": args.stage_draws,
     }
     spec = StudySpec.build(config=args.config, overrides=overrides)
     out = args.out or Path(f"{args.data.stem}-study")

@@ -147,6 +147,35 @@ def test_crossfit_unsupervised_stage_fitted_once_per_repeat_on_every_rows_featur
     assert len(set(seeds)) == 5 and seeds[0] == derive_seed(spec.seed, "pretrain", "vae")
 
 
+def test_stage_draws_one_fits_a_single_draw_that_every_repeat_shares(tmp_path, roles, ds):
+    # stage_draws = "one" (large tables): one fit with the study's own seed; each repeat's cells
+    # then equal those of the per-repeat study's repeat 0 draw where they share it (repeat 0),
+    # and the option is a setting of its own (another value is another study).
+    from semisup import ConfigError
+
+    seeds = []
+
+    def recording(kind, X, **kw):
+        seeds.append(kw["seed"])
+        return pca_representation(kind, X, **kw)
+
+    one = _spec([roles["selftrain"]], repeats=3, budgets=[6], stage_draws="one")
+    shared = run_study(one, tmp_path / "one", dataset=ds, representation_fn=recording,
+                       progress=False, jobs=1).cells
+    assert seeds == [derive_seed(one.seed, "pretrain", "vae")]
+    per = run_study(one.replace(stage_draws="per-repeat"), tmp_path / "per", dataset=ds,
+                    representation_fn=recording, progress=False, jobs=1).cells
+    assert len(seeds) == 1 + 3
+    key = ["method", "n_labels", "repeat", "strategy"]
+    a, b = shared.set_index(key).sort_index(), per.set_index(key).sort_index()
+    r0 = a.index.get_level_values("repeat") == 0
+    np.testing.assert_array_equal(a.loc[r0, "accuracy"], b.loc[r0, "accuracy"])
+    info = json.loads((tmp_path / "one" / "study.json").read_text())
+    assert any("stage_draws = \"one\"" in n for n in info["protocol"])
+    with pytest.raises(ConfigError, match="stage_draws"):
+        StudySpec.build(None, {"data": "t.csv", "label_column": "y", "stage_draws": "two"})
+
+
 def test_too_few_labels_per_class_for_the_folds_is_refused(roles, ds):
     from semisup import DataError
 

@@ -140,7 +140,6 @@ def _settings_fingerprint(resolved: StudySpec, kinds: set[str], data_digest: str
         facts["test_data_sha256"] = test.sha256
     if kinds:
         facts.pop("pretrain", None)  # replaced by the resolved parameters
-        facts["pretrain_draws"] = "one per repeat"  # study/_representations.py
         facts["pretrain_resolved"] = _resolved_pretrain(resolved, kinds,
                                                         injected_representation)
     return hashlib.sha256(

@@ -73,10 +73,16 @@ ROUNDS_NOTE = (
 )
 
 
-def protocol_notes(protocol: str, rounds: bool = False) -> list[str]:
+def protocol_notes(protocol: str, rounds: bool = False, one_draw: bool = False) -> list[str]:
     """The protocol lines study.json records for evaluation ``protocol`` (``rounds``: the
-    study holds labels returned in labeling rounds)."""
-    return [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES, *([ROUNDS_NOTE] if rounds else [])]
+    study holds labels returned in labeling rounds; ``one_draw``: ``stage_draws = "one"``)."""
+    notes = [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES, *([ROUNDS_NOTE] if rounds else [])]
+    if one_draw:
+        shared = ("fitted once for the study (stage_draws = \"one\": one seeded draw shared "
+                  "by every repeat, so its randomness is in no interval)")
+        notes = [n.replace("fitted once per repeat (its own seeded draw)", shared)
+                 .replace("fitted once per repeat", shared) for n in notes]
+    return notes
 
 
 #: The default (cross-fit) protocol's notes.
@@ -200,7 +206,8 @@ def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: 
         "max_unlabeled_per_cell": spec.max_unlabeled,
         "selection_representation": order_kind,
         "status_counts": {k: int(v) for k, v in counts.items()},
-        "protocol": protocol_notes(design.protocol, bool(evaluation["rounds"])),
+        "protocol": protocol_notes(design.protocol, bool(evaluation["rounds"]),
+                                   design.spec.stage_draws == "one"),
         "warnings": warnings_,
         "representation": {"diagnostics": diagnostics, "errors": rep_errors},
         "timing": timing,

@@ -167,7 +167,8 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         # ---- unsupervised stage: once per study, on features only (never a label)
         features, diagnostics, rep_errors, rep_seconds = fit_representations(
             design.kinds, ds, design.representation_rows, resolved, out, representation_fn,
-            repeats=resolved.repeats, jobs=jobs,
+            repeats=resolved.repeats if resolved.stage_draws == "per-repeat" else 1,
+            jobs=jobs,
         )
         if store.get_meta("pretrain_seconds") is None:
             store.set_meta("pretrain_seconds", json.dumps(rep_seconds))
@@ -220,7 +221,10 @@ def _cell_keys(ctx: CellContext, design) -> dict[Cell, str]:
         # repeat r's own draw of a fitted stage (study/_representations.py); raw is shared
         kind = design.methods[cell.method].representation
         key = design.representation_keys[kind]
-        return key if kind == "raw" else f"{key}@{repeat_key(kind, cell.repeat)}"
+        if kind == "raw":
+            return key
+        draw = cell.repeat if resolved.stage_draws == "per-repeat" else 0
+        return f"{key}@{repeat_key(kind, draw)}"
 
     return {
         cell: cell_key(full, cell, representation(cell), names, memo)

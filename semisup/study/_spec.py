@@ -19,12 +19,14 @@ from .._errors import ConfigError
 from ..selection import STRATEGIES
 from ._metrics import METRICS
 
-__all__ = ["EVALUATIONS", "StudySpec"]
+__all__ = ["EVALUATIONS", "STAGE_DRAWS", "StudySpec"]
 
 _KIND_VALUES = ("numeric", "categorical", "drop", "text")
 _PRETRAIN_KINDS = ("vae", "mixture")
 #: Evaluation protocols (DEVELOPERS.md "The study protocol").
 EVALUATIONS = ("cross-fit", "holdout", "test-file")
+#: How many draws of the unsupervised stage a study fits (study/_representations.py).
+STAGE_DRAWS = ("per-repeat", "one")
 
 
 @dataclass(frozen=True)
@@ -70,6 +72,11 @@ class StudySpec:
     transductive : bool
         Let the semi-supervised methods (and, with a holdout or a test file, the unsupervised
         stage) see the evaluation rows' features (never their labels).
+    stage_draws : str
+        ``"per-repeat"``: each repeat fits its own seeded draw of the unsupervised stage, so
+        the curves' intervals hold the stage's own randomness; ``"one"``: one draw shared by
+        every repeat (1/repeats of the pretraining time and memory on large tables, but that
+        randomness is then in no interval).
     metrics : tuple of str
         Metrics written to curves.csv (all are measured for every cell).
     max_unlabeled : int
@@ -99,6 +106,7 @@ class StudySpec:
     holdout: float | int = 0.3
     test_data: str | None = None
     transductive: bool = False
+    stage_draws: str = "per-repeat"
     metrics: tuple[str, ...] = METRICS
     max_unlabeled: int = 20_000
     cv_folds: int = 3
@@ -330,6 +338,10 @@ def _check(key: str, value: Any) -> Any:
         if not (0 < value < 1 or (value >= 1 and float(value).is_integer())):
             raise _bad(key, value, "give a fraction in (0, 1) or a row count >= 1")
         return int(value) if value >= 1 else float(value)
+    if key == "stage_draws":
+        if value not in STAGE_DRAWS:
+            raise _bad(key, value, f"give one of {', '.join(STAGE_DRAWS)}")
+        return value
     if key == "transductive":
         if not isinstance(value, bool):
             raise _bad(key, value, "give true or false")
