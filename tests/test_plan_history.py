@@ -122,6 +122,21 @@ def test_track_record_totals_over_plans_and_nothing_measured_yet():
     assert (track["n_compared"], track["n_hit"], track["coverage"]) == (2, 2, 1.0)
 
 
+def test_plans_made_again_from_one_state_are_counted_once():
+    # Three plans of one study state (another target each time) forecast the same numbers: a
+    # track record that scored each would count every forecast three times.
+    plan, forecast = _earlier()
+    same = [dict(plan, name=f"p{i}", state={"id": "s1"}) for i in (1, 2, 3)]
+    other = dict(plan, name="q1", state={"id": "s2"})
+    measured = _measured([("a", 300, 0.87), ("b", 300, 0.82)])
+    track = track_record([(p, forecast) for p in [*same, other]], measured)
+    assert [p["plan"] for p in track["plans"]] == ["p3", "q1"]
+    assert track["repeated_plans"] == ["p1", "p2"] and track["n_compared"] == 4
+    macro = dict(plan, name="m1", state={"id": "s1"}, target={"metric": "macro_f1"})
+    track = track_record([(same[0], forecast), (macro, forecast)], measured)
+    assert [p["plan"] for p in track["plans"]] == ["p1", "m1"]  # another metric is its own
+
+
 # -- files on a synthetic study folder ----------------------------------------------------------
 
 def test_each_plan_is_kept_and_a_changed_study_makes_it_stale(tmp_path):

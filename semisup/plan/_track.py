@@ -96,17 +96,38 @@ def score_plan(plan: Mapping, forecast: pd.DataFrame | None,
     }
 
 
+def _forecast_key(plan: Mapping) -> tuple | None:
+    """Plans with one key made the same forecasts: the same study state, metric and interval
+    (a plan run again with another target or price). A plan without a state id is its own."""
+    state = plan.get("state") if isinstance(plan.get("state"), Mapping) else {}
+    if not state.get("id"):
+        return None
+    return (state["id"], str((plan.get("target") or {}).get("metric") or ""),
+            plan.get("interval"))
+
+
 def track_record(earlier: Iterable[tuple[Mapping, pd.DataFrame | None]],
                  measured: pd.DataFrame | None) -> dict:
     """Every earlier plan scored against the study's measured points now (pure).
 
-    ``earlier`` yields ``(plan, forecast points)`` oldest first. Returns ``plans`` (one
-    :func:`score_plan` result each) and the totals ``n_compared``, ``n_hit``, ``coverage``.
+    ``earlier`` yields ``(plan, forecast points)`` oldest first. Plans made again from the
+    same study state (same metric and interval) forecast the same numbers: only the latest
+    of them is scored, the others are named in ``repeated_plans``, so a forecast counts once.
+    Returns ``plans`` (one :func:`score_plan` result each), ``repeated_plans`` and the totals
+    ``n_compared``, ``n_hit``, ``coverage``.
     """
-    plans = [score_plan(p, f, measured) for p, f in earlier]
+    items = list(earlier)
+    latest = {_forecast_key(p): i for i, (p, _) in enumerate(items)}
+    plans, repeated = [], []
+    for i, (p, f) in enumerate(items):
+        key = _forecast_key(p)
+        if key is not None and latest[key] != i:
+            repeated.append(p.get("name"))
+            continue
+        plans.append(score_plan(p, f, measured))
     n = sum(p["n_compared"] for p in plans)
     hits = sum(p["n_hit"] for p in plans)
-    return {"plans": plans, "n_compared": n, "n_hit": hits,
+    return {"plans": plans, "repeated_plans": repeated, "n_compared": n, "n_hit": hits,
             "coverage": hits / n if n else None}
 
 
@@ -119,6 +140,10 @@ def track_lines(track: Mapping | None) -> list[str]:
            + (f"{track['n_hit']} of {track['n_compared']} forecasts at budgets measured "
               "since fell inside their interval." if track.get("n_compared")
               else "no budget they forecast has been measured since.")]
+    repeated = list((track or {}).get("repeated_plans") or [])
+    if repeated:
+        out[0] += (f" ({len(repeated)} more plan(s) made again from the same study state "
+                   "forecast the same numbers and are counted once.)")
     for p in plans:
         mine = [r for r in p["rows"] if r["plan_choice"]] or p["rows"]
         if not mine:
