@@ -71,7 +71,10 @@ class FitResult:
         est = r.get("study_estimate") or {}
         if "plan" in est:
             p = est["plan"]
-            lines.append(f"plan's estimate at {p['n_labels']} labels: {p['metric']} "
+            ahead = (f" (the plan's budget; this model has {r['n_labeled']}, so the estimate "
+                     "applies once the labels it asks to buy are added)"
+                     if int(p["n_labels"]) > int(r["n_labeled"]) else "")
+            lines.append(f"plan's estimate at {p['n_labels']} labels{ahead}: {p['metric']} "
                          f"{p['predicted']['mean']:.3f} ({p['predicted']['low']:.3f}-"
                          f"{p['predicted']['high']:.3f})")
         if "curve" in est:
