@@ -30,10 +30,12 @@ def format_duration(seconds: float) -> str:
 
 
 def _about(seconds: float) -> str:
-    """A coarse remaining time: ``about 40s``, ``about 3m``, ``about 1h20m``."""
+    """A coarse remaining time: ``under 10s``, ``about 40s``, ``about 3m``, ``about 1h20m``."""
     s = max(0.0, float(seconds))
+    if s < 10:
+        return "under 10s"
     if s < 60:
-        return f"about {int(round(s / 10.0) * 10) or 10}s"
+        return f"about {int(round(s / 10.0) * 10)}s"
     if s < 3600:
         return f"about {int(round(s / 60.0))}m"
     return f"about {int(s // 3600)}h{int(round((s % 3600) / 60.0)):02d}m"

@@ -39,6 +39,7 @@ def test_a_line_every_tenth_of_the_work_on_a_non_terminal():
     # 2 of 20 done after 2 s: 18 more at 1 s each, shown to the nearest 10 s
     assert lines[0] == "cells 2/20, 2s, about 20s left"
     assert lines[3] == "cells 8/20, 8s, about 10s left, 1 failed"
+    assert lines[8] == "cells 18/20, 18s, under 10s left, 1 failed"  # not "about 10s" for 2 s
     assert lines[-1] == "cells 20/20, 20s, 1 failed"  # the end: no time left to show
 
 
