@@ -151,7 +151,10 @@ def test_dask_local_cluster_local_pool_and_serial_agree(tmp_path, roles, ds):
     spec = _spec(names, repeats=1, budgets=[6, 12])
     pooled = _run(spec, tmp_path / "pool", ds, jobs=2)
     serial = _run(spec, tmp_path / "serial", ds, jobs=1)
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+    # Worker processes, as `--cluster local-cluster` starts them: two cells running in threads
+    # of one process once deadlocked inside numpy's hash-based np.unique (numpy 2.4, both
+    # threads waiting for the GIL in unique_numeric), hanging the suite.
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None) as cluster, \
             distributed.Client(cluster) as client:
         remote = _run(spec, tmp_path / "dask", ds, jobs=2, cluster=client)
