@@ -42,6 +42,14 @@ def _offset_fn(offset: int):
     return fn
 
 
+def _cell_rows(cells: pd.DataFrame, run: str, vae: int) -> list[dict]:
+    """The finished cells of one run as rows of the gap table."""
+    return [{"vae": vae, "run": run, "method": r["method"], "repeat": int(r["repeat"]),
+             "accuracy": float(r["accuracy"]), "n_eval": int(r["n_eval"]),
+             "n_unlabeled_used": int(r.get("n_unlabeled_used") or 0)}
+            for _, r in cells[cells["status"] == "ok"].iterrows()]
+
+
 def main() -> int:
     from semisup.study import StudySpec, run_study
 
@@ -92,13 +100,7 @@ def main() -> int:
         tname = f"truth_v{off}" if args.truth_transductive else f"truth_nt_v{off}"
         tr = run_study(tspec, work / tname, jobs=args.jobs, progress=False,
                        representation_fn=fn).cells
-        for name, c in (("study", st), ("truth", tr)):
-            c = c[c["status"] == "ok"]
-            for _, r in c.iterrows():
-                rows.append({"vae": off, "run": name, "method": r["method"],
-                             "repeat": int(r["repeat"]), "accuracy": float(r["accuracy"]),
-                             "n_eval": int(r["n_eval"]),
-                             "n_unlabeled_used": int(r.get("n_unlabeled_used") or 0)})
+        rows += _cell_rows(st, "study", off) + _cell_rows(tr, "truth", off)
     if args.user_rows:
         # c. Models trained as in the truth (160 labels drawn from the other rows) scored on
         # the user's 200 labeled rows: if they score like the study did, the gap is the
@@ -113,11 +115,7 @@ def main() -> int:
             "seed": 1, **extra})
         uc = run_study(uspec, work / "truth_on_user_rows", jobs=args.jobs,
                        progress=False).cells
-        for _, r in uc[uc["status"] == "ok"].iterrows():
-            rows.append({"vae": -1, "run": "truth_on_user_rows", "method": r["method"],
-                         "repeat": int(r["repeat"]), "accuracy": float(r["accuracy"]),
-                         "n_eval": int(r["n_eval"]),
-                         "n_unlabeled_used": int(r.get("n_unlabeled_used") or 0)})
+        rows += _cell_rows(uc, "truth_on_user_rows", -1)
     if args.user_training:
         # Models trained as in the study (160 of the user's 200 labeled rows, the user's
         # unlabeled rows) scored on 1,200 other rows of the table (never in their inputs):
@@ -135,11 +133,7 @@ def main() -> int:
             **extra})
         tc = run_study(tspec, work / "user_training_on_new_rows", jobs=args.jobs,
                        progress=False).cells
-        for _, r in tc[tc["status"] == "ok"].iterrows():
-            rows.append({"vae": -2, "run": "user_training_on_new_rows", "method": r["method"],
-                         "repeat": int(r["repeat"]), "accuracy": float(r["accuracy"]),
-                         "n_eval": int(r["n_eval"]),
-                         "n_unlabeled_used": int(r.get("n_unlabeled_used") or 0)})
+        rows += _cell_rows(tc, "user_training_on_new_rows", -2)
         print("user's training rows (160 of 200, 3 draws), scored on 1,200 other rows:")
         print(pd.DataFrame(rows).query("run == 'user_training_on_new_rows'")
               .groupby("method")["accuracy"].mean().round(3).to_string())
