@@ -173,13 +173,6 @@ def read_forecast(study_dir: str | Path, plan: Mapping | None) -> pd.DataFrame |
                         "again") from None
 
 
-def truthy(series: pd.Series) -> pd.Series:
-    """A boolean column read back from CSV (True / "true" / 1 / "yes")."""
-    if series.dtype == bool:
-        return series
-    return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
-
-
 def read_measured(study_dir: str | Path) -> pd.DataFrame | None:
     """The study's measured points (``curves.csv``, written by the study only; read by the
     study folder's own reader), None when the file is absent or lacks the curve columns."""

@@ -7,11 +7,9 @@ off what depends on it (with a warning in the plan), a malformed file is a one-l
 from __future__ import annotations
 
 import json
-import math
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -109,14 +107,6 @@ def read_candidates(study_dir: Path) -> dict[str, np.ndarray] | None:
     return arrays
 
 
-def _as_int(value: Any) -> int | None:
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        return None
-    return int(out) if math.isfinite(out) else None
-
-
 @dataclass
 class StudyFacts:
     """The facts of a study the plan and report use; every one may be unknown."""
@@ -169,16 +159,16 @@ class StudyFacts:
 def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
     """Pull the facts the plan needs out of study.json (read by the names the study writes,
     :class:`semisup.study._folder.StudyRecord`), with data_card.json's counts as a fallback."""
-    from ..study._folder import StudyRecord
+    from ..study._folder import StudyRecord, as_int
 
     record = StudyRecord.from_dict(study)
     card = card if isinstance(card, Mapping) else {}
     facts = StudyFacts()
     facts.seed = record.seed or 0
     facts.n_rows = record.data.n_rows if record.data.n_rows is not None else \
-        _as_int(card.get("n_rows"))
+        as_int(card.get("n_rows"))
     facts.n_labeled = record.data.n_labeled if record.data.n_labeled is not None else \
-        _as_int(card.get("n_labeled"))
+        as_int(card.get("n_labeled"))
     facts.n_unlabeled = record.data.n_unlabeled
     if facts.n_unlabeled is None and facts.n_rows is not None and facts.n_labeled is not None:
         facts.n_unlabeled = facts.n_rows - facts.n_labeled
@@ -190,13 +180,13 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
         facts.n_eval = evaluation.n_eval_min
         facts.n_rows_evaluated = evaluation.n_rows_evaluated
         facts.folds = evaluation.folds
-        facts.n_repeats = evaluation.n_repeats or _as_int(record.spec.get("repeats"))
+        facts.n_repeats = evaluation.n_repeats or as_int(record.spec.get("repeats"))
         facts.evaluation = dict(evaluation.raw)
         facts.n_round_rows = int(evaluation.n_round_rows or 0)
     counts = record.data.class_counts or card.get("class_counts")
     if isinstance(counts, Mapping):
         facts.class_counts = {str(k): float(v) for k, v in counts.items()
-                              if _as_int(v) is not None and float(v) >= 0}
+                              if as_int(v) is not None and float(v) >= 0}
     facts.warnings = list(record.warnings)
     return facts
 

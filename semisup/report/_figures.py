@@ -20,6 +20,8 @@ from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
 from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, NullLocator
 
+from ..study._folder import truthy
+
 __all__ = [
     "FAMILY_TITLES",
     "METRIC_LABELS",
@@ -97,12 +99,6 @@ def _render(fig: Figure) -> Rendered:
     fig.savefig(svg, format="svg", bbox_inches="tight",
                 metadata={"Creator": None, "Date": None, "Format": None, "Type": None})
     return Rendered(png.getvalue(), svg.getvalue())
-
-
-def _truthy(series: pd.Series) -> pd.Series:
-    if series.dtype == bool:
-        return series
-    return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
 
 
 def _families(methods: Sequence[str], families: Mapping[str, str]) -> dict[str, list[str]]:
@@ -224,8 +220,8 @@ def build_curve_figure(
     """
     facts = facts or BudgetFacts()
     data = curves[curves["metric"].astype(str) == metric].copy()
-    data["measured"] = _truthy(data["measured"])
-    data["extrapolated"] = (_truthy(data["extrapolated"]) if "extrapolated" in data.columns
+    data["measured"] = truthy(data["measured"])
+    data["extrapolated"] = (truthy(data["extrapolated"]) if "extrapolated" in data.columns
                             else False)
     data["strategy"] = data["strategy"].astype(str)
     strategies = sorted(data["strategy"].unique(), key=lambda x: (x != "random", x)) or [""]

@@ -1,9 +1,10 @@
 """What a study folder holds, as typed records: study.json and curves.csv.
 
 The study writes study.json (:func:`semisup.study._info.study_info`) and curves.csv (the
-study's measured points; the plan rewrites it with the fitted ones). Every reader (plan,
-report, final model, labeling rounds) reads them through :class:`StudyRecord` and
-:func:`read_curves` here, by the names the writers use, instead of guessing key aliases.
+study's measured points; the plan keeps its fitted points in a file of its own). Every reader
+(plan, report, final model, labeling rounds) reads them through :class:`StudyRecord` and
+:func:`read_curves` here, by the names the writers use, instead of guessing key aliases; the
+two cell readers below (:func:`as_int`, :func:`truthy`) serve the other files' readers too.
 The names of the files themselves are in :mod:`semisup.study._layout`.
 
 Every field may be unknown (None or empty): a study.json of an earlier release, or one a test
@@ -22,15 +23,17 @@ from typing import Any
 
 import pandas as pd
 
-__all__ = ["CURVE_REQUIRED", "DataFacts", "EvaluationFacts", "StudyRecord", "read_curves",
-           "read_study_record"]
+__all__ = ["CURVE_REQUIRED", "DataFacts", "EvaluationFacts", "StudyRecord", "as_int",
+           "read_curves", "read_study_record", "truthy"]
 
-#: Columns every curves.csv has (the study's and the plan's writers).
+#: Columns every curves.csv has (and a plan's forecast file).
 CURVE_REQUIRED = ("method", "strategy", "metric", "n_labels", "mean", "low", "high",
                   "measured")
 
 
-def _int(value: Any) -> int | None:
+def as_int(value: Any) -> int | None:
+    """A count read from JSON or CSV as an int; None for a missing, non-numeric, infinite or
+    boolean value."""
     if isinstance(value, bool):
         return None
     try:
@@ -38,6 +41,13 @@ def _int(value: Any) -> int | None:
     except (TypeError, ValueError):
         return None
     return int(out) if math.isfinite(out) else None
+
+
+def truthy(series: pd.Series) -> pd.Series:
+    """A boolean column read back from CSV (True / "true" / 1 / "yes")."""
+    if series.dtype == bool:
+        return series
+    return series.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
 
 
 def _block(src: Mapping, name: str) -> Mapping:
@@ -48,7 +58,7 @@ def _block(src: Mapping, name: str) -> Mapping:
 def _counts(value: Any) -> dict[str, int]:
     if not isinstance(value, Mapping):
         return {}
-    out = {str(k): _int(v) for k, v in value.items()}
+    out = {str(k): as_int(v) for k, v in value.items()}
     return {k: v for k, v in out.items() if v is not None and v >= 0}
 
 
@@ -71,8 +81,8 @@ class DataFacts:
         return cls(
             source=None if d.get("source") is None else str(d["source"]),
             sha256=None if not d.get("sha256") else str(d["sha256"]),
-            n_rows=_int(d.get("n_rows")), n_labeled=_int(d.get("n_labeled")),
-            n_unlabeled=_int(d.get("n_unlabeled")), n_features=_int(d.get("n_features")),
+            n_rows=as_int(d.get("n_rows")), n_labeled=as_int(d.get("n_labeled")),
+            n_unlabeled=as_int(d.get("n_unlabeled")), n_features=as_int(d.get("n_features")),
             class_names=tuple(str(c) for c in names) if isinstance(names, list) else (),
             class_counts=_counts(d.get("class_counts")),
         )
@@ -105,13 +115,14 @@ class EvaluationFacts:
         shared = d.get("shared_across_repeats")
         return cls(
             protocol=None if d.get("protocol") is None else str(d["protocol"]),
-            folds=_int(d.get("folds")), cycles=_int(d.get("cycles")),
+            folds=as_int(d.get("folds")), cycles=as_int(d.get("cycles")),
             shared_across_repeats=shared if isinstance(shared, bool) else None,
-            n_labeled=_int(d.get("n_labeled")), n_rows_evaluated=_int(d.get("n_rows_evaluated")),
-            n_eval_min=_int(d.get("n_eval_min")), n_eval_max=_int(d.get("n_eval_max")),
-            n_pool_min=_int(d.get("n_pool_min")), n_pool_max=_int(d.get("n_pool_max")),
+            n_labeled=as_int(d.get("n_labeled")),
+            n_rows_evaluated=as_int(d.get("n_rows_evaluated")),
+            n_eval_min=as_int(d.get("n_eval_min")), n_eval_max=as_int(d.get("n_eval_max")),
+            n_pool_min=as_int(d.get("n_pool_min")), n_pool_max=as_int(d.get("n_pool_max")),
             n_repeats=len(per_repeat) if isinstance(per_repeat, list) and per_repeat else None,
-            n_round_rows=_int(d.get("n_round_rows")) or 0,
+            n_round_rows=as_int(d.get("n_round_rows")) or 0,
             raw=dict(d),
         )
 
@@ -151,9 +162,9 @@ class StudyRecord:
             fingerprint=None if not d.get("fingerprint") else str(d["fingerprint"]),
             data=DataFacts.from_dict(_block(d, "data")),
             evaluation=EvaluationFacts.from_dict(evaluation) if evaluation else None,
-            holdout_rows=_int(_block(d, "holdout").get("n_rows")),
-            pool_rows=_int(_block(d, "pool").get("n_rows")),
-            budgets=tuple(b for b in (_int(v) for v in budgets) if b is not None),
+            holdout_rows=as_int(_block(d, "holdout").get("n_rows")),
+            pool_rows=as_int(_block(d, "pool").get("n_rows")),
+            budgets=tuple(b for b in (as_int(v) for v in budgets) if b is not None),
             warnings=tuple(str(w) for w in warnings) if isinstance(warnings, list) else (),
             protocol=tuple(str(p) for p in protocol) if isinstance(protocol, list) else (),
             representation={str(k): dict(v) for k, v in diag.items() if isinstance(v, Mapping)},
@@ -164,7 +175,7 @@ class StudyRecord:
 
     @property
     def seed(self) -> int | None:
-        return _int(self.spec.get("seed"))
+        return as_int(self.spec.get("seed"))
 
 
 def read_study_record(path: str | os.PathLike[str], error: type[Exception]) -> StudyRecord:
@@ -197,10 +208,7 @@ def read_curves(path: str | os.PathLike[str], error: type[Exception]) -> pd.Data
         raise error(f"{path} cannot be read as CSV ({exc}); write it again") from None
     if not set(CURVE_REQUIRED) <= set(curves.columns):
         return None
-    measured = curves["measured"]
-    if measured.dtype != bool:
-        measured = measured.astype(str).str.strip().str.lower().isin(("true", "1", "yes"))
-    curves["measured"] = measured
+    curves["measured"] = truthy(curves["measured"])
     for col in ("method", "strategy", "metric"):
         curves[col] = curves[col].astype(str)
     for col in ("mean", "low", "high"):
