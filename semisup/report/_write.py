@@ -429,18 +429,10 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str,
     options = list(plan.get("options") or [])
     chosen = plan.get("chosen") or {}
     key = (chosen.get("method"), chosen.get("strategy"), chosen.get("n_labels"))
-    confidence = float(plan.get("confidence") or 0)
-
-    def reaches(o: Mapping) -> bool:
-        return float(o.get("probability") or 0) >= confidence
-
-    # Options that reach the target with the asked confidence, cheapest first; then those
-    # that buy labels, most likely first; last the budgets already owned (the order of
-    # plan.json, semisup.plan.order_options; re-sorted here for older plan files).
-    options.sort(key=lambda o: (0 if reaches(o) else (1 if (o.get("n_new") or 0) > 0 else 2),
-                                float(o.get("cost") or 0) if reaches(o)
-                                else -float(o.get("probability") or 0),
-                                o.get("n_labels") or 0))
+    # In plan.json's order (semisup.plan.order_options): what reaches the target, cheapest
+    # first; then what buys labels, most likely first; last the budgets already owned. A plan
+    # file without that order (an older release) records no study state and is shown stale,
+    # above, never here.
     rows, hl = [], set()
     for i, o in enumerate(options[:_MAX_OPTIONS]):
         p = o.get("predicted") or {}
