@@ -118,6 +118,12 @@ def _seen_unlabeled_digest(ctx: CellContext, fold: int, memo: dict) -> str:
     return memo[fold]
 
 
+def _draw(ctx: CellContext, cell: Cell, fold: int) -> np.ndarray:
+    """The cell's training rows: the first ``n_labels`` of its repeat's acquisition order into
+    the fold's pool (what :func:`run_cell` trains on and :func:`cell_key` hashes)."""
+    return ctx.pools[fold][ctx.orders[(cell.strategy, cell.repeat)][: cell.n_labels]]
+
+
 def cell_key(ctx: CellContext, cell: Cell, representation_key: str,
              class_names: list[str], memo: dict | None = None) -> str:
     """A digest of everything the cell's numbers depend on.
@@ -133,7 +139,7 @@ def cell_key(ctx: CellContext, cell: Cell, representation_key: str,
     fold = ctx.repeat_fold[cell.repeat]
     method = ctx.methods[cell.method]
     seed = cell_seed(ctx.seed, cell)
-    draw = ctx.pools[fold][ctx.orders[(cell.strategy, cell.repeat)][: cell.n_labels]]
+    draw = _draw(ctx, cell, fold)
     eval_idx = ctx.evals[fold]
     h = hashlib.sha256()
     h.update(json.dumps([CELL_CODE_VERSION, _method_identity(method), representation_key,
@@ -179,8 +185,7 @@ def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
         # the repeat's own draw of the unsupervised stage (study/_representations.py)
         X = ctx.features.get(repeat_key(method.representation, cell.repeat),
                              ctx.features[method.representation])
-        order = ctx.orders[(cell.strategy, cell.repeat)]
-        draw = ctx.pools[fold][order[: cell.n_labels]]
+        draw = _draw(ctx, cell, fold)
         X_lab, y_lab = X[draw], ctx.y[draw]
         if method.semi_supervised:
             unl = _unlabeled_rows(ctx, fold, draw, seed)
