@@ -13,11 +13,10 @@ from __future__ import annotations
 
 from typing import ClassVar
 
-import numpy as np
-
 from ._base import PartiallyLabeledClassifier
 from ._classic import KNNLabelSpreading
 from ._m2 import M2Classifier
+from ._proba import align_proba
 from ._spec import Variant, register_variants
 
 __all__ = ["M2SpreadingBlend"]
@@ -93,12 +92,9 @@ class M2SpreadingBlend(PartiallyLabeledClassifier):
     def _proba_encoded(self, X):
         w = float(self.m2_weight)
         k = self.classes_.size
-        parts = []
-        for model in (self.m2_, self.spreading_):
-            proba = np.zeros((X.shape[0], k))
-            proba[:, model.classes_.astype(int)] = model.predict_proba(X)
-            parts.append(proba)
-        return w * parts[0] + (1.0 - w) * parts[1]
+        m2, spreading = (align_proba(model.predict_proba(X), model.classes_.astype(int), k)
+                         for model in (self.m2_, self.spreading_))
+        return w * m2 + (1.0 - w) * spreading
 
 
 register_variants(
