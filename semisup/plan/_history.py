@@ -159,18 +159,15 @@ def list_plans(study_dir: str | Path) -> list[dict]:
 
 
 def read_forecast(study_dir: str | Path, plan: Mapping | None) -> pd.DataFrame | None:
-    """The forecast points of ``plan`` (its ``forecast_file``), or None when absent."""
+    """The forecast points of ``plan`` (its ``forecast_file``, read and typed as curves.csv
+    is), or None when absent."""
+    from ..study._folder import read_curves
+
     name = (plan or {}).get("forecast_file") if isinstance(plan, Mapping) else None
     if not name:
         return None
-    path = Path(study_dir) / str(name)
-    if not path.is_file():
-        return None
-    try:
-        return pd.read_csv(path)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise PlanError(f"{path} cannot be read as CSV ({exc}); run 'semisup plan' "
-                        "again") from None
+    return read_curves(Path(study_dir) / str(name), PlanError,
+                       fix="run 'semisup plan' again")
 
 
 def read_measured(study_dir: str | Path) -> pd.DataFrame | None:

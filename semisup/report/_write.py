@@ -96,10 +96,6 @@ def _curves_table(study_dir: Path, plan: Mapping | None) -> pd.DataFrame | None:
     if measured is not None:
         parts.append(measured)
     if forecast is not None and not forecast.empty:
-        forecast = forecast.copy()
-        forecast["measured"] = False
-        for c in ("method", "strategy", "metric"):
-            forecast[c] = forecast[c].astype(str)
         parts.append(forecast)
     if not parts:
         return None

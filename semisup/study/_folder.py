@@ -195,17 +195,19 @@ def read_study_record(path: str | os.PathLike[str], error: type[Exception]) -> S
     return StudyRecord.from_dict(data)
 
 
-def read_curves(path: str | os.PathLike[str], error: type[Exception]) -> pd.DataFrame | None:
-    """curves.csv, typed: ``measured`` as bool, names as text, numbers as floats (budgets as
-    int); None when the file is absent or lacks a column of :data:`CURVE_REQUIRED` (a file
-    of another program); a file that is not CSV is one ``error`` line."""
+def read_curves(path: str | os.PathLike[str], error: type[Exception], *,
+                fix: str = "write it again") -> pd.DataFrame | None:
+    """curves.csv (or a plan's forecast file, which has its columns), typed: ``measured`` as
+    bool, names as text, numbers as floats (budgets as int); None when the file is absent or
+    lacks a column of :data:`CURVE_REQUIRED` (a file of another program); a file that is not
+    CSV is one ``error`` line ending in ``fix``."""
     path = Path(path)
     if not path.is_file():
         return None
     try:
         curves = pd.read_csv(path)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise error(f"{path} cannot be read as CSV ({exc}); write it again") from None
+        raise error(f"{path} cannot be read as CSV ({exc}); {fix}") from None
     if not set(CURVE_REQUIRED) <= set(curves.columns):
         return None
     curves["measured"] = truthy(curves["measured"])
@@ -216,6 +218,6 @@ def read_curves(path: str | os.PathLike[str], error: type[Exception]) -> pd.Data
     budgets = pd.to_numeric(curves["n_labels"], errors="coerce")
     if budgets.isna().any():
         raise error(f"{path} column 'n_labels' has the value "
-                    f"{curves.loc[budgets.isna(), 'n_labels'].iloc[0]!r}; write it again")
+                    f"{curves.loc[budgets.isna(), 'n_labels'].iloc[0]!r}; {fix}")
     curves["n_labels"] = budgets.astype(int)
     return curves
