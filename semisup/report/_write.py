@@ -103,8 +103,9 @@ def _curves_table(study_dir: Path, plan: Mapping | None) -> pd.DataFrame | None:
 
 
 def _measured_level(curves: pd.DataFrame | None, plan: Mapping | None) -> float:
-    """Coverage of the measured points' intervals: curves.csv's own column (the plan writes
-    it), else the level the study's summarize_curves uses by default."""
+    """Coverage of the measured points' intervals: an ``interval`` column on the measured rows
+    where a file has one, else the level the study writes them at (summarize_curves'
+    default; the study's curves.csv has no such column)."""
     if curves is not None and "interval" in curves.columns:
         vals = pd.to_numeric(curves.loc[curves["measured"], "interval"], errors="coerce")
         vals = vals.dropna()
