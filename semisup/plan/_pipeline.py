@@ -29,17 +29,23 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+from scipy.stats import norm
 
 from .._seeding import derive_seed
 from ._bootstrap import CurveBand, band_from_samples, small_sample_factor
 from ._calibrate import Calibration, calibrate, calibrated_samples, ratio_table
 from ._choose import Option, budget_grid, curve_options
+from ._continuation import ContinuationPrior, continue_curve, load_prior, summarize_curve
 from ._curves import MAX_EXTRAPOLATION
 from ._ensemble import combine, ensemble_records, pool_errors
 from ._forecast import CurveModel, forecast_band, prepare_curve, weigh_curve
 from ._honest import shrink_toward_mean
 
 __all__ = ["SHOW_MULTIPLES", "Forecasts", "forecast_all"]
+
+#: The normal quantile of a two-sided 90% interval: the continuation prior's ``scale`` is set
+#: for that coverage.
+_Z90 = float(norm.ppf(0.95))
 
 #: Multiples of the largest measured budget every curve lists as options.
 SHOW_MULTIPLES = (1.5, 2, 3, 4)
@@ -60,6 +66,10 @@ class Forecasts:
     displays: dict[tuple[str, str, str], np.ndarray] = field(default_factory=dict)
     shrinkage: dict[tuple[str, str], dict[int, float]] = field(default_factory=dict)
     warnings: list[str] = field(default_factory=list)
+    #: per (method, strategy, metric) continued by the corpus prior: its level and slope
+    continued: dict[tuple[str, str, str], dict] = field(default_factory=dict)
+    #: the prior of the plan's metric (None when the fitted families extrapolate)
+    prior: ContinuationPrior | None = None
 
 
 def _grid(levels: np.ndarray, extra: Iterable[float]) -> tuple[np.ndarray, np.ndarray]:
@@ -104,16 +114,41 @@ def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: i
     return base
 
 
+def _continue(band: CurveBand, own_var: np.ndarray, n: np.ndarray, metric: np.ndarray,
+              prior: ContinuationPrior, *, eval_rows: float | None, seed: int
+              ) -> tuple[CurveBand, np.ndarray, dict]:
+    """Replace the band from the largest measured budget on by the corpus's continuation
+    (``_continuation``): its mean, and samples from one normal draw per resample scaled so
+    that the interval is the prior's (``scale * sd`` either side). ``own_var`` there becomes
+    the measurement noise of the curve's level, what the winner's-curse step shrinks by."""
+    summary = summarize_curve(n, metric, eval_rows=eval_rows)
+    beyond = band.grid >= summary.n_max * (1 - 1e-9)
+    u = np.log2(band.grid[beyond] / summary.n_max)
+    mean, sd, scale = continue_curve(summary, prior, u)
+    eff = sd * scale / _Z90
+    z = np.random.default_rng(seed).standard_normal((band.samples.shape[0], 1))
+    point, samples = band.point.copy(), band.samples.copy()
+    point[beyond] = 1.0 - mean
+    samples[:, beyond] = 1.0 - (mean + eff * z)
+    own = own_var.copy()
+    own[beyond] = summary.last_se ** 2
+    info = {"last": summary.last, "last_se": summary.last_se, "slope": summary.slope,
+            "slope_se": summary.slope_se}
+    return (band_from_samples(band.fit, band.grid, point, samples, band.interval,
+                              band.n_failed), own, info)
+
+
 def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str,
             measured: dict[tuple[str, str], float]) -> tuple[dict, dict]:
-    """James-Stein shrinkage across the methods of each strategy.
+    """James-Stein shrinkage of the methods' levels, per strategy (the winner's curse).
 
     The factor of each method is fitted where the study measured: at the largest budget
     every method of the strategy measured, from the methods' predictions and own variances
-    there. At every budget of the common grid the method's deviation from the methods' mean
-    is then multiplied by that factor. (The selection bias comes from the noise of what was
-    measured; the extra spread of the extrapolation is the calibration's business and would,
-    per budget, shrink methods that clearly differ where measured into one.)
+    there. The method's deviation from the methods' mean THERE is multiplied by that factor,
+    and the same shift moves its whole curve: each method keeps its own shape (its slope and
+    flattening), only its level is pulled toward the others by as much as the noise of what
+    was measured warrants. (Shrinking the deviation at every budget, as an earlier version
+    did, merged methods whose curves truly part further out into one curve.)
     """
     factors: dict[tuple[str, str], dict[int, float]] = {k: {} for k in keys}
     strategies = sorted({s for _, s in keys})
@@ -132,10 +167,10 @@ def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str
         mu = np.array([bands[(*k, metric)].point[idx[k]] for k in ks])        # (K, G)
         a = int(np.searchsorted(common_arr, anchor))
         _, fac, _ = shrink_toward_mean(mu[:, a], np.array([own_var[k][idx[k][a]] for k in ks]))
-        grand = mu.mean(axis=0)
+        grand = mu[:, a].mean()
         for i, k in enumerate(ks):
-            shift = np.zeros_like(bands[(*k, metric)].point)
-            shift[idx[k]] = (grand + fac[i] * (mu[i] - grand)) - mu[i]
+            level = (fac[i] - 1.0) * (mu[i, a] - grand)
+            shift = np.full_like(bands[(*k, metric)].point, level)
             factors[k] = {int(n): float(fac[i]) for n in common_arr}
             b = bands[(*k, metric)]
             bands[(*k, metric)] = band_from_samples(
@@ -156,13 +191,22 @@ def forecast_all(
     eval_floor_rows: int | None = None,
     labels_owned: int,
     option_args: dict,
+    prior: ContinuationPrior | None | str = "shipped",
 ) -> Forecasts:
     """Forecast every (method, strategy) curve of ``cells`` for ``metric`` (and the
     report-only ``metrics``), and list the options of the plan's metric.
 
     ``option_args`` are the keyword arguments of ``curve_options`` other than the band,
-    method, strategy and ``show``.
+    method, strategy and ``show``. ``prior``: how curves continue beyond their largest
+    measured budget, learned from real curves (``_continuation``); ``"shipped"`` reads the
+    package's prior of each metric, None keeps the fitted families' extrapolation.
     """
+    def prior_of(m: str) -> ContinuationPrior | None:
+        if isinstance(prior, str):
+            return load_prior(m)
+        return prior if m == metric else None
+    level_rows = eval_floor_rows or eval_rows
+    continued: dict[tuple[str, str, str], dict] = {}
     groups = {k: g for k, g in cells.groupby(["method", "strategy"], sort=True)}
     keys = [k for k, g in groups.items() if g[metric].notna().any()]
     models: dict[tuple[str, str], CurveModel] = {}
@@ -201,6 +245,13 @@ def forecast_all(
                                                    metric),
                                   interval=interval, eval_rows=eval_rows,
                                   eval_floor_rows=eval_floor_rows)
+        p = prior_of(metric)
+        if p is not None:
+            sub = groups[k][groups[k][metric].notna()]
+            band, var, continued[(*k, metric)] = _continue(
+                band, var, sub["n_labels"].to_numpy(float), sub[metric].to_numpy(float), p,
+                eval_rows=level_rows,
+                seed=derive_seed(seed, "plan", "continuation", k[0], k[1], metric))
         bands[(*k, metric)], own_var[k], displays[(*k, metric)] = band, var, display
     bands, factors = _shrink(bands, own_var, keys, metric,
                              {k: float(m.levels[-1]) for k, m in models.items()})
@@ -224,6 +275,12 @@ def forecast_all(
                                                      other),
                                     interval=interval, eval_rows=eval_rows,
                                     eval_floor_rows=eval_floor_rows)
+            p = prior_of(other)
+            if p is not None:
+                band, _, continued[(*k, other)] = _continue(
+                    band, np.var(band.samples, axis=0), sub["n_labels"].to_numpy(float),
+                    sub[other].to_numpy(float), p, eval_rows=level_rows,
+                    seed=derive_seed(seed, "plan", "continuation", k[0], k[1], other))
             bands[(*k, other)], displays[(*k, other)] = band, display
 
     options: list[Option] = []
@@ -258,4 +315,4 @@ def forecast_all(
         warnings.append(f"intervals are not calibrated: {cal.reason}")
     return Forecasts(bands, models, cal, options, records,
                      ratio_table(raw_records, cal, interval), curve_models, backtest,
-                     displays, factors, warnings)
+                     displays, factors, warnings, continued, prior_of(metric))
