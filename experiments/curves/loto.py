@@ -1,0 +1,269 @@
+"""Leave-one-table-out evaluation of curve forecasts on the corpus (shared by
+``fit_prior.py`` and ``benchmarks/bench_forecast_corpus.py``).
+
+Forecasters predict, for every curve of a simulated user's study, the metric at 1, 1.5, 2, 3
+and 4 times its largest measured budget, with a 90% interval and a probability of meeting a
+target; ``loto_priors`` fits the corpus continuation once per table on the other tables only.
+Plans are the decisions the forecasts lead to at confidence 0.8 for targets set from the
+truth (``targets_for``).
+"""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+
+import numpy as np
+from corpus_io import Curve, UserStudy
+from scipy.stats import norm
+
+from semisup.plan._continuation import continue_curve, fit_prior, summarize_curve
+
+RATIOS = (1.0, 1.5, 2.0, 3.0, 4.0)
+FIT_RATIOS = (1.0, 1.5, 2.0, 3.0, 4.0, 8.0)
+CONFIDENCE = 0.8
+INTERVAL = 0.9
+Z90 = norm.ppf(0.5 + INTERVAL / 2)
+FORECASTERS = ("last", "power", "today", "corpus")
+GOALS = {"mae_2x": 0.8, "mae_4x": 0.7, "cover": (0.85, 0.95), "half_2x": 0.05,
+         "hit": (0.75, 0.9), "budget_ratio": 1.3, "buy_unreachable": 0.05}
+
+
+# ----------------------------------------------------------------- the forecasters
+class Prediction:
+    """Mean, interval and probability of meeting a target at each ratio of one curve."""
+
+    def __init__(self, mean, low, high, prob_fn):
+        self.mean, self.low, self.high = (np.asarray(v, float) for v in (mean, low, high))
+        self.prob = prob_fn          # (ratio index, target) -> probability
+
+    @classmethod
+    def normal(cls, mean, sd, scale):
+        mean, sd, scale = (np.asarray(v, float) for v in (mean, sd, scale))
+        half = scale * sd
+        eff = sd * scale / Z90       # the normal whose 90% interval is +-scale*sd
+
+        def prob(i, t):
+            return float(norm.sf(t, loc=mean[i], scale=max(eff[i], 1e-6)))
+        return cls(mean, mean - half, mean + half, prob)
+
+
+def summary(c: Curve, eval_rows: float):
+    return summarize_curve(c.n, c.metric, eval_rows=eval_rows)
+
+
+def predict_last(c: Curve, eval_rows: float) -> Prediction:
+    s = summary(c, eval_rows)
+    k = len(RATIOS)
+    return Prediction.normal([s.last] * k, [s.last_se] * k, [Z90] * k)
+
+
+def predict_power(c: Curve, eval_rows: float) -> Prediction:
+    from semisup.plan import fit_learning_curve
+
+    s = summary(c, eval_rows)
+    try:
+        fit = fit_learning_curve(c.n, 1 - c.metric, kind="power_law")
+        mean = 1 - fit.predict(np.array(RATIOS) * c.n_max)
+    except Exception:  # a curve a power law cannot fit: flat
+        mean = np.full(len(RATIOS), s.last)
+    return Prediction.normal(mean, [s.last_se] * len(RATIOS), [Z90] * len(RATIOS))
+
+
+def predict_corpus(c: Curve, eval_rows: float, prior) -> Prediction:
+    s = summary(c, eval_rows)
+    mean, sd, scale = continue_curve(s, prior, np.log2(np.array(RATIOS)))
+    return Prediction.normal(mean, sd, scale)
+
+
+def today_forecasts(us: UserStudy, work: Path | None) -> dict[str, Prediction]:
+    """The plan's pre-corpus forecast of every method of one user study (cached in work)."""
+    from semisup.plan import probability_meets
+    from semisup.plan._pipeline import forecast_all
+
+    key = hashlib.sha256(us.cells.to_csv(index=False).encode()).hexdigest()[:16]
+    cache = work / f"today-{us.task}-{us.user}-{key}.npz" if work else None
+    if cache is not None and cache.exists():
+        z = np.load(cache, allow_pickle=False)
+        methods = [str(m) for m in z["methods"]]
+        arr = {m: (z["mean"][i], z["low"][i], z["high"][i], z["samples"][i])
+               for i, m in enumerate(methods)}
+    else:
+        fc = forecast_all(us.cells, "accuracy", ["accuracy"], seed=0, interval=INTERVAL,
+                          n_boot=200, eval_rows=None, eval_floor_rows=us.user,
+                          labels_owned=us.user,
+                          option_args={"target": 0.5, "confidence": CONFIDENCE,
+                                       "label_price": 1.0, "labels_owned": us.user,
+                                       "cost_per_round": 0.0})
+        arr = {}
+        for (method, _s, _m), band in fc.bands.items():
+            n_max = fc.models[(method, _s)].levels[-1]
+            idx = [int(np.argmin(np.abs(band.grid - round(r * n_max)))) for r in RATIOS]
+            arr[method] = (1 - band.point[idx], 1 - band.high[idx], 1 - band.low[idx],
+                           1 - band.samples[:, idx])
+        if cache is not None:
+            methods = sorted(arr)
+            np.savez(cache, methods=np.array(methods),
+                     mean=np.array([arr[m][0] for m in methods]),
+                     low=np.array([arr[m][1] for m in methods]),
+                     high=np.array([arr[m][2] for m in methods]),
+                     samples=np.array([arr[m][3] for m in methods]))
+    out = {}
+    for m, (mean, low, high, samples) in arr.items():
+        def prob(i, t, samples=samples):
+            return float(probability_meets(samples[:, i:i + 1], t)[0])
+        out[m] = Prediction(mean, low, high, prob)
+    return out
+
+
+# ----------------------------------------------------------------- scoring
+def forecast_rows(studies: list[UserStudy], preds: dict) -> list[dict]:
+    rows = []
+    for us in studies:
+        for c in us.curves:
+            for name in FORECASTERS:
+                p = preds[name].get((us.task, us.user, c.method))
+                if p is None:
+                    continue
+                for i, r in enumerate(RATIOS):
+                    if r not in c.truth:
+                        continue
+                    t, _ = c.truth[r]
+                    rows.append({"task": us.task, "forecaster": name, "ratio": r,
+                                 "err": p.mean[i] - t,
+                                 "covered": bool(p.low[i] - 1e-9 <= t <= p.high[i] + 1e-9),
+                                 "half": (p.high[i] - p.low[i]) / 2})
+    return rows
+
+
+def task_mean(rows, f) -> float:
+    by: dict[str, list[float]] = {}
+    for r in rows:
+        by.setdefault(r["task"], []).append(f(r))
+    return float(np.mean([np.mean(v) for v in by.values()])) if by else float("nan")
+
+
+def targets_for(us: UserStudy) -> list[tuple[str, float, float | None]]:
+    """(kind, target, truly cheapest ratio or None) from the truth of the best method."""
+    best = {}
+    for r in RATIOS:
+        vals = [c.truth[r][0] for c in us.curves if r in c.truth]
+        if len(vals) == len(us.curves) and vals:
+            best[r] = max(vals)
+    if 1.0 not in best:
+        return []
+    out = [("owned", best[1.0] - 0.01, 1.0)]
+    prev = best[1.0]
+    for r in (1.5, 2.0, 3.0):
+        if r not in best:
+            break
+        if best[r] - prev >= 0.004:
+            out.append(("buy", (best[r] + prev) / 2, r))
+        prev = max(prev, best[r])
+    top = max(best.values())
+    if max(best) >= 4.0:
+        out.append(("unreachable", top + 0.01, None))
+    return out
+
+
+def decide(us: UserStudy, preds: dict, target: float):
+    """Cheapest (ratio, method) with probability >= CONFIDENCE, or None (do not buy)."""
+    n_max = max(c.n_max for c in us.curves)
+    best = None
+    for c in us.curves:
+        p = preds.get((us.task, us.user, c.method))
+        if p is None:
+            continue
+        for i, r in enumerate(RATIOS):
+            prob = p.prob(i, target)
+            if prob >= CONFIDENCE:
+                cost = max(0.0, r * n_max - us.user)
+                key = (cost, r, -prob)
+                if best is None or key < best[0]:
+                    best = (key, r, c)
+                break
+    return None if best is None else (best[1], best[2])
+
+
+def plan_rows(studies: list[UserStudy], preds: dict) -> list[dict]:
+    rows = []
+    for us in studies:
+        n_max = max(c.n_max for c in us.curves)
+        for kind, t, cheapest in targets_for(us):
+            d = decide(us, preds, t)
+            buy = d is not None and d[0] * n_max > us.user
+            hit = None
+            if d is not None and d[0] in d[1].truth:
+                hit = d[1].truth[d[0]][0] >= t
+            rows.append({"task": us.task, "kind": kind, "buy": buy, "hit": hit,
+                         "chosen": None if d is None else d[0], "cheapest": cheapest})
+    return rows
+
+
+def fit_inputs(studies: list[UserStudy]):
+    """Every curve's summary, truths and their standard errors at ``FIT_RATIOS``, and its
+    table: what ``fit_prior`` takes."""
+    curves = [(us, c) for us in studies for c in us.curves]
+    summ = [summary(c, us.user) for us, c in curves]
+    truth = np.array([[c.truth.get(r, (np.nan, np.nan))[0] for r in FIT_RATIOS]
+                      for _, c in curves])
+    tse = np.array([[c.truth.get(r, (np.nan, np.nan))[1] for r in FIT_RATIOS]
+                    for _, c in curves])
+    return summ, truth, tse, np.array([us.task for us, _ in curves])
+
+
+def loto_priors(studies: list[UserStudy]) -> dict:
+    """Per table: the continuation prior fitted on every OTHER table's curves."""
+    summ, truth, tse, groups = fit_inputs(studies)
+    u_fit = np.log2(np.array(FIT_RATIOS))
+    out = {}
+    for name in sorted(set(groups)):
+        keep = groups != name
+        out[name] = fit_prior([s for s, k in zip(summ, keep, strict=True) if k], u_fit,
+                              truth[keep], tse[keep], groups[keep])
+    return out
+
+
+def all_fit(studies: list[UserStudy], **kw):
+    """The continuation prior fitted on every table (what the package ships)."""
+    summ, truth, tse, groups = fit_inputs(studies)
+    return fit_prior(summ, np.log2(np.array(FIT_RATIOS)), truth, tse, groups, **kw)
+
+
+def forecast_table(rows: list[dict], forecasters) -> dict:
+    """Per forecaster and ratio: MAE, bias, coverage (each table weighs the same), median
+    half-width, and MAE relative to the last-value baseline."""
+    out: dict = {}
+    for r in RATIOS:
+        base = None
+        for f in forecasters:
+            sub = [x for x in rows if x["forecaster"] == f and x["ratio"] == r]
+            if not sub:
+                continue
+            mae = task_mean(sub, lambda x: abs(x["err"]))
+            base = mae if f == "last" else base
+            out[(f, r)] = {"mae": mae, "bias": task_mean(sub, lambda x: x["err"]),
+                           "coverage": task_mean(sub, lambda x: float(x["covered"])),
+                           "half": float(np.median([x["half"] for x in sub])),
+                           "rel_last": mae / base if base else float("nan"),
+                           "n": len(sub)}
+    return out
+
+
+def plan_summary(studies: list[UserStudy], preds: dict) -> dict:
+    """Decisions at the truth's targets: hits of buy decisions, chosen / cheapest budget,
+    buy for unreachable targets, do-not-buy for targets that need a purchase."""
+    pr = plan_rows(studies, preds)
+    buys = [x for x in pr if x["buy"] and x["hit"] is not None and x["kind"] != "unreachable"]
+    ratio = [x["chosen"] / x["cheapest"] for x in pr
+             if x["kind"] in ("buy", "owned") and x["chosen"] is not None]
+    unre = [x for x in pr if x["kind"] == "unreachable"]
+    reach = [x for x in pr if x["kind"] == "buy"]
+    return {"decisions": len(pr), "buys": len(buys),
+            "hit": float(np.mean([x["hit"] for x in buys])) if buys else float("nan"),
+            "budget_ratio": float(np.median(ratio)) if ratio else float("nan"),
+            "buy_unreachable": float(np.mean([x["buy"] for x in unre])) if unre
+            else float("nan"), "n_unreachable": len(unre),
+            "no_buy_reachable": float(np.mean([x["chosen"] is None or not x["buy"]
+                                               for x in reach])) if reach else float("nan"),
+            "n_reachable": len(reach)}

@@ -1,0 +1,169 @@
+"""The corpus continuation of learning curves and the level-only winner's-curse step, each
+checked against an outside reference (scipy, statsmodels) or a real curve of the corpus."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from scipy import stats
+
+from semisup.plan._bootstrap import band_from_samples
+from semisup.plan._continuation import (
+    ContinuationPrior,
+    CurveSummary,
+    continue_curve,
+    fit_prior,
+    load_prior,
+    summarize_curve,
+)
+from semisup.plan._curves import fit_learning_curve
+from semisup.plan._honest import shrink_toward_mean
+from semisup.plan._pipeline import _shrink, forecast_all
+
+ROOT = Path(__file__).resolve().parents[1]
+CORPUS = ROOT / "experiments" / "curves" / "corpus"
+
+
+def _real_curve():
+    """supervised-logreg of the 200-label simulated user on scikit-learn's breast cancer
+    table (a real curve of the corpus, experiments/curves)."""
+    task = json.loads((CORPUS / "breast_cancer.json").read_text())
+    user = next(u for u in task["users"] if u["n_labeled"] == 200)
+    cells = pd.DataFrame(user["cells"])
+    return cells[cells["status"] == "ok"]
+
+
+def test_summary_slope_and_se_match_scipy():
+    cells = _real_curve()
+    c = cells[cells["method"] == "supervised-logreg"]
+    s = summarize_curve(c["n_labels"], c["accuracy"])
+    levels = np.sort(c["n_labels"].unique())
+    top = levels[-3:]
+    means = [c.loc[c["n_labels"] == b, "accuracy"].mean() for b in top]
+    # equal repeats per budget: the weighted slope is scipy's ordinary regression slope
+    # of the means on log2(budget) (scipy.stats.linregress)
+    assert s.slope == pytest.approx(stats.linregress(np.log2(top), means).slope, abs=1e-12)
+    last = c.loc[c["n_labels"] == levels[-1], "accuracy"]
+    # the standard error of the mean of the repeats (scipy.stats.sem)
+    assert s.last_se == pytest.approx(max(stats.sem(last), 0.004), abs=1e-12)
+    assert s.n_max == levels[-1] and s.last == pytest.approx(last.mean())
+
+
+def test_summary_binomial_floor():
+    # every repeat equal: the binomial error of the evaluated rows is the floor,
+    # sqrt(p (1 - p) / n) (the binomial standard error, from memory)
+    s = summarize_curve([10, 10, 20, 20], [0.8, 0.8, 0.9, 0.9], eval_rows=100)
+    assert s.last_se == pytest.approx(np.sqrt(0.9 * 0.1 / 100))
+
+
+def test_fit_prior_is_weighted_least_squares():
+    rng = np.random.default_rng(0)
+    n = 60
+    groups = np.repeat([f"t{i}" for i in range(20)], 3)
+    slope = rng.uniform(0, 0.05, n)
+    last = rng.uniform(0.6, 0.9, n)
+    summ = [CurveSummary(100.0, float(a), 0.01, float(b), 0.005, 6)
+            for a, b in zip(last, slope, strict=True)]
+    truth = np.column_stack([last + 0.01 + 0.5 * slope + rng.normal(0, 0.01, n),
+                             last + 0.02 + 1.2 * slope + rng.normal(0, 0.02, n)])
+    prior = fit_prior(summ, [0.0, 1.0], truth, np.full_like(truth, 0.005), groups,
+                      ridge=0.0)
+    for j in range(2):
+        # statsmodels WLS with each table's curves weighing 1 in all (statsmodels docs)
+        res = sm.WLS(truth[:, j] - last, sm.add_constant(slope), weights=np.full(n, 1 / 3)).fit()
+        assert prior.shift[j] == pytest.approx(res.params[0], abs=1e-10)
+        assert prior.gain[j] == pytest.approx(res.params[1], abs=1e-10)
+    # the 90% scale of standardised errors that are normal is near the normal quantile
+    # 1.645 (scipy.stats.norm.ppf(0.95)); 60 curves know it to about +-0.3
+    assert abs(prior.scale[1] - stats.norm.ppf(0.95)) < 0.45
+    # extra spread: residual variance less the noise the curves already carry
+    assert 0.0 <= prior.spread[0] < prior.spread[1]
+
+
+def test_continue_curve_formula_and_interpolation():
+    prior = ContinuationPrior((0.0, 1.0, 2.0), (0.01, 0.02, 0.03), (0.2, 0.8, 1.2),
+                              (0.01, 0.02, 0.04), (1.6, 1.7, 1.9), 10, 30)
+    s = CurveSummary(200.0, 0.8, 0.01, 0.02, 0.01, 6)
+    mean, sd, scale = continue_curve(s, prior, np.array([0.0, 0.5, 2.0, 3.0]))
+    assert mean[0] == pytest.approx(0.8 + 0.01 + 0.2 * 0.02)
+    assert mean[1] == pytest.approx(0.8 + 0.015 + 0.5 * 0.02)
+    assert mean[3] == pytest.approx(mean[2])          # held constant beyond the fitted ratios
+    assert sd[2] == pytest.approx(np.sqrt(0.04 ** 2 + 0.01 ** 2 + (1.2 * 0.01) ** 2))
+    assert scale[1] == pytest.approx(1.65)
+
+
+def test_load_prior_reads_metric_and_refuses_ragged():
+    p = ContinuationPrior((0.0, 1.0), (0.0, 0.01), (0.5, 1.0), (0.0, 0.01), (1.6, 1.7), 5, 9)
+    text = json.dumps({"metrics": {"accuracy": p.to_dict()}})
+    assert load_prior("accuracy", text) == p
+    assert load_prior("macro_f1", text) is None
+    bad = p.to_dict()
+    bad["gain"] = [1.0]
+    with pytest.raises(ValueError, match="equally long"):
+        load_prior("accuracy", json.dumps({"metrics": {"accuracy": bad}}))
+
+
+def test_shipped_prior_is_readable():
+    prior = load_prior("accuracy")
+    if prior is None:
+        pytest.skip("no continuation prior shipped yet")
+    assert prior.n_tasks >= 4 and len(prior.u) >= 4
+    assert all(s >= 0 for s in prior.spread) and all(q > 0 for q in prior.scale)
+
+
+def test_shrink_moves_levels_not_shapes():
+    # four methods with different slopes; the factors must be those of
+    # shrink_toward_mean (checked on Efron & Morris' batting averages elsewhere) at the
+    # anchor, and each method's curve must keep its own shape
+    grid = np.array([50.0, 100.0, 200.0, 400.0])
+    err = {"a": [0.30, 0.25, 0.22, 0.20], "b": [0.31, 0.24, 0.18, 0.13],
+           "c": [0.29, 0.26, 0.25, 0.25], "d": [0.32, 0.27, 0.21, 0.16]}
+    fit = fit_learning_curve(np.repeat(grid[:2], 3), np.repeat([0.3, 0.25], 3))
+    bands, own = {}, {}
+    for m, e in err.items():
+        point = np.array(e)
+        bands[(m, "random", "accuracy")] = band_from_samples(
+            fit, grid, point, np.tile(point, (20, 1)), 0.9)
+        own[(m, "random")] = np.full(4, 0.02 ** 2)
+    keys = [(m, "random") for m in err]
+    before = {k: bands[(*k, "accuracy")].point.copy() for k in keys}
+    out, factors = _shrink(bands, own, keys, "accuracy", {k: 100.0 for k in keys})
+    mu = np.array([before[k][1] for k in keys])
+    expect, fac, _ = shrink_toward_mean(mu, np.full(4, 0.02 ** 2))
+    for i, k in enumerate(keys):
+        after = out[(*k, "accuracy")].point
+        assert after[1] == pytest.approx(expect[i])
+        assert np.diff(after) == pytest.approx(np.diff(before[k]))
+        assert factors[k][100] == pytest.approx(fac[i])
+    # the methods stay apart where their curves part (the collapse this replaced)
+    spread = np.std([out[(*k, "accuracy")].point[-1] for k in keys])
+    assert spread > 0.02
+
+
+@pytest.mark.slow
+def test_forecast_all_with_prior_on_a_real_curve():
+    cells = _real_curve().assign(strategy="random")
+    prior = ContinuationPrior((0.0, 1.0, 2.0), (-0.01, 0.0, 0.005), (0.3, 0.8, 1.2),
+                              (0.01, 0.015, 0.02), (1.645, 1.645, 1.645), 10, 30)
+    kw = dict(seed=0, interval=0.9, n_boot=60, eval_rows=None, eval_floor_rows=200,
+              labels_owned=200, option_args={"target": 0.95, "confidence": 0.8,
+                                             "label_price": 1.0, "labels_owned": 200,
+                                             "cost_per_round": 0.0})
+    fc = forecast_all(cells, "accuracy", ["accuracy"], prior=prior, **kw)
+    key = ("supervised-logreg", "random", "accuracy")
+    band = fc.bands[key]
+    c = cells[cells["method"] == "supervised-logreg"]
+    s = summarize_curve(c["n_labels"], c["accuracy"], eval_rows=200)
+    j = int(np.argmin(np.abs(band.grid - 2 * s.n_max)))
+    mean, sd, _ = continue_curve(s, prior, np.log2([band.grid[j] / s.n_max]))
+    shrink = band.point[j] - (1 - mean[0])   # the level-only shrinkage moves it, no more
+    assert abs(shrink) < 0.03
+    # its interval is the prior's: +-1.645 sd around the mean, by the normal quantiles
+    half = (band.high[j] - band.low[j]) / 2
+    assert half == pytest.approx(stats.norm.ppf(0.95) * sd[0], rel=0.35)
+    assert key in fc.continued and fc.prior is prior
