@@ -167,3 +167,17 @@ def test_forecast_all_with_prior_on_a_real_curve():
     half = (band.high[j] - band.low[j]) / 2
     assert half == pytest.approx(stats.norm.ppf(0.95) * sd[0], rel=0.35)
     assert key in fc.continued and fc.prior is prior
+
+
+def test_track_sentence_picks_nearest_ratio():
+    from semisup.plan._continuation import track_sentence
+
+    track = {"1": {"mae": 0.02, "mae_last": 0.02, "coverage": 0.9},
+             "2": {"mae": 0.025, "mae_last": 0.031, "coverage": 0.88},
+             "4": {"mae": 0.03, "mae_last": 0.04, "coverage": 0.86}}
+    p = ContinuationPrior((0.0, 1.0, 2.0), (0, 0, 0), (0, 0, 0), (0, 0, 0), (1.6, 1.6, 1.6),
+                          42, 300, track)
+    text = track_sentence(p, 2.3)
+    assert "42 real tables" in text and "0.025" in text and "0.031" in text and "88%" in text
+    assert "4 times" in track_sentence(p, 3.5)
+    assert track_sentence(ContinuationPrior((0.0,), (0,), (0,), (0,), (1.6,), 1, 1), 2) == ""

@@ -43,6 +43,7 @@ __all__ = [
     "fit_prior",
     "load_prior",
     "summarize_curve",
+    "track_sentence",
 ]
 
 #: The prior shipped with the package (written by experiments/curves/fit_prior.py).
@@ -239,3 +240,20 @@ def load_prior(metric: str, text: str | None = None) -> ContinuationPrior | None
             return None
     table = json.loads(text).get("metrics", {})
     return ContinuationPrior.from_dict(table[metric]) if metric in table else None
+
+
+def track_sentence(prior: ContinuationPrior, ratio: float) -> str:
+    """One sentence on how this kind of forecast held up on the corpus at the extrapolation
+    ratio nearest ``ratio`` (each table left out of the fit it was judged by); "" when the
+    prior carries no record."""
+    if not prior.track or ratio is None or not np.isfinite(ratio):
+        return ""
+    keys = sorted(prior.track, key=lambda k: abs(np.log2(float(k)) - np.log2(max(ratio, 1.0))))
+    r = keys[0]
+    t = prior.track[r]
+    where = ("at the largest budget measured" if float(r) == 1.0
+             else f"at {float(r):g} times the largest budget measured")
+    return (f"Track record: on {prior.n_tasks} real tables, each left out of the fit it was "
+            f"judged by, forecasts like this one {where} were off by {t['mae']:.3f} on "
+            f"average (assuming the curve stays flat: {t['mae_last']:.3f}), and their 90% "
+            f"intervals held the truth {t['coverage']:.0%} of the time.")
