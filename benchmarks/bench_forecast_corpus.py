@@ -52,11 +52,11 @@ from loto import (  # noqa: E402
     FORECASTERS,
     GOALS,
     RATIOS,
+    corpus_forecasts,
     forecast_rows,
     forecast_table,
     loto_priors,
     plan_summary,
-    predict_corpus,
     predict_last,
     predict_power,
     today_forecasts,
@@ -85,7 +85,8 @@ def main() -> int:
             key = (us.task, us.user, c.method)
             preds["last"][key] = predict_last(c, us.user)
             preds["power"][key] = predict_power(c, us.user)
-            preds["corpus"][key] = predict_corpus(c, us.user, priors[us.task])
+        for m, p in corpus_forecasts(us, priors[us.task]).items():
+            preds["corpus"][(us.task, us.user, m)] = p
         if not args.no_today:
             for m, p in today_forecasts(us, args.work).items():
                 preds["today"][(us.task, us.user, m)] = p

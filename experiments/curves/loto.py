@@ -18,6 +18,7 @@ from corpus_io import Curve, UserStudy
 from scipy.stats import norm
 
 from semisup.plan._continuation import continue_curve, fit_prior, summarize_curve
+from semisup.plan._honest import shrink_toward_mean
 
 RATIOS = (1.0, 1.5, 2.0, 3.0, 4.0)
 FIT_RATIOS = (1.0, 1.5, 2.0, 3.0, 4.0, 8.0)
@@ -74,6 +75,25 @@ def predict_corpus(c: Curve, eval_rows: float, prior) -> Prediction:
     s = summary(c, eval_rows)
     mean, sd, scale = continue_curve(s, prior, np.log2(np.array(RATIOS)))
     return Prediction.normal(mean, sd, scale)
+
+
+def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True) -> dict[str, Prediction]:
+    """The package's forecast of every method of one user study: the continuation, then the
+    winner's-curse step of ``semisup.plan._pipeline._shrink`` (each method's level at the
+    largest budget shrunk toward the methods' mean by the James-Stein factor of its own
+    noise; the shift moves its whole curve)."""
+    u = np.log2(np.array(RATIOS))
+    summ = {c.method: summary(c, us.user) for c in us.curves}
+    cont = {m: continue_curve(s, prior, u) for m, s in summ.items()}
+    shifts = dict.fromkeys(summ, 0.0)
+    if shrink and len(summ) >= 4:
+        methods = sorted(summ)
+        mu = np.array([cont[m][0][0] for m in methods])
+        shrunk, _, _ = shrink_toward_mean(mu, np.array([summ[m].last_se ** 2
+                                                        for m in methods]))
+        shifts = {m: float(shrunk[i] - mu[i]) for i, m in enumerate(methods)}
+    return {m: Prediction.normal(np.clip(mean + shifts[m], 0, 1), sd, scale)
+            for m, (mean, sd, scale) in cont.items()}
 
 
 def today_forecasts(us: UserStudy, work: Path | None) -> dict[str, Prediction]:

@@ -8,12 +8,15 @@ be worse than assuming the curve stays flat (the corpus in ``experiments/curves`
 Mohr & van Rijn 2024 find the last observed value a strong baseline once several sizes are
 measured). So the continuation is learned from real curves instead:
 
-    metric(r * n_max) - last = shift(u) + gain(u) * slope + error,   u = log2(r),
+    metric(r * n_max) - last = shift(u) + gain(u) * slope + power_gain(u) * rise(u) + error,
 
-where ``last`` is the measured mean at ``n_max``, ``slope`` the measured gain per doubling of
-the budget over the top of the curve (weighted least squares of the per-budget means on
-``log2(budget)``), ``shift(u)`` and ``gain(u)`` are fitted on the corpus per ratio (each task
-weighs the same, whatever its number of curves), and the error has a spread of its own
+with ``u = log2(r)``, where ``last`` is the measured mean at ``n_max``, ``slope`` the measured
+gain per doubling of the budget over the top of the curve (weighted least squares of the
+per-budget means on ``log2(budget)``), ``rise(u)`` what an inverse power law fitted to the
+curve adds from ``n_max`` to ``r * n_max`` (so the corpus learns how far to trust the power
+law, the correction of Jain et al., CVPR 2023), ``shift``, ``gain`` and ``power_gain`` are
+fitted on the corpus per ratio (each task weighs the same, whatever its number of curves;
+a small ridge keeps the gains stable), and the error has a spread of its own
 (``spread(u)``, what the corpus's curves did beyond what the measurement noise explains) plus
 the measurement noise of this study's ``last`` and ``slope``. Intervals use the corpus's own
 standardised errors: ``scale(u)`` is the factor that makes ``mean +- scale * sd`` hold 90% of
@@ -70,6 +73,19 @@ class CurveSummary:
     slope: float
     slope_se: float
     n_levels: int
+    #: (a, b, c) of the inverse power law ``a + b n**-c`` fitted to the error rate, or None
+    power: tuple[float, float, float] | None = None
+
+    def rise(self, u: np.ndarray) -> np.ndarray:
+        """What the fitted power law adds to the metric from ``n_max`` to ``2**u * n_max``
+        (0 without a fit), at most what is left below 1."""
+        u = np.atleast_1d(np.asarray(u, dtype=float))
+        if self.power is None:
+            return np.zeros_like(u)
+        a, b, c = self.power
+        err = a + b * np.power(self.n_max * np.power(2.0, u), -c)
+        gain = (a + b * self.n_max ** -c) - err
+        return np.clip(gain, 0.0, max(1.0 - self.last, 0.0))
 
 
 def summarize_curve(n_labels: np.ndarray, metric: np.ndarray, *,
@@ -110,7 +126,18 @@ def summarize_curve(n_labels: np.ndarray, metric: np.ndarray, *,
         slope_se = float(np.sqrt(s2 / sxx))
     else:
         slope, slope_se = 0.0, 0.0
-    return CurveSummary(float(levels[-1]), last, se, slope, slope_se, int(levels.size))
+    power = None
+    if levels.size >= 3:
+        from ._curves import fit_learning_curve
+
+        try:
+            fit = fit_learning_curve(n_labels, 1.0 - metric, kind="power_law")
+            if fit.kind == "power_law" and np.all(np.isfinite(fit.params)):
+                power = tuple(float(v) for v in fit.params)
+        except Exception:  # noqa: BLE001  (a curve a power law cannot fit has no rise)
+            power = None
+    return CurveSummary(float(levels[-1]), last, se, slope, slope_se, int(levels.size),
+                        power)
 
 
 @dataclass(frozen=True)
@@ -129,13 +156,15 @@ class ContinuationPrior:
     n_curves: int
     track: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
     source: str = ""
+    power_gain: tuple[float, ...] = ()
 
-    def at(self, u: float) -> tuple[float, float, float, float]:
-        """(shift, gain, spread, scale) at ``u``, linear between the fitted ratios and held
-        constant outside them."""
+    def at(self, u: float) -> tuple[float, float, float, float, float]:
+        """(shift, gain, spread, scale, power_gain) at ``u``, linear between the fitted
+        ratios and held constant outside them."""
         us = np.asarray(self.u)
+        pg = self.power_gain or (0.0,) * len(self.u)
         return tuple(float(np.interp(u, us, np.asarray(v)))  # type: ignore[return-value]
-                     for v in (self.shift, self.gain, self.spread, self.scale))
+                     for v in (self.shift, self.gain, self.spread, self.scale, pg))
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -147,10 +176,13 @@ class ContinuationPrior:
         if len(lens) != 1 or not lens.pop():
             raise ValueError("a continuation prior needs equally long, non-empty u, shift, "
                              "gain, spread and scale lists")
+        pg = tuple(float(x) for x in d.get("power_gain") or ())
+        if pg and len(pg) != len(d["u"]):
+            raise ValueError("a continuation prior's power_gain must be as long as u")
         return cls(**{k: tuple(float(x) for x in d[k]) for k in keys},
                    n_tasks=int(d["n_tasks"]), n_curves=int(d["n_curves"]),
                    track={str(k): dict(v) for k, v in dict(d.get("track", {})).items()},
-                   source=str(d.get("source", "")))
+                   source=str(d.get("source", "")), power_gain=pg)
 
 
 def continue_curve(summary: CurveSummary, prior: ContinuationPrior,
@@ -161,16 +193,16 @@ def continue_curve(summary: CurveSummary, prior: ContinuationPrior,
     spread, this curve's measurement noise at ``n_max`` and the slope's noise times the gain.
     """
     u = np.atleast_1d(np.asarray(u, dtype=float))
-    coef = np.array([prior.at(float(x)) for x in u])       # (len(u), 4)
-    shift, gain, spread, scale = coef.T
-    mean = summary.last + shift + gain * summary.slope
+    coef = np.array([prior.at(float(x)) for x in u])       # (len(u), 5)
+    shift, gain, spread, scale, pgain = coef.T
+    mean = summary.last + shift + gain * summary.slope + pgain * summary.rise(u)
     sd = np.sqrt(spread ** 2 + summary.last_se ** 2 + (gain * summary.slope_se) ** 2)
     return np.clip(mean, 0.0, 1.0), sd, scale
 
 
 def _wls(X: np.ndarray, y: np.ndarray, w: np.ndarray, ridge: np.ndarray) -> np.ndarray:
     """Weighted least squares with a ridge penalty per coefficient (0: unpenalised)."""
-    A = X.T @ (w[:, None] * X) + np.diag(ridge)
+    A = X.T @ (w[:, None] * X) + np.diag(np.maximum(ridge, 1e-12))
     return np.linalg.solve(A, X.T @ (w * y))
 
 
@@ -202,7 +234,7 @@ def fit_prior(summaries: Sequence[CurveSummary], u: Sequence[float],
     slope = np.array([s.slope for s in summaries])
     noise2 = np.array([s.last_se ** 2 for s in summaries])
     slope_se2 = np.array([s.slope_se ** 2 for s in summaries])
-    shift, gain, spread, scale = [], [], [], []
+    shift, gain, spread, scale, pgain = [], [], [], [], []
     for j in range(len(u)):
         ok = np.isfinite(truth[:, j])
         if ok.sum() < 3:
@@ -210,9 +242,10 @@ def fit_prior(summaries: Sequence[CurveSummary], u: Sequence[float],
         g = groups[ok]
         _, inv, counts = np.unique(g, return_inverse=True, return_counts=True)
         w = 1.0 / counts[inv]
-        X = np.column_stack([np.ones(ok.sum()), slope[ok]])
+        rise = np.array([cs.rise(u[j])[0] for cs, k in zip(summaries, ok, strict=True) if k])
+        X = np.column_stack([np.ones(ok.sum()), slope[ok], rise])
         y = truth[ok, j] - last[ok]
-        beta = _wls(X, y, w, np.array([0.0, ridge * w.sum()]))
+        beta = _wls(X, y, w, np.array([0.0, ridge * w.sum(), ridge * w.sum()]))
         resid = y - X @ beta
         own = noise2[ok] + beta[1] ** 2 * slope_se2[ok]
         extra = float(np.average(resid ** 2 - own - truth_se[ok, j] ** 2, weights=w))
@@ -223,11 +256,12 @@ def fit_prior(summaries: Sequence[CurveSummary], u: Sequence[float],
         q = float(z[order][min(np.searchsorted(cum, coverage), z.size - 1)])
         shift.append(float(beta[0]))
         gain.append(float(beta[1]))
+        pgain.append(float(beta[2]))
         spread.append(s)
         scale.append(q)
     return ContinuationPrior(tuple(float(x) for x in u), tuple(shift), tuple(gain),
                              tuple(spread), tuple(scale), int(len(np.unique(groups))),
-                             int(len(summaries)), dict(track or {}), source)
+                             int(len(summaries)), dict(track or {}), source, tuple(pgain))
 
 
 def load_prior(metric: str, text: str | None = None) -> ContinuationPrior | None:
