@@ -28,10 +28,10 @@ from corpus_io import CORPUS, load_tasks, user_studies  # noqa: E402
 from loto import (  # noqa: E402
     RATIOS,
     all_fit,
+    corpus_forecasts,
     forecast_rows,
     forecast_table,
     loto_priors,
-    predict_corpus,
     predict_last,
 )
 
@@ -47,7 +47,8 @@ def track_record(studies) -> dict:
         for c in us.curves:
             key = (us.task, us.user, c.method)
             preds["last"][key] = predict_last(c, us.user)
-            preds["corpus"][key] = predict_corpus(c, us.user, priors[us.task])
+        for m, p in corpus_forecasts(us, priors[us.task]).items():
+            preds["corpus"][(us.task, us.user, m)] = p
     table = forecast_table(forecast_rows(studies, preds), ("last", "corpus"))
     out = {}
     for r in RATIOS:
@@ -73,9 +74,11 @@ def main() -> int:
                         source=f"experiments/curves corpus, {len(names)} tables")
         result["metrics"][metric] = prior.to_dict()
         print(f"{metric}: " + ", ".join(
-            f"{2 ** u:g}x shift {a:+.4f} gain {g:.3f} spread {s:.4f} scale {q:.2f}"
-            for u, a, g, s, q in zip(prior.u, prior.shift, prior.gain, prior.spread,
-                                     prior.scale, strict=True)))
+            f"{2 ** u:g}x shift {a:+.4f} gain {g:.3f} power gain {pg:.2f} level gain "
+            f"{lg:.2f} spread {s:.4f} scale {q:.2f}"
+            for u, a, g, pg, lg, s, q in zip(prior.u, prior.shift, prior.gain,
+                                             prior.power_gain, prior.level_gain,
+                                             prior.spread, prior.scale, strict=True)))
         for r, v in prior.track.items():
             print(f"  left-one-table-out at {r}x: MAE {v['mae']:.4f} (last value "
                   f"{v['mae_last']:.4f}), coverage {v['coverage']:.2f}, half-width "

@@ -141,7 +141,7 @@ def forecast_rows(studies: list[UserStudy], preds: dict) -> list[dict]:
     rows = []
     for us in studies:
         for c in us.curves:
-            for name in FORECASTERS:
+            for name in preds:
                 p = preds[name].get((us.task, us.user, c.method))
                 if p is None:
                     continue

@@ -8,23 +8,25 @@ be worse than assuming the curve stays flat (the corpus in ``experiments/curves`
 Mohr & van Rijn 2024 find the last observed value a strong baseline once several sizes are
 measured). So the continuation is learned from real curves instead:
 
-    metric(r * n_max) - last = shift(u) + gain(u) * slope + power_gain(u) * rise(u) + error,
+    metric(r * n_max) - last = shift(u) + gain(u) * slope + power_gain(u) * rise(u)
+                               + level_gain(u) * gap + error,
 
 with ``u = log2(r)``, where ``last`` is the measured mean at ``n_max``, ``slope`` the measured
 gain per doubling of the budget over the top of the curve (weighted least squares of the
 per-budget means on ``log2(budget)``), ``rise(u)`` what an inverse power law fitted to the
 curve adds from ``n_max`` to ``r * n_max`` (so the corpus learns how far to trust the power
-law, the correction of Jain et al., CVPR 2023), ``shift``, ``gain`` and ``power_gain`` are
-fitted on the corpus per ratio (each task weighs the same, whatever its number of curves;
-a small ridge keeps the gains stable), and the error has a spread of its own
+law, the correction of Jain et al., CVPR 2023), ``gap`` the power law's value at ``n_max``
+less ``last`` (the fit smooths the last budget's noise with the other budgets'; the corpus
+learns how much of it to take); the shift and the three gains are fitted on the corpus per
+ratio (each task weighs the same, whatever its number of curves; a small ridge keeps the
+gains stable), and the error has a spread of its own
 (``spread(u)``, what the corpus's curves did beyond what the measurement noise explains) plus
 the measurement noise of this study's ``last`` and ``slope``. Intervals use the corpus's own
 standardised errors: ``scale(u)`` is the factor that makes ``mean +- scale * sd`` hold 90% of
 the corpus's truths (1.645 for normal errors), so heavy tails widen the interval.
 
-``shift(0)`` is the gap between what a study measures at ``n_max`` and what a model trained
-on ``n_max`` labels scores on new rows (the corpus measured it; cross-fitted tuning and the
-selection of the best of several tuning trials make the study's numbers optimistic).
+``shift(0)`` is the average gap between what a study measures at ``n_max`` and what a model
+trained on ``n_max`` labels scores on new rows, as the corpus measured it.
 
 Pure functions and a frozen record; the learned prior is shipped as ``continuation.json``
 beside this module and read by :func:`load_prior`.
@@ -75,6 +77,15 @@ class CurveSummary:
     n_levels: int
     #: (a, b, c) of the inverse power law ``a + b n**-c`` fitted to the error rate, or None
     power: tuple[float, float, float] | None = None
+
+    @property
+    def level_gap(self) -> float:
+        """The fitted power law's metric at ``n_max`` less the measured ``last`` (0 without
+        a fit): the fit smooths the noise of the last budget's repeats with the others."""
+        if self.power is None:
+            return 0.0
+        a, b, c = self.power
+        return float(np.clip(1.0 - (a + b * self.n_max ** -c), 0.0, 1.0) - self.last)
 
     def rise(self, u: np.ndarray) -> np.ndarray:
         """What the fitted power law adds to the metric from ``n_max`` to ``2**u * n_max``
@@ -157,14 +168,16 @@ class ContinuationPrior:
     track: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
     source: str = ""
     power_gain: tuple[float, ...] = ()
+    level_gain: tuple[float, ...] = ()
 
-    def at(self, u: float) -> tuple[float, float, float, float, float]:
-        """(shift, gain, spread, scale, power_gain) at ``u``, linear between the fitted
-        ratios and held constant outside them."""
+    def at(self, u: float) -> tuple[float, ...]:
+        """(shift, gain, spread, scale, power_gain, level_gain) at ``u``, linear between the
+        fitted ratios and held constant outside them."""
         us = np.asarray(self.u)
-        pg = self.power_gain or (0.0,) * len(self.u)
-        return tuple(float(np.interp(u, us, np.asarray(v)))  # type: ignore[return-value]
-                     for v in (self.shift, self.gain, self.spread, self.scale, pg))
+        zero = (0.0,) * len(self.u)
+        return tuple(float(np.interp(u, us, np.asarray(v)))
+                     for v in (self.shift, self.gain, self.spread, self.scale,
+                               self.power_gain or zero, self.level_gain or zero))
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -176,13 +189,15 @@ class ContinuationPrior:
         if len(lens) != 1 or not lens.pop():
             raise ValueError("a continuation prior needs equally long, non-empty u, shift, "
                              "gain, spread and scale lists")
-        pg = tuple(float(x) for x in d.get("power_gain") or ())
-        if pg and len(pg) != len(d["u"]):
-            raise ValueError("a continuation prior's power_gain must be as long as u")
+        extra = {}
+        for k in ("power_gain", "level_gain"):
+            extra[k] = tuple(float(x) for x in d.get(k) or ())
+            if extra[k] and len(extra[k]) != len(d["u"]):
+                raise ValueError(f"a continuation prior's {k} must be as long as u")
         return cls(**{k: tuple(float(x) for x in d[k]) for k in keys},
                    n_tasks=int(d["n_tasks"]), n_curves=int(d["n_curves"]),
                    track={str(k): dict(v) for k, v in dict(d.get("track", {})).items()},
-                   source=str(d.get("source", "")), power_gain=pg)
+                   source=str(d.get("source", "")), **extra)
 
 
 def continue_curve(summary: CurveSummary, prior: ContinuationPrior,
@@ -193,9 +208,10 @@ def continue_curve(summary: CurveSummary, prior: ContinuationPrior,
     spread, this curve's measurement noise at ``n_max`` and the slope's noise times the gain.
     """
     u = np.atleast_1d(np.asarray(u, dtype=float))
-    coef = np.array([prior.at(float(x)) for x in u])       # (len(u), 5)
-    shift, gain, spread, scale, pgain = coef.T
-    mean = summary.last + shift + gain * summary.slope + pgain * summary.rise(u)
+    coef = np.array([prior.at(float(x)) for x in u])       # (len(u), 6)
+    shift, gain, spread, scale, pgain, lgain = coef.T
+    mean = (summary.last + shift + gain * summary.slope + pgain * summary.rise(u)
+            + lgain * summary.level_gap)
     sd = np.sqrt(spread ** 2 + summary.last_se ** 2 + (gain * summary.slope_se) ** 2)
     return np.clip(mean, 0.0, 1.0), sd, scale
 
@@ -234,7 +250,7 @@ def fit_prior(summaries: Sequence[CurveSummary], u: Sequence[float],
     slope = np.array([s.slope for s in summaries])
     noise2 = np.array([s.last_se ** 2 for s in summaries])
     slope_se2 = np.array([s.slope_se ** 2 for s in summaries])
-    shift, gain, spread, scale, pgain = [], [], [], [], []
+    shift, gain, spread, scale, pgain, lgain = [], [], [], [], [], []
     for j in range(len(u)):
         ok = np.isfinite(truth[:, j])
         if ok.sum() < 3:
@@ -243,9 +259,10 @@ def fit_prior(summaries: Sequence[CurveSummary], u: Sequence[float],
         _, inv, counts = np.unique(g, return_inverse=True, return_counts=True)
         w = 1.0 / counts[inv]
         rise = np.array([cs.rise(u[j])[0] for cs, k in zip(summaries, ok, strict=True) if k])
-        X = np.column_stack([np.ones(ok.sum()), slope[ok], rise])
+        gap = np.array([cs.level_gap for cs, k in zip(summaries, ok, strict=True) if k])
+        X = np.column_stack([np.ones(ok.sum()), slope[ok], rise, gap])
         y = truth[ok, j] - last[ok]
-        beta = _wls(X, y, w, np.array([0.0, ridge * w.sum(), ridge * w.sum()]))
+        beta = _wls(X, y, w, np.array([0.0, *[ridge * w.sum()] * 3]))
         resid = y - X @ beta
         own = noise2[ok] + beta[1] ** 2 * slope_se2[ok]
         extra = float(np.average(resid ** 2 - own - truth_se[ok, j] ** 2, weights=w))
@@ -257,11 +274,13 @@ def fit_prior(summaries: Sequence[CurveSummary], u: Sequence[float],
         shift.append(float(beta[0]))
         gain.append(float(beta[1]))
         pgain.append(float(beta[2]))
+        lgain.append(float(beta[3]))
         spread.append(s)
         scale.append(q)
     return ContinuationPrior(tuple(float(x) for x in u), tuple(shift), tuple(gain),
                              tuple(spread), tuple(scale), int(len(np.unique(groups))),
-                             int(len(summaries)), dict(track or {}), source, tuple(pgain))
+                             int(len(summaries)), dict(track or {}), source, tuple(pgain),
+                             tuple(lgain))
 
 
 def load_prior(metric: str, text: str | None = None) -> ContinuationPrior | None:
