@@ -46,9 +46,7 @@ def _model(parts, name):
                      if k in ("numeric", "categorical")],
         "density": {"threshold": -50.0},
     }
-    from semisup.model._model import encoder_state
-
-    manifest["encoder"] = encoder_state(ds.encoder)
+    manifest["encoder"] = ds.encoder.to_state()
     return FittedModel(manifest, ds.encoder, est, stage, density)
 
 

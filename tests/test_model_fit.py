@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 from _model_support import ID, LABEL, make_study, wine_frame
 
-from semisup.model import fit_model, load_model
+from semisup.model import fit_model, load_model, save_model
 
 pytestmark = pytest.mark.slow  # a real (small) study with a VAE is fitted first, ~15 s
 
@@ -116,7 +116,7 @@ def test_pseudo_labels_are_the_unlabeled_rows_predicted(study, tmp_path):
     pool = frame[frame[LABEL].isna()]
     pseudo = result.pseudo_labels
     assert list(pseudo["row_id"]) == list(pool[ID])
-    result.model.save(tmp_path / "m")
+    save_model(result.model, tmp_path / "m")
     back = load_model(tmp_path / "m")
     proba = back.predict_proba(pool)
     cols = [f"proba_{c}" for c in back.classes]
