@@ -26,12 +26,22 @@ def _encoded(model, frame):
     return X, rows, codes
 
 
-def test_plan_choice_is_fitted_and_reuses_the_study_stage(study):
+def test_plan_choice_is_fitted_and_reuses_the_study_stage(study, monkeypatch):
+    import semisup.pretrain
+
+    # Every unsupervised stage the fit needs (the method's representation, or the stage that
+    # flags unfamiliar rows for a raw method) must come from the study's cache: fitting one
+    # anew fails the test.
+    def no_refit(*args, **kwargs):
+        pytest.fail("an unsupervised stage was fitted again instead of read from the cache")
+
+    monkeypatch.setattr(semisup.pretrain, "fit_representation", no_refit)
     plan = json.loads((study / "plan.json").read_text())
     result = fit_model(study)
     assert result.report["method"] == plan["chosen"]["method"]
     frame, _ = wine_frame()
     assert result.report["n_labeled"] == int(frame[LABEL].notna().sum())
+    assert result.model.density is not None
     if result.report["representation"] != "raw":
         assert result.report["unsupervised_stage"] == "reused from the study's cache"
     est = result.report["study_estimate"]
