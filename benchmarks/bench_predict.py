@@ -98,7 +98,6 @@ def build_models(folder: Path) -> dict[str, Path]:
     from semisup.methods import get_method
     from semisup.model import FittedModel, save_model
     from semisup.model._fit import FLAG_QUANTILE
-    from semisup.model._model import encoder_state
     from semisup.pretrain import fit_representation
 
     frame, y = make_table(20_000, seed=1)
@@ -117,7 +116,7 @@ def build_models(folder: Path) -> dict[str, Path]:
             est = m.build(dict(m.default_params), 0).fit(X, ds.y)
         manifest = {
             "method": name, "classes": list(ds.class_names), "id_column": "record_id",
-            "label_column": "outcome", "encoder": encoder_state(ds.encoder),
+            "label_column": "outcome", "encoder": ds.encoder.to_state(),
             "features": [{"column": c, "kind": k} for c, k in ds.encoder.kinds_.items()
                          if k in ("numeric", "categorical")],
             "density": {"threshold": threshold, "kind": "vae"},

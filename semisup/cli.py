@@ -448,11 +448,11 @@ def _cmd_report(args: argparse.Namespace) -> int:
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
-    from .model import fit_model
+    from .model import fit_model, save_model
 
     result = fit_model(args.study_dir, method=args.method, data=args.data,
                        confidence_cut=args.confidence_cut)
-    path = result.model.save(args.out)
+    path = save_model(result.model, args.out)
     print(result.summary())
     print(f"wrote model folder {path}")
     if args.pseudo_labels is not None:

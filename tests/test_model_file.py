@@ -46,9 +46,7 @@ def _model(parts, name):
                      if k in ("numeric", "categorical")],
         "density": {"threshold": -50.0},
     }
-    from semisup.model._model import encoder_state
-
-    manifest["encoder"] = encoder_state(ds.encoder)
+    manifest["encoder"] = ds.encoder.to_state()
     return FittedModel(manifest, ds.encoder, est, stage, density)
 
 
@@ -91,6 +89,18 @@ def test_edited_file_fails_its_checksum(parts, tmp_path):
     (path / "classifier.skops").write_bytes(bytes(data))
     with pytest.raises(ModelFileError, match="does not match its checksum"):
         load_model(path)
+
+
+def test_unreadable_encoder_state_is_one_clear_line(parts, tmp_path):
+    # The encoder's state is TableEncoder.to_state(); a layout from_state cannot read (here:
+    # one without "blocks") is refused with one line naming the manifest and the fix.
+    path = _saved(parts, tmp_path)
+    manifest = json.loads((path / "manifest.json").read_text())
+    del manifest["encoder"]["blocks"]
+    (path / "manifest.json").write_text(json.dumps(manifest))
+    with pytest.raises(ModelFileError, match="manifest.json") as info:
+        load_model(path)
+    assert "\n" not in str(info.value) and "fit the model again" in str(info.value)
 
 
 def test_untrusted_type_in_skops_file_is_refused(parts, tmp_path):

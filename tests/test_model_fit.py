@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 from _model_support import ID, LABEL, make_study, wine_frame
 
-from semisup.model import fit_model, load_model
+from semisup.model import fit_model, load_model, save_model
 
 pytestmark = pytest.mark.slow  # a real (small) study with a VAE is fitted first, ~15 s
 
@@ -26,12 +26,22 @@ def _encoded(model, frame):
     return X, rows, codes
 
 
-def test_plan_choice_is_fitted_and_reuses_the_study_stage(study):
+def test_plan_choice_is_fitted_and_reuses_the_study_stage(study, monkeypatch):
+    import semisup.pretrain
+
+    # Every unsupervised stage the fit needs (the method's representation, or the stage that
+    # flags unfamiliar rows for a raw method) must come from the study's cache: fitting one
+    # anew fails the test.
+    def no_refit(*args, **kwargs):
+        pytest.fail("an unsupervised stage was fitted again instead of read from the cache")
+
+    monkeypatch.setattr(semisup.pretrain, "fit_representation", no_refit)
     plan = json.loads((study / "plan.json").read_text())
     result = fit_model(study)
     assert result.report["method"] == plan["chosen"]["method"]
     frame, _ = wine_frame()
     assert result.report["n_labeled"] == int(frame[LABEL].notna().sum())
+    assert result.model.density is not None
     if result.report["representation"] != "raw":
         assert result.report["unsupervised_stage"] == "reused from the study's cache"
     est = result.report["study_estimate"]
@@ -116,7 +126,7 @@ def test_pseudo_labels_are_the_unlabeled_rows_predicted(study, tmp_path):
     pool = frame[frame[LABEL].isna()]
     pseudo = result.pseudo_labels
     assert list(pseudo["row_id"]) == list(pool[ID])
-    result.model.save(tmp_path / "m")
+    save_model(result.model, tmp_path / "m")
     back = load_model(tmp_path / "m")
     proba = back.predict_proba(pool)
     cols = [f"proba_{c}" for c in back.classes]

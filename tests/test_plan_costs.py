@@ -40,13 +40,10 @@ def test_plan_cost_hand_examples():
     # 500 labels, 200 owned: buy 300 at 2.75 + one round at 10 = 835.
     assert plan_cost(500, label_price=2.75, labels_owned=200, cost_per_round=10.0) == (
         835.0, 300, 1)
-    # Uncertainty in batches of 50: ceil(300 / 50) = 6 rounds -> 825 + 60 = 885.
-    assert plan_cost(500, label_price=2.75, labels_owned=200, cost_per_round=10.0,
-                     strategy="uncertainty", batch_size=50) == (885.0, 300, 6)
     # Owning enough labels costs nothing, not even a round.
     assert plan_cost(150, label_price=2.75, labels_owned=200, cost_per_round=10.0) == (
         0.0, 0, 0)
-    assert labeling_rounds(1, "uncertainty", 50) == 1
+    assert labeling_rounds(1) == 1 and labeling_rounds(0) == 0
 
 
 @pytest.mark.parametrize("kwargs, match", [

@@ -170,12 +170,23 @@ def test_labels_owned_default_comes_from_study_json(study):
     assert plan.labels_owned == 400 - 150
 
 
-def test_uncertainty_choice_ranks_rows_by_margin(study):
-    plan = _plan(study, labels_owned=0, n_next=5)
-    # A plan choosing by uncertainty lists rows with margins; otherwise random rows.
-    assert len(plan.label_next) == 5
-    if plan.chosen.strategy == "uncertainty":
-        assert plan.label_next["reason"].str.startswith("margin").all()
+def test_uncertainty_choice_ranks_rows_by_margin(tmp_path):
+    # A study measured with the uncertainty strategy only: the plan must choose it and list
+    # the candidates with the smallest margins (top minus second class probability, computed
+    # here with numpy from the probabilities the study stored in candidates.npz), smallest
+    # first.
+    folder = write_study(tmp_path / "s", strategies=("uncertainty",))
+    plan = _plan(folder, labels_owned=0, n_next=5)
+    assert plan.chosen is not None and plan.chosen.strategy == "uncertainty"
+    nxt = plan.label_next
+    assert len(nxt) == 5 and nxt["reason"].str.startswith("margin").all()
+    stored = np.load(folder / "candidates.npz")
+    proba = np.sort(stored["proba"], axis=1)
+    margin = proba[:, -1] - proba[:, -2]
+    smallest = np.argsort(margin, kind="stable")[:5]
+    assert list(nxt["row_id"]) == list(stored["row_ids"][smallest])
+    np.testing.assert_allclose(nxt["reason"].str.split().str[1].astype(float),
+                               margin[smallest], atol=5e-4)
 
 
 def test_per_class_costs_and_unknown_class(study):

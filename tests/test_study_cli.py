@@ -1,4 +1,4 @@
-"""`semisup study` on a small CSV (needs semisup.data.load_dataset; stand-in methods)."""
+"""`semisup study` on a small CSV (stand-in methods)."""
 
 from __future__ import annotations
 
@@ -11,10 +11,6 @@ from _study_support import ensure_methods
 
 from semisup import ConfigError
 from semisup.cli import main
-
-data = pytest.importorskip("semisup.data")
-if not hasattr(data, "load_dataset"):  # pragma: no cover  (before the data part lands)
-    pytest.skip("semisup.data.load_dataset not available yet", allow_module_level=True)
 
 
 @pytest.fixture()

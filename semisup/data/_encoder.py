@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -290,6 +291,47 @@ class TableEncoder(TransformerMixin, BaseEstimator):
                 codes = np.where(codes < 0, fill, codes)
                 out[np.arange(n_rows), block.start + codes] = 1.0
         return out
+
+    # -- saved state ---------------------------------------------------------------------
+    def to_state(self) -> dict[str, Any]:
+        """The fitted encoder as plain JSON values (no code); :meth:`from_state` reads it.
+
+        Model folders store it in ``manifest.json`` under ``encoder``: keep the keys stable
+        and let :meth:`from_state` read every layout written before.
+        """
+        check_is_fitted(self, "blocks_")
+        return {
+            "params": {"kinds": dict(self.kinds or {}),
+                       "min_level_count": int(self.min_level_count),
+                       "max_levels": int(self.max_levels)},
+            "kinds": {str(k): str(v) for k, v in self.kinds_.items()},
+            "numeric": {c: [float(m), float(s), bool(h)]
+                        for c, (m, s, h) in self.numeric_params_.items()},
+            "categories": {c: [str(v) for v in levels] for c, levels in self.categories_.items()},
+            "blocks": [[b.kind, int(b.start), int(b.stop), str(b.column)] for b in self.blocks_],
+            "feature_names_in": [str(c) for c in self.feature_names_in_],
+            "feature_names_out": [str(c) for c in self.feature_names_out_],
+            "notes": [str(n) for n in self.notes_],
+        }
+
+    @classmethod
+    def from_state(cls, state: Mapping[str, Any]) -> TableEncoder:
+        """A fitted encoder rebuilt from :meth:`to_state` (no code is loaded).
+
+        Raises ``KeyError`` / ``TypeError`` / ``ValueError`` on a damaged state; callers that
+        read it from a file turn those into their file's error.
+        """
+        enc = cls(**state["params"])
+        enc.kinds_ = dict(state["kinds"])
+        enc.numeric_params_ = {c: (float(m), float(s), bool(h))
+                               for c, (m, s, h) in state["numeric"].items()}
+        enc.categories_ = {c: list(v) for c, v in state["categories"].items()}
+        enc.blocks_ = tuple(FeatureBlock(k, int(a), int(b), c) for k, a, b, c in state["blocks"])
+        enc.feature_names_in_ = np.asarray(state["feature_names_in"], dtype=object)
+        enc.feature_names_out_ = np.asarray(state["feature_names_out"], dtype=object)
+        enc.n_features_in_ = len(state["feature_names_in"])
+        enc.notes_ = list(state["notes"])
+        return enc
 
     def get_feature_names_out(self, input_features=None) -> np.ndarray:
         """Names of the output columns: ``col``, ``col__missing``, ``col=level``."""

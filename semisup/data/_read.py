@@ -14,6 +14,7 @@ import csv
 import gzip
 import hashlib
 import io
+import itertools
 import logging
 import lzma
 import os
@@ -429,6 +430,18 @@ def _check_index(path: Path, frame: pd.DataFrame, layout: _TextLayout,
             f"{len(layout.header)}; add the missing column name(s) to the header, or remove "
             "the delimiter that ends every row"
         )
+    if first_row == 0 and len(frame):
+        # pandas does the same when only the first data row is longer, and its index can
+        # then look like row positions (first cells 0, 1, ...): count that row's fields.
+        records = itertools.islice(_iter_records(path, layout.compression, layout.enc,
+                                                 layout.delimiter), 2)
+        line, n_fields = list(records)[-1]
+        if n_fields > len(layout.header):
+            raise DataError(
+                f"{path}: line {line} has {n_fields} fields but the header names only "
+                f"{len(layout.header)}; quote values that contain the delimiter, add the "
+                "missing column name(s) to the header, or pass the right --delimiter"
+            )
 
 
 def _read_text(path: Path, delimiter: str | None, encoding: str | None,

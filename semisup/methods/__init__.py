@@ -2,7 +2,8 @@
 
 Every method is a scikit-learn classifier; ``predict_proba`` columns follow ``classes_`` (the
 labeled classes the draw contained). :func:`align_proba` spreads them over all the study's
-classes.
+classes. Torch methods (M2) train through ``semisup.pretrain.train_epochs``, the one torch
+training loop, with their settings in a frozen config (:class:`M2Config`).
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
 from ._density_self_training import DensitySelfTrainingGBT
 from ._m2 import M2Classifier
+from ._m2_config import M2Config
 from ._m2_spreading import M2SpreadingBlend
 from ._mixture_em import MixtureEMClassifier
 from ._proba import align_proba
@@ -35,6 +37,7 @@ __all__ = [
     "LabeledLogReg",
     "LabeledSVM",
     "M2Classifier",
+    "M2Config",
     "M2SpreadingBlend",
     "MethodSpec",
     "MethodUnavailable",

@@ -25,7 +25,6 @@ run under ``torch.inference_mode``.
 
 from __future__ import annotations
 
-import copy
 import math
 from typing import ClassVar
 
@@ -34,13 +33,21 @@ import torch
 from torch import nn
 from torch.nn import functional as F
 
-from ..pretrain import BlockLayout
-from ..pretrain._likelihood import kl_standard_normal, reconstruction_log_likelihood
-from ..pretrain._train import pinned_threads, torch_state
+from ..pretrain import (
+    BlockLayout,
+    EpochLoop,
+    kl_standard_normal,
+    pinned_threads,
+    reconstruction_log_likelihood,
+    torch_state,
+    train_epochs,
+)
 from ._base import PartiallyLabeledClassifier
+from ._m2_config import M2Config
 from ._spec import Variant, register_variants
 
-__all__ = ["M2Classifier", "M2Net", "infer_layout", "m2_row_terms", "m2_unlabeled_elbo"]
+__all__ = ["M2Classifier", "M2Config", "M2Net", "infer_layout", "m2_row_terms",
+           "m2_unlabeled_elbo"]
 
 
 def infer_layout(X: np.ndarray):
@@ -147,6 +154,9 @@ class M2Net(nn.Module):
 class M2Classifier(PartiallyLabeledClassifier):
     """Kingma et al. (2014) M2: a VAE with the class as a latent variable (see the module).
 
+    The parameters are those of :class:`M2Config` (the one declaration of their defaults and
+    allowed values; ``config()`` gives the frozen record training reads).
+
     Parameters
     ----------
     alpha : float
@@ -203,12 +213,16 @@ class M2Classifier(PartiallyLabeledClassifier):
             "learning_rate": trial.suggest_float("learning_rate", 1e-3, 1e-2, log=True),
         }
 
-    def __init__(self, alpha: float = 0.1, hidden: int = 128, latent_dim: int = 16,
-                 learning_rate: float = 3e-3, batch_size: int = 128, max_epochs: int = 60,
-                 patience: int = 8, validation_fraction: float = 0.2,
-                 min_validation_per_class: int = 5,
-                 refit_fraction: float = 0.25, weight_decay: float = 1e-4,
-                 n_threads: int | None = 1, random_state=None):
+    def __init__(self, alpha: float = M2Config.alpha, hidden: int = M2Config.hidden,
+                 latent_dim: int = M2Config.latent_dim,
+                 learning_rate: float = M2Config.learning_rate,
+                 batch_size: int = M2Config.batch_size, max_epochs: int = M2Config.max_epochs,
+                 patience: int = M2Config.patience,
+                 validation_fraction: float = M2Config.validation_fraction,
+                 min_validation_per_class: int = M2Config.min_validation_per_class,
+                 refit_fraction: float = M2Config.refit_fraction,
+                 weight_decay: float = M2Config.weight_decay,
+                 n_threads: int | None = M2Config.n_threads, random_state=None):
         self.alpha = alpha
         self.hidden = hidden
         self.latent_dim = latent_dim
@@ -223,120 +237,122 @@ class M2Classifier(PartiallyLabeledClassifier):
         self.n_threads = n_threads
         self.random_state = random_state
 
-    def _seed(self) -> int:
-        rs = self.random_state
+    def config(self) -> M2Config:
+        """The frozen :class:`M2Config` of the current parameters (``random_state`` as the
+        seed an int, None or a ``RandomState`` gives)."""
+        params = self.get_params(deep=False)
+        rs = params["random_state"]
         if isinstance(rs, np.random.RandomState):
-            return int(rs.randint(2**31))
-        return 0 if rs is None else int(rs)
+            params["random_state"] = int(rs.randint(2**31))
+        return M2Config.from_params(params)
 
     def _fit_encoded(self, X, y_code):
-        seed = self._seed()
+        cfg = self.config()
+        seed = cfg.random_state or 0
         self.layout_ = infer_layout(X)
         lab = np.flatnonzero(y_code >= 0)
-        val = self._validation_rows(y_code[lab], seed)
-        with torch_state(seed, self.n_threads):
+        val = _validation_rows(y_code[lab], cfg, seed)
+        with torch_state(seed, cfg.n_threads):
             self.history_ = []
+            net = M2Net(X.shape[1], self.classes_.size, cfg.hidden, cfg.latent_dim,
+                        len(self.layout_.numeric))
+            optimiser = torch.optim.Adam(net.parameters(), lr=cfg.learning_rate,
+                                         weight_decay=cfg.weight_decay)
+            generator = torch.Generator().manual_seed(seed)
+            state = (net, optimiser, generator)
             if val.size:
                 y_train = y_code.copy()
                 y_train[lab[val]] = -2  # neither labeled nor unlabeled: left out
-                state, self.history_, self.best_epoch_ = self._train(
-                    X, y_train, self.max_epochs, (X[lab[val]], y_code[lab[val]]))
+                loop = _train(state, X, y_train, self.layout_, cfg, cfg.max_epochs,
+                              (X[lab[val]], y_code[lab[val]]))
+                self.history_ = [-v for v in loop.monitored]
+                self.best_epoch_ = loop.best_epoch or cfg.max_epochs
                 # Warm start from the best state: the held-out labels join for a few more
                 # epochs instead of a refit from scratch for as many epochs again.
-                extra = int(math.ceil(float(self.refit_fraction) * self.best_epoch_))
-                state, _, _ = self._train(X, y_code, extra, None, state)
+                extra = int(math.ceil(cfg.refit_fraction * self.best_epoch_))
+                _train(state, X, y_code, self.layout_, cfg, extra, None)
                 self.n_epochs_ = self.best_epoch_ + extra
             else:
-                state, _, _ = self._train(X, y_code, self.max_epochs, None)
-                self.best_epoch_ = self.n_epochs_ = int(self.max_epochs)
-            self.net_ = state[0]
+                _train(state, X, y_code, self.layout_, cfg, cfg.max_epochs, None)
+                self.best_epoch_ = self.n_epochs_ = cfg.max_epochs
+            self.net_ = net
             self.net_.eval()
 
     def _validation_rows(self, y_lab: np.ndarray, seed: int) -> np.ndarray:
-        counts = np.bincount(y_lab)
-        n_val = int(round(self.validation_fraction * y_lab.size))
-        if (counts.min() < 2 or n_val < int(self.min_validation_per_class) * counts.size
-                or n_val < counts.size or y_lab.size - n_val < counts.size):
-            return np.zeros(0, dtype=np.int64)
-        from sklearn.model_selection import StratifiedShuffleSplit
-
-        split = StratifiedShuffleSplit(n_splits=1, test_size=n_val, random_state=seed)
-        return next(split.split(np.zeros(y_lab.size), y_lab))[1]
-
-    def _new_state(self, d: int):
-        net = M2Net(d, self.classes_.size, int(self.hidden), int(self.latent_dim),
-                    len(self.layout_.numeric))
-        optimiser = torch.optim.Adam(net.parameters(), lr=float(self.learning_rate),
-                                     weight_decay=float(self.weight_decay))
-        generator = torch.Generator().manual_seed(self._seed())
-        return net, optimiser, generator
-
-    def _train(self, X, y_code, epochs, validation, state=None):
-        """Train ``epochs`` passes over the unlabeled rows from ``state`` (None: a new net).
-
-        With ``validation`` (X, y codes) it stops after ``patience`` epochs without a better
-        validation log-loss and returns the state of the best epoch (its number the third
-        item; ``epochs`` without validation) with the validation history.
-        """
-        k = self.classes_.size
-        Xt = _float_tensor(X)
-        lab = np.flatnonzero(y_code >= 0)
-        unl = np.flatnonzero(y_code == -1)
-        n_rows = lab.size + unl.size
-        layout = self.layout_
-        index = layout.tensors()
-        net, optimiser, generator = state or self._new_state(X.shape[1])
-        log_prior = torch.full((k,), -math.log(k))
-        X_lab, X_unl = Xt[lab], Xt[unl]
-        y_lab = torch.as_tensor(y_code[lab], dtype=torch.long)
-        eye = torch.eye(k)
-        batch = int(self.batch_size)
-        n_steps = max(1, math.ceil(max(unl.size, lab.size) / batch))
-        w_lab, w_unl = lab.size / n_rows, unl.size / n_rows
-        ce_weight = float(self.alpha) * lab.size
-        if validation is not None:
-            X_val = _float_tensor(validation[0])
-            y_val = torch.as_tensor(validation[1], dtype=torch.long)
-        history: list[float] = []
-        best_loss, best, best_epoch, stale = math.inf, None, int(epochs), 0
-        for epoch in range(1, int(epochs) + 1):
-            net.train()
-            unl_order = torch.randperm(unl.size, generator=generator) if unl.size else None
-            for step in range(n_steps):
-                pick = torch.randint(lab.size, (min(batch, lab.size),), generator=generator)
-                xl, yl = X_lab[pick], y_lab[pick]
-                _, _, elbo_l = m2_row_terms(net, xl, eye[yl], layout, index, log_prior)
-                ce = F.cross_entropy(net.clf(xl), yl)
-                objective = w_lab * elbo_l.mean() - ce_weight * ce
-                if unl.size:
-                    rows = unl_order[(step * batch) % unl.size:][:batch]
-                    elbo_u = m2_unlabeled_elbo(net, X_unl[rows], layout, index, log_prior)
-                    objective = objective + w_unl * elbo_u.mean()
-                optimiser.zero_grad(set_to_none=True)
-                (-objective).backward()
-                optimiser.step()
-            if validation is None:
-                continue
-            net.eval()
-            with torch.inference_mode():
-                loss = float(F.cross_entropy(net.clf(X_val), y_val))
-            history.append(loss)
-            if loss < best_loss - 1e-4:
-                best_loss, best_epoch, stale = loss, epoch, 0
-                best = (copy.deepcopy(net.state_dict()), copy.deepcopy(optimiser.state_dict()))
-            else:
-                stale += 1
-                if stale >= int(self.patience):
-                    break
-        if best is not None:
-            net.load_state_dict(best[0])
-            optimiser.load_state_dict(best[1])
-        return (net, optimiser, generator), history, best_epoch
+        """The labeled rows (positions in ``y_lab``) held out for early stopping."""
+        return _validation_rows(y_lab, self.config(), seed)
 
     def _proba_encoded(self, X):
         with pinned_threads(self.n_threads), torch.inference_mode():
             logits = self.net_.clf(_float_tensor(X))
             return torch.softmax(logits, dim=1).double().numpy()
+
+
+def _validation_rows(y_lab: np.ndarray, cfg: M2Config, seed: int) -> np.ndarray:
+    """A stratified ``validation_fraction`` of the labeled rows (positions in ``y_lab``), or
+    none when a class has fewer than 2 labels, the split would leave a class out, or it holds
+    fewer than ``min_validation_per_class`` rows per class."""
+    counts = np.bincount(y_lab)
+    n_val = int(round(cfg.validation_fraction * y_lab.size))
+    if (counts.min() < 2 or n_val < cfg.min_validation_per_class * counts.size
+            or n_val < counts.size or y_lab.size - n_val < counts.size):
+        return np.zeros(0, dtype=np.int64)
+    from sklearn.model_selection import StratifiedShuffleSplit
+
+    split = StratifiedShuffleSplit(n_splits=1, test_size=n_val, random_state=seed)
+    return next(split.split(np.zeros(y_lab.size), y_lab))[1]
+
+
+def _train(state, X, y_code, layout, cfg: M2Config, epochs: int, validation) -> EpochLoop:
+    """Train ``epochs`` passes over the unlabeled rows, continuing from ``state`` (network,
+    Adam, shuffling generator) in place, with :func:`semisup.pretrain.train_epochs`.
+
+    With ``validation`` (X, y codes) the loop monitors minus the classifier's validation
+    log-loss, stops after ``patience`` epochs without a better one and leaves the network and
+    Adam at the best epoch.
+    """
+    net, optimiser, generator = state
+    k = int(net.clf[-1].out_features)
+    Xt = _float_tensor(X)
+    lab = np.flatnonzero(y_code >= 0)
+    unl = np.flatnonzero(y_code == -1)
+    n_rows = lab.size + unl.size
+    index = layout.tensors()
+    log_prior = torch.full((k,), -math.log(k))
+    X_lab, X_unl = Xt[lab], Xt[unl]
+    y_lab = torch.as_tensor(y_code[lab], dtype=torch.long)
+    eye = torch.eye(k)
+    batch = cfg.batch_size
+    n_steps = max(1, math.ceil(max(unl.size, lab.size) / batch))
+    w_lab, w_unl = lab.size / n_rows, unl.size / n_rows
+    ce_weight = cfg.alpha * lab.size
+
+    def losses(epoch: int):
+        unl_order = torch.randperm(unl.size, generator=generator) if unl.size else None
+        for step in range(n_steps):
+            pick = torch.randint(lab.size, (min(batch, lab.size),), generator=generator)
+            xl, yl = X_lab[pick], y_lab[pick]
+            _, _, elbo_l = m2_row_terms(net, xl, eye[yl], layout, index, log_prior)
+            ce = F.cross_entropy(net.clf(xl), yl)
+            objective = w_lab * elbo_l.mean() - ce_weight * ce
+            if unl.size:
+                rows = unl_order[(step * batch) % unl.size:][:batch]
+                elbo_u = m2_unlabeled_elbo(net, X_unl[rows], layout, index, log_prior)
+                objective = objective + w_unl * elbo_u.mean()
+            yield -objective
+
+    monitor = None
+    if validation is not None:
+        X_val = _float_tensor(validation[0])
+        y_val = torch.as_tensor(validation[1], dtype=torch.long)
+
+        def monitor(epoch: int) -> float:
+            net.eval()
+            with torch.inference_mode():
+                return -float(F.cross_entropy(net.clf(X_val), y_val))
+
+    return train_epochs(net, optimiser, losses, max_epochs=epochs, monitor=monitor,
+                        patience=cfg.patience, tol=1e-4, keep_optimizer=True)
 
 
 register_variants(

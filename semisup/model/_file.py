@@ -30,7 +30,7 @@ from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
 from ._errors import ModelFileError
 from ._json import read_json
-from ._model import FittedModel, encoder_from_state
+from ._model import FittedModel
 from ._persist import dump_estimator, load_estimator
 
 __all__ = ["FORMAT", "FORMAT_VERSION", "load_model", "save_model"]
@@ -200,7 +200,9 @@ def load_model(path: str | os.PathLike[str]) -> FittedModel:
         raise ModelFileError(f"{folder}/manifest.json lists unknown file {unknown[0]!r}; the "
                              "folder was not written by semisup fit")
     try:
-        encoder = encoder_from_state(manifest["encoder"])
+        from ..data import TableEncoder
+
+        encoder = TableEncoder.from_state(manifest["encoder"])
     except (KeyError, TypeError, ValueError) as exc:
         raise ModelFileError(f"{folder}/manifest.json has a damaged encoder state "
                              f"({type(exc).__name__}: {exc}); fit the model again") from None

@@ -31,7 +31,7 @@ from .._seeding import derive_seed
 from ..study._folder import StudyRecord, read_curves
 from ._crossfit import DEFAULT_CUTS, confidence_table, crossfit_proba
 from ._json import read_json
-from ._model import FittedModel, encoder_state
+from ._model import FittedModel
 
 __all__ = ["FLAG_QUANTILE", "FitResult", "fit_model", "read_study"]
 
@@ -272,43 +272,59 @@ def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict):
     return ds, notes
 
 
-def fit_model(
-    study_dir: str | os.PathLike[str],
-    *,
-    method: str | None = None,
-    data: str | os.PathLike[str] | None = None,
-    confidence_cut: float = 0.9,
-    crossfit_folds: int = 5,
-) -> FitResult:
-    """Fit the plan's chosen method (or ``method``) on every labeled row of the study's table.
+@dataclass(frozen=True)
+class _Study:
+    """Stage 1: the study folder, its plan (when current) and the method to fit."""
 
-    Parameters
-    ----------
-    study_dir : path
-        A study folder (``study.json``, and ``plan.json`` unless ``method`` is given).
-    method : str, optional
-        A registered method name instead of the plan's choice.
-    data : path, optional
-        The study's table, when it moved since the study.
-    confidence_cut : float in (0, 1)
-        Top probability a pseudo-label needs; the report states its cross-fitted accuracy.
-    crossfit_folds : int
-        Most stratified folds for the cross-fitted estimates.
+    folder: Path
+    info: dict
+    plan: dict | None
+    spec: Any
+    name: str
+    method: Any  # the registry's MethodSpec
 
-    Returns
-    -------
-    FitResult
-        ``.model`` (save it with ``.model.save(path)``), ``.report``, ``.pseudo_labels`` (the
-        table's unlabeled rows: class, probabilities, flag, and ``accepted`` at the cut).
-    """
+
+@dataclass(frozen=True)
+class _Labels:
+    """Stage 2: the table with every label (the study's and those added in rounds)."""
+
+    ds: Any
+    own_y: np.ndarray  # the table's own labels (the study carved its holdout from these)
+    y: np.ndarray
+    labeled: np.ndarray
+    unlabeled: np.ndarray
+    notes: list[str]
+
+
+@dataclass(frozen=True)
+class _Features:
+    """Stage 3: the encoded rows, the method's features and the out-of-distribution model."""
+
+    X_enc: np.ndarray
+    X: np.ndarray
+    representation: Any
+    stage_note: str | None
+    density: Any
+    density_kind: str
+
+
+@dataclass(frozen=True)
+class _Classifier:
+    """Stage 4: the tuned classifier on every label and its cross-fitted probabilities."""
+
+    seed: int
+    params: dict
+    tuning: dict
+    estimator: Any
+    n_unlabeled_used: int
+    oof: np.ndarray
+    crossfit_note: Any
+
+
+def _open_study(study_dir: str | os.PathLike[str], method: str | None) -> _Study:
     from ..methods import get_method
     from ..study import StudySpec
-    from ..study._tuning import fit_method, tune_params
 
-    if isinstance(confidence_cut, bool) or not 0 < float(confidence_cut) < 1:
-        raise ConfigError(f"--confidence-cut {confidence_cut!r} is not allowed; give a "
-                          "probability between 0 and 1, e.g. 0.9")
-    t0 = time.perf_counter()
     folder = Path(study_dir)
     info, plan = read_study(folder)
     spec = _spec_view(info["spec"], folder, StudySpec)
@@ -316,37 +332,54 @@ def fit_model(
     name = _choose_method(folder, plan, method)
     m = get_method(name)
     log.info("fitting %s for study %s", name, folder)
-    ds, notes = _load_data(spec, data, info)
+    return _Study(folder, info, plan, spec, name, m)
+
+
+def _all_labels(study: _Study, data: str | os.PathLike[str] | None) -> _Labels:
     from ..study._rounds import apply_added_labels, read_added_labels
 
+    spec, folder = study.spec, study.folder
+    ds, notes = _load_data(spec, data, study.info)
     added = read_added_labels(folder)  # labels returned by annotators (semisup add-labels)
     own_y = np.asarray(ds.y)
     if len(added):
         ds = apply_added_labels(ds, added, where=str(folder / "labels_added.csv"))
         notes.append(f"{len(added)} labels added to the study (labels_added.csv) are used")
     y = np.asarray(ds.y, dtype=np.int64)
-    n_classes = len(ds.class_names)
     labeled = np.flatnonzero(y >= 0)
-    unlabeled = np.flatnonzero(y < 0)
-    if n_classes < 2 or len(np.unique(y[labeled])) < 2:
+    if len(ds.class_names) < 2 or len(np.unique(y[labeled])) < 2:
         raise DataError(f"{spec.data}: label column {spec.label_column!r} needs labeled rows of "
                         "at least two classes to fit a model")
+    return _Labels(ds, own_y, y, labeled, np.flatnonzero(y < 0), notes)
 
-    representation = None
-    stage_note = None
+
+def _features(study: _Study, labels: _Labels) -> _Features:
+    """The method's representation (when it reads one) and the stage that flags rows unlike
+    the training rows: the representation itself, else the study's VAE (or mixture)."""
+    ds, m = labels.ds, study.method
+    args = (ds, study.spec, study.folder, study.info, labels.own_y)
     X_enc = np.asarray(ds.X, dtype=np.float32)
     if m.representation != "raw":
-        representation, stage_note = _unsupervised_stage(m.representation, ds, spec, folder,
-                                                         info, own_y)
+        representation, stage_note = _unsupervised_stage(m.representation, *args)
         X = np.asarray(representation.transform(X_enc), dtype=np.float32)
-        density, density_kind = representation, m.representation
-    else:
-        X = X_enc
-        diags = StudyRecord.from_dict(info).representation
-        density_kind = "vae" if "vae" in diags else "mixture"
-        log.info("fitting/reading the %s stage for the out-of-distribution flag", density_kind)
-        density, _ = _unsupervised_stage(density_kind, ds, spec, folder, info, own_y)
+        return _Features(X_enc, X, representation, stage_note, representation,
+                         m.representation)
+    diags = StudyRecord.from_dict(study.info).representation
+    density_kind = "vae" if "vae" in diags else "mixture"
+    log.info("fitting/reading the %s stage for the out-of-distribution flag", density_kind)
+    density, _ = _unsupervised_stage(density_kind, *args)
+    return _Features(X_enc, X_enc, None, None, density, density_kind)
 
+
+def _fit_classifier(study: _Study, labels: _Labels, features: _Features,
+                    crossfit_folds: int) -> _Classifier:
+    """Tune on every label with the study's budget, fit, and cross-fit for the confidence
+    table; semi-supervised methods also see (at most ``max_unlabeled``) unlabeled rows."""
+    from ..study._tuning import fit_method, tune_params
+
+    spec, name, m = study.spec, study.name, study.method
+    X, y, labeled, unlabeled = features.X, labels.y, labels.labeled, labels.unlabeled
+    n_classes = len(labels.ds.class_names)
     X_lab, y_lab = X[labeled], y[labeled]
     X_unl = None
     if m.semi_supervised and len(unlabeled):
@@ -366,8 +399,86 @@ def fit_model(
     log.info("cross-fitting %s on the labeled rows for the confidence table", name)
     oof, cf_note = crossfit_proba(m, params, derive_seed(seed, "crossfit"), X_lab, y_lab, X_unl,
                                   n_classes, max_folds=crossfit_folds)
+    return _Classifier(seed, params, tuning, estimator, 0 if X_unl is None else len(X_unl),
+                       oof, cf_note)
+
+
+def _manifest(study: _Study, labels: _Labels, features: _Features, report: dict,
+              scores: np.ndarray, threshold: float) -> dict[str, Any]:
+    """What the model is (written as the model folder's manifest.json)."""
+    ds, y = labels.ds, labels.y
+    counts = np.bincount(y[labels.labeled], minlength=len(ds.class_names))
+    elbo = features.density_kind == "vae"
+    return {
+        **report,
+        "classes": list(ds.class_names),
+        "label_column": study.spec.label_column, "id_column": study.spec.id_column,
+        "features": [{"column": c, "kind": k} for c, k in ds.encoder.kinds_.items()
+                     if k in ("numeric", "categorical")],
+        "encoder": ds.encoder.to_state(),
+        "training_data": {
+            "source": str(ds.source), "sha256": ds.sha256, "n_rows": int(len(y)),
+            "class_counts": {c: int(n) for c, n in zip(ds.class_names, counts, strict=True)},
+            "study_fingerprint": study.info.get("fingerprint"), "study_dir": str(study.folder),
+        },
+        "density": {
+            "kind": features.density_kind,
+            "score": "ELBO at the posterior mean (nats per row)" if elbo else
+            "log-density (nats per row)", "threshold": threshold, "quantile": FLAG_QUANTILE,
+            "training_quantiles": {str(q): float(np.quantile(scores, q))
+                                   for q in (0.001, 0.01, 0.05, 0.5)},
+        },
+        "semisup_version": __version__,
+    }
+
+
+def fit_model(
+    study_dir: str | os.PathLike[str],
+    *,
+    method: str | None = None,
+    data: str | os.PathLike[str] | None = None,
+    confidence_cut: float = 0.9,
+    crossfit_folds: int = 5,
+) -> FitResult:
+    """Fit the plan's chosen method (or ``method``) on every labeled row of the study's table.
+
+    Stages: open the study and choose the method; read the table with every label; the
+    unsupervised stage and the out-of-distribution model; tune, fit and cross-fit the
+    classifier; the flag threshold, the pool's pseudo-labels, the report and the manifest.
+
+    Parameters
+    ----------
+    study_dir : path
+        A study folder (``study.json``, and ``plan.json`` unless ``method`` is given).
+    method : str, optional
+        A registered method name instead of the plan's choice.
+    data : path, optional
+        The study's table, when it moved since the study.
+    confidence_cut : float in (0, 1)
+        Top probability a pseudo-label needs; the report states its cross-fitted accuracy.
+    crossfit_folds : int
+        Most stratified folds for the cross-fitted estimates.
+
+    Returns
+    -------
+    FitResult
+        ``.model`` (write it with :func:`semisup.model.save_model`), ``.report``,
+        ``.pseudo_labels`` (the table's unlabeled rows: class, probabilities, flag, and
+        ``accepted`` at the cut).
+    """
+    if isinstance(confidence_cut, bool) or not 0 < float(confidence_cut) < 1:
+        raise ConfigError(f"--confidence-cut {confidence_cut!r} is not allowed; give a "
+                          "probability between 0 and 1, e.g. 0.9")
+    t0 = time.perf_counter()
+    study = _open_study(study_dir, method)
+    labels = _all_labels(study, data)
+    features = _features(study, labels)
+    clf = _fit_classifier(study, labels, features, crossfit_folds)
+
+    ds, y, labeled, unlabeled = labels.ds, labels.y, labels.labeled, labels.unlabeled
     model = FittedModel({"classes": list(ds.class_names), "density": {}}, ds.encoder,
-                        estimator, representation, density)
+                        clf.estimator, features.representation, features.density)
+    X_enc = features.X_enc
     scores = model.density_scores(X_enc)
     threshold = float(np.quantile(scores, FLAG_QUANTILE))
     model.manifest["density"]["threshold"] = threshold
@@ -375,46 +486,25 @@ def fit_model(
         if len(unlabeled) else None
     pool_top = pool_frame["top_probability"].to_numpy() if pool_frame is not None else None
     cut = float(confidence_cut)
-    table = confidence_table(oof, y_lab, (*DEFAULT_CUTS, cut), pool_top)
-    all_rows = confidence_table(oof, y_lab, (0.0,))[0]
+    table = confidence_table(clf.oof, y[labeled], (*DEFAULT_CUTS, cut), pool_top)
+    all_rows = confidence_table(clf.oof, y[labeled], (0.0,))[0]
 
-    elbo = density_kind == "vae"
-    counts = np.bincount(y_lab, minlength=n_classes)
+    m = study.method
     report = {
-        "method": name, "family": m.family, "representation": m.representation,
-        "semi_supervised": bool(m.semi_supervised), "params": params, "seed": seed,
-        "tuning": tuning, "n_labeled": int(len(labeled)),
-        "n_unlabeled_used": 0 if X_unl is None else int(len(X_unl)),
-        "unsupervised_stage": stage_note,
-        "study_estimate": _study_estimate(folder, plan, name),
-        "crossfit": {"note": cf_note, "n_labeled": all_rows["n_labeled"],
+        "method": study.name, "family": m.family, "representation": m.representation,
+        "semi_supervised": bool(m.semi_supervised), "params": clf.params, "seed": clf.seed,
+        "tuning": clf.tuning, "n_labeled": int(len(labeled)),
+        "n_unlabeled_used": int(clf.n_unlabeled_used),
+        "unsupervised_stage": features.stage_note,
+        "study_estimate": _study_estimate(study.folder, study.plan, study.name),
+        "crossfit": {"note": clf.crossfit_note, "n_labeled": all_rows["n_labeled"],
                      "accuracy": all_rows["accuracy"], "accuracy_low": all_rows["accuracy_low"],
                      "accuracy_high": all_rows["accuracy_high"], "table": table},
         "confidence_cut": cut, "seconds": time.perf_counter() - t0,
     }
-    manifest = {
-        **report,
-        "classes": list(ds.class_names),
-        "label_column": spec.label_column, "id_column": spec.id_column,
-        "features": [{"column": c, "kind": k} for c, k in ds.encoder.kinds_.items()
-                     if k in ("numeric", "categorical")],
-        "encoder": encoder_state(ds.encoder),
-        "training_data": {
-            "source": str(ds.source), "sha256": ds.sha256, "n_rows": int(len(y)),
-            "class_counts": {c: int(n) for c, n in zip(ds.class_names, counts, strict=True)},
-            "study_fingerprint": info.get("fingerprint"), "study_dir": str(folder),
-        },
-        "density": {
-            "kind": density_kind, "score": "ELBO at the posterior mean (nats per row)" if elbo else
-            "log-density (nats per row)", "threshold": threshold, "quantile": FLAG_QUANTILE,
-            "training_quantiles": {str(q): float(np.quantile(scores, q))
-                                   for q in (0.001, 0.01, 0.05, 0.5)},
-        },
-        "semisup_version": __version__,
-    }
-    model.manifest = manifest
+    model.manifest = _manifest(study, labels, features, report, scores, threshold)
     if pool_frame is not None:
         pool_frame["accepted"] = (pool_frame["top_probability"] >= cut) & \
             ~pool_frame["out_of_distribution"]
     log.info("fit done in %.1f s", report["seconds"])
-    return FitResult(model=model, report=report, pseudo_labels=pool_frame, notes=notes)
+    return FitResult(model=model, report=report, pseudo_labels=pool_frame, notes=labels.notes)

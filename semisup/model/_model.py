@@ -10,42 +10,9 @@ import pandas as pd
 
 from ._prepare import InputCounts, check_columns, prepare_rows
 
-__all__ = ["FittedModel", "encoder_from_state", "encoder_state"]
+__all__ = ["FittedModel"]
 
 log = logging.getLogger(__name__)
-
-
-def encoder_state(encoder: Any) -> dict[str, Any]:
-    """JSON-ready state of a fitted :class:`~semisup.data.TableEncoder`."""
-    return {
-        "params": {"kinds": dict(encoder.kinds or {}), "min_level_count": int(
-            encoder.min_level_count), "max_levels": int(encoder.max_levels)},
-        "kinds": {str(k): str(v) for k, v in encoder.kinds_.items()},
-        "numeric": {c: [float(m), float(s), bool(h)]
-                    for c, (m, s, h) in encoder.numeric_params_.items()},
-        "categories": {c: [str(v) for v in levels] for c, levels in encoder.categories_.items()},
-        "blocks": [[b.kind, int(b.start), int(b.stop), str(b.column)] for b in encoder.blocks_],
-        "feature_names_in": [str(c) for c in encoder.feature_names_in_],
-        "feature_names_out": [str(c) for c in encoder.feature_names_out_],
-        "notes": [str(n) for n in encoder.notes_],
-    }
-
-
-def encoder_from_state(state: dict[str, Any]) -> Any:
-    """A fitted TableEncoder rebuilt from :func:`encoder_state` (no code is loaded)."""
-    from ..data import FeatureBlock, TableEncoder
-
-    enc = TableEncoder(**state["params"])
-    enc.kinds_ = dict(state["kinds"])
-    enc.numeric_params_ = {c: (float(m), float(s), bool(h))
-                           for c, (m, s, h) in state["numeric"].items()}
-    enc.categories_ = {c: list(v) for c, v in state["categories"].items()}
-    enc.blocks_ = tuple(FeatureBlock(k, int(a), int(b), c) for k, a, b, c in state["blocks"])
-    enc.feature_names_in_ = np.asarray(state["feature_names_in"], dtype=object)
-    enc.feature_names_out_ = np.asarray(state["feature_names_out"], dtype=object)
-    enc.n_features_in_ = len(state["feature_names_in"])
-    enc.notes_ = list(state["notes"])
-    return enc
 
 
 def _flag_scorer(density: Any) -> Any:
@@ -67,10 +34,11 @@ def _flag_scorer(density: Any) -> Any:
 class FittedModel:
     """The chosen method fitted on every label, ready to score new rows.
 
-    Use :func:`semisup.load_model` to read one from disk, ``predict`` / ``predict_proba`` on a
-    DataFrame of the training table's columns (extra columns are ignored), and
-    :meth:`predict_frame` for the full output table (classes, probabilities, top probability
-    and the out-of-distribution flag).
+    Use :func:`semisup.load_model` to read one from disk and :func:`semisup.model.save_model`
+    to write one (this object does no I/O), ``predict`` / ``predict_proba`` on a DataFrame of
+    the training table's columns (extra columns are ignored), and :meth:`predict_frame` for
+    the full output table (classes, probabilities, top probability and the
+    out-of-distribution flag).
 
     Attributes
     ----------
@@ -190,9 +158,3 @@ class FittedModel:
         ids = (frame[id_column].astype(str).to_numpy() if id_column
                else np.arange(len(frame)).astype(str))
         return self.output_frame(ids, self.encode(frame))
-
-    def save(self, path) -> Any:
-        """Write the model folder (see :func:`semisup.model.save_model`)."""
-        from ._file import save_model
-
-        return save_model(self, path)

@@ -60,7 +60,6 @@ def curve_options(
     label_price: float,
     labels_owned: int,
     cost_per_round: float,
-    batch_size: int | None = None,
     show: Iterable[float] = (),
 ) -> list[Option]:
     """Options of one curve: the budgets in ``show`` plus the cheapest one that meets the
@@ -79,7 +78,7 @@ def curve_options(
             continue
         cost, n_new, rounds = plan_cost(
             n_int, label_price=label_price, labels_owned=labels_owned,
-            cost_per_round=cost_per_round, strategy=strategy, batch_size=batch_size,
+            cost_per_round=cost_per_round,
         )
         out.append(Option(
             method=method, strategy=strategy, n_labels=n_int,

@@ -7,13 +7,13 @@ cost(n_labels) = n_new * expected price of one label + rounds * cost_per_round, 
   the expected class mix (the class shares among the labels owned so far) and ``price_k`` the
   class's own price if given, else ``cost_per_label``. The class of a row is unknown before it
   is labeled, so only the expected price can be known in advance;
-- ``rounds`` is 0 when nothing is bought, else ``ceil(n_new / batch_size)`` for a strategy
-  labeled in batches (uncertainty: the model is refitted between batches) and 1 otherwise.
+- ``rounds`` is 0 when nothing is bought, else 1: the plan buys its labels in one round (the
+  study simulates an uncertainty strategy budget by budget, not in batches of a fixed size,
+  so no batch size is known to split a purchase by).
 """
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 
 from .._errors import PlanError
@@ -53,13 +53,9 @@ def expected_label_price(
     return price
 
 
-def labeling_rounds(n_new: int, strategy: str, batch_size: int | None = None) -> int:
-    """Number of labeling rounds needed to buy ``n_new`` labels with ``strategy``."""
-    if n_new <= 0:
-        return 0
-    if strategy == "uncertainty" and batch_size:
-        return int(math.ceil(n_new / batch_size))
-    return 1
+def labeling_rounds(n_new: int) -> int:
+    """Number of labeling rounds needed to buy ``n_new`` labels (0 or 1)."""
+    return 0 if n_new <= 0 else 1
 
 
 def plan_cost(
@@ -68,10 +64,8 @@ def plan_cost(
     label_price: float,
     labels_owned: int = 0,
     cost_per_round: float = 0.0,
-    strategy: str = "random",
-    batch_size: int | None = None,
 ) -> tuple[float, int, int]:
     """Return ``(cost, n_new, rounds)`` of reaching a budget of ``n_labels`` labels."""
     n_new = max(0, int(n_labels) - int(labels_owned))
-    rounds = labeling_rounds(n_new, strategy, batch_size)
+    rounds = labeling_rounds(n_new)
     return n_new * float(label_price) + rounds * float(cost_per_round), n_new, rounds

@@ -481,8 +481,7 @@ def make_plan(
         eval_rows=eval_rows, eval_floor_rows=facts.eval_floor_rows, labels_owned=labels_owned,
         option_args={"target": request.target, "confidence": request.confidence,
                      "label_price": label_price, "labels_owned": labels_owned,
-                     "cost_per_round": request.cost_per_round,
-                     "batch_size": facts.batch_size})
+                     "cost_per_round": request.cost_per_round})
     warnings.extend(fc.warnings)
     curve_rows: list[dict] = []
     for (method, strategy), grp in cells.groupby(["method", "strategy"], sort=True):

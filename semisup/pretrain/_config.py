@@ -8,7 +8,8 @@ from typing import Any
 
 from .._errors import ConfigError
 
-__all__ = ["VAEConfig", "VAE_KINDS", "DECODER_VARIANCES", "SCALINGS", "check_number"]
+__all__ = ["VAEConfig", "VAE_KINDS", "DECODER_VARIANCES", "SCALINGS", "check_integer",
+           "check_number"]
 
 VAE_KINDS = ("vae", "ae")
 DECODER_VARIANCES = ("feature", "isotropic")
@@ -102,6 +103,11 @@ class VAEConfig:
 def _check_int(name: str, value: object, low: int) -> None:
     if isinstance(value, bool) or not isinstance(value, int) or value < low:
         raise ConfigError(f"{name}={value!r} is not allowed; give an integer >= {low}")
+
+
+def check_integer(name: str, value: object, low: int) -> None:
+    """ConfigError naming ``name`` unless ``value`` is an int (not a bool) >= ``low``."""
+    _check_int(name, value, low)
 
 
 def check_number(
