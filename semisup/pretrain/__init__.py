@@ -10,7 +10,12 @@
 from __future__ import annotations
 
 from ._config import VAEConfig
-from ._fit import REPRESENTATION_KINDS, fit_representation, representation_params
+from ._fit import (
+    REPRESENTATION_KINDS,
+    fit_representation,
+    representation_params,
+    representation_steps,
+)
 from ._likelihood import (
     BlockLayout,
     bernoulli_log_likelihood,
@@ -38,4 +43,5 @@ __all__ = [
     "kl_standard_normal",
     "layout_from_blocks",
     "representation_params",
+    "representation_steps",
 ]

@@ -8,7 +8,7 @@ import logging
 import math
 import sys
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 
 import torch
@@ -112,12 +112,15 @@ def train_module(
     *,
     shuffle_seed: int,
     monitor_eps: torch.Tensor,
+    on_epoch: Callable[[int, int], None] | None = None,
 ) -> TrainResult:
     """Fit ``module`` in place and leave it at the epoch with the best monitored objective.
 
     The monitored objective is the held-out (or, without held-out rows, training) ELBO with
     the final ``beta``; patience counts only after the KL warm-up. ``train_index`` picks the
     training rows of ``X`` (None = all rows), so no copy of the training rows is made.
+    ``on_epoch(epoch, max_epochs)``, if given, is called after every epoch and replaces the
+    log lines (a study reports its workers' epochs itself).
     """
     index = layout.tensors()
     n_rows = X.shape[0] if train_index is None else train_index.shape[0]
@@ -141,7 +144,8 @@ def train_module(
     bar = _progress_bar(config.max_epochs) if show_bar else None
     # not at a terminal: a line every tenth of the epochs or 30 s (an upper bound of the time
     # left: early stopping may end sooner)
-    lines = None if _is_terminal() else Progress(config.max_epochs, "VAE epochs")
+    lines = None if _is_terminal() or on_epoch is not None else Progress(config.max_epochs,
+                                                                         "VAE epochs")
     epoch = 0
     try:
         for epoch in range(1, config.max_epochs + 1):
@@ -195,6 +199,8 @@ def train_module(
             _report(bar, record, epoch, config.max_epochs, started)
             if lines is not None:
                 lines.update()
+            if on_epoch is not None:
+                on_epoch(epoch, config.max_epochs)
             if wait >= config.patience:
                 stopped_early = True
                 break
