@@ -114,7 +114,7 @@ def run(table: str, sizes: tuple[int, ...], second_seed_at: int | None,
     print(f"{table}: {n} rows x {X.shape[1]} encoded columns, label {label!r} "
           f"({len(ds.class_names)} classes); load average {os.getloadavg()[0]:.1f}", flush=True)
     plan = [(s, SEED) for s in sizes if s < n] + [(n, SEED)]
-    if second_seed_at is not None and second_seed_at < n:
+    if second_seed_at and second_seed_at < n:
         plan.append((second_seed_at, SEED + 1))
     for size, seed in plan:
         rows = stage_sample(np.arange(n), size, seed)

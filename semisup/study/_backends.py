@@ -14,6 +14,7 @@ ends the workers (:func:`stop_pool`).
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import logging
 import os
@@ -21,14 +22,15 @@ import signal
 import sys
 import threading
 import time
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
 from typing import Any
 
 from .._errors import ConfigError
 from ._cell import Cell, CellContext, run_cell
 from ._shared import open_shared, shared_paths
 
-__all__ = ["exit_with_parent", "ignore_interrupts", "run_cells", "stop_pool"]
+__all__ = ["exit_with_parent", "ignore_interrupts", "run_cells", "stop_pool",
+           "terminate_as_interrupt"]
 
 log = logging.getLogger(__name__)
 
@@ -99,6 +101,27 @@ def ignore_interrupts() -> None:
         signal.signal(signal.SIGINT, signal.SIG_IGN)
     except ValueError:  # pragma: no cover - not the main thread
         pass
+
+
+@contextlib.contextmanager
+def terminate_as_interrupt() -> Iterator[None]:
+    """While a pool runs, SIGTERM (``kill``, ``timeout``, a job scheduler) stops the study as
+    Ctrl-C does: the pool is stopped and its queues released, instead of the coordinator
+    dying at once and leaving its workers and their semaphores behind ("leaked semaphore
+    objects"). Only in the main thread and where SIGTERM still has its default action."""
+    if threading.current_thread() is not threading.main_thread() or \
+            signal.getsignal(signal.SIGTERM) is not signal.SIG_DFL:
+        yield
+        return
+
+    def interrupt(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt(f"signal {signum}")
+
+    signal.signal(signal.SIGTERM, interrupt)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
 
 
 def stop_pool(pool: Any, futures: Iterable[Any] = ()) -> None:
@@ -196,16 +219,17 @@ def _run_pool(
 ) -> None:
     from concurrent.futures import as_completed
 
-    pool = make_pool(jobs, _dumps(_with_shared_features(ctx)))
-    futures = []
-    try:
-        futures = [pool.submit(_run_in_worker, cell) for cell in cells]
-        for fut in as_completed(futures):
-            on_result(fut.result())
-        pool.shutdown(wait=True)
-    except BaseException:
-        stop_pool(pool, futures)
-        raise
+    with terminate_as_interrupt():
+        pool = make_pool(jobs, _dumps(_with_shared_features(ctx)))
+        futures = []
+        try:
+            futures = [pool.submit(_run_in_worker, cell) for cell in cells]
+            for fut in as_completed(futures):
+                on_result(fut.result())
+            pool.shutdown(wait=True)
+        except BaseException:
+            stop_pool(pool, futures)
+            raise
 
 
 def _run_dask(

@@ -305,35 +305,37 @@ def _fit_in_pool(tasks, args, out_files, workers, representation_fn, steps, resu
     import queue as queue_mod
     from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 
-    from ._backends import stop_pool
+    from ._backends import stop_pool, terminate_as_interrupt
 
     context = mp.get_context("spawn")
     step_queue = context.Queue()
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=context,
-                               initializer=_init_stage_worker,
-                               initargs=(step_queue, os.getpid()))
-    futures = {}
-    try:
-        futures = {pool.submit(_fit_in_worker, t, *args[t], representation_fn=representation_fn,
-                               out_file=out_files[t]): t for t in tasks}
-        pending = set(futures)
-        while pending:
-            done, pending = wait(pending, timeout=0.5, return_when=FIRST_COMPLETED)
-            _drain(step_queue, steps, queue_mod.Empty)
-            for fut in done:
-                t = futures[fut]
-                try:
-                    results[t] = fut.result()
-                except Exception as exc:  # noqa: BLE001  (its methods fail; others run)
-                    results[t] = exc
-                steps.finish(t)
-        pool.shutdown(wait=True)
-    except BaseException:
-        stop_pool(pool, futures)
-        raise
-    finally:
-        step_queue.close()
-        step_queue.join_thread()
+    futures: dict[Any, tuple[str, int]] = {}
+    with terminate_as_interrupt():
+        pool = ProcessPoolExecutor(max_workers=workers, mp_context=context,
+                                   initializer=_init_stage_worker,
+                                   initargs=(step_queue, os.getpid()))
+        try:
+            for t in tasks:
+                futures[pool.submit(_fit_in_worker, t, *args[t], out_file=out_files[t],
+                                    representation_fn=representation_fn)] = t
+            pending = set(futures)
+            while pending:
+                done, pending = wait(pending, timeout=0.5, return_when=FIRST_COMPLETED)
+                _drain(step_queue, steps, queue_mod.Empty)
+                for fut in done:
+                    t = futures[fut]
+                    try:
+                        results[t] = fut.result()
+                    except Exception as exc:  # noqa: BLE001  (its methods fail; others run)
+                        results[t] = exc
+                    steps.finish(t)
+            pool.shutdown(wait=True)
+        except BaseException:
+            stop_pool(pool, futures)
+            raise
+        finally:
+            step_queue.close()
+            step_queue.join_thread()
 
 
 def _drain(step_queue: Any, steps: _StageSteps, empty: type[Exception]) -> None:
