@@ -222,13 +222,17 @@ def test_sigterm_during_the_stage_stops_the_workers_without_leaked_semaphores(tm
     proc = subprocess.Popen([sys.executable, str(script), str(ROOT / "tests")], cwd=tmp_path,
                             env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     cache = tmp_path / "out" / "cache"
-    deadline = time.monotonic() + 600  # liveness: both workers are inside the stage
-    while len(list(cache.glob("worker-*"))) < 2 and time.monotonic() < deadline:
-        time.sleep(0.2)
-    pids = [int(p.name.split("-")[1]) for p in cache.glob("worker-*")]
-    assert len(pids) == 2
-    proc.send_signal(signal.SIGTERM)
-    out, err = proc.communicate(timeout=60)
+    try:
+        deadline = time.monotonic() + 600  # liveness: both workers are inside the stage
+        while len(list(cache.glob("worker-*"))) < 2 and time.monotonic() < deadline:
+            time.sleep(0.2)
+        pids = [int(p.name.split("-")[1]) for p in cache.glob("worker-*")]
+        assert len(pids) == 2
+        proc.send_signal(signal.SIGTERM)
+        out, err = proc.communicate(timeout=300)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
     assert proc.returncode == 130 and "stopped" in out
     # Python's resource tracker prints this when a pool's semaphores outlive their process
     assert "leaked semaphore" not in err
