@@ -15,12 +15,11 @@ from __future__ import annotations
 import argparse
 import os
 import sys
-import tempfile
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from bench_large_study import make_table, run_logged  # noqa: E402
+from bench_large_study import run_logged, table_in  # noqa: E402
 
 TIMING = ("seconds", "tune_seconds", "fit_seconds")
 
@@ -34,11 +33,7 @@ def main() -> None:
     ap.add_argument("--extra", nargs=argparse.REMAINDER, default=[],
                     help="more arguments for semisup study (both runs)")
     args = ap.parse_args()
-    work = args.workdir or Path(tempfile.mkdtemp(prefix="semisup-dask-"))
-    work.mkdir(parents=True, exist_ok=True)
-    table = work / "big.parquet"
-    if not table.exists():
-        make_table(table, args.rows)
+    work, table = table_in(args.workdir, args.rows)
     print(f"{args.rows:,} rows; load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} "
           "cores", flush=True)
     base = [sys.executable, "-m", "semisup", "study", str(table), "--label-column", "y",

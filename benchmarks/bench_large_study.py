@@ -69,6 +69,17 @@ def make_table(path: Path, n_rows: int, n_labels: int = 500, seed: int = 0) -> N
     frame.to_parquet(path, index=False)
 
 
+def table_in(workdir: Path | None, n_rows: int) -> tuple[Path, Path]:
+    """(work folder, table): the generated table of ``n_rows`` rows in ``workdir`` (a new
+    temporary folder when None), made unless it is there already."""
+    work = workdir or Path(tempfile.mkdtemp(prefix="semisup-large-"))
+    work.mkdir(parents=True, exist_ok=True)
+    table = work / "big.parquet"
+    if not table.exists():
+        make_table(table, n_rows)
+    return work, table
+
+
 def _tree(pid: int) -> list[int]:
     """``pid`` and every descendant (from /proc)."""
     children: dict[int, list[int]] = {}
@@ -166,12 +177,8 @@ def main() -> None:
     ap.add_argument("--extra", nargs=argparse.REMAINDER, default=[],
                     help="more arguments for semisup study")
     args = ap.parse_args()
-    work = args.workdir or Path(tempfile.mkdtemp(prefix="semisup-large-"))
-    work.mkdir(parents=True, exist_ok=True)
-    table = work / "big.parquet"
     t0 = time.perf_counter()
-    if not table.exists():
-        make_table(table, args.rows)
+    work, table = table_in(args.workdir, args.rows)
     print(f"table {table}: {args.rows:,} rows ({time.perf_counter() - t0:.0f}s to make); "
           f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores", flush=True)
     py = sys.executable
