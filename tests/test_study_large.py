@@ -50,7 +50,7 @@ def test_choose_stage_samples_and_shares_one_draw_past_the_cap():
     assert (small.fit_rows, small.draws) == (50_000, "per-repeat")
     large = choose_stage(1_000_000)
     assert (large.fit_rows, large.draws, large.chosen_by) == (100_000, "one", "auto")
-    assert "seeded sample of 100,000 rows" in large.reason
+    assert "seeded sample of 100,000 of its 1,000,000 rows" in large.reason
     # the user's settings win over the size rule
     assert choose_stage(1_000_000, "all").fit_rows == 1_000_000
     assert choose_stage(1_000_000, "all").draws == "per-repeat"
@@ -88,8 +88,8 @@ def test_a_table_past_stage_rows_fits_one_draw_on_a_sample(tmp_path, roles, big,
     assert info["spec"]["stage_draws"] == "one"
     assert info["evaluation"]["representation_fit"]["n_rows"] == 1000
     assert any("seeded random sample of 1,000" in note for note in info["protocol"])
-    said = [r.getMessage() for r in caplog.records if "unsupervised stage:" in r.getMessage()]
-    assert len(said) == 1 and "sample of 1,000 rows" in said[0] and "one draw" in said[0]
+    said = [r.getMessage() for r in caplog.records if "unsupervised stage is" in r.getMessage()]
+    assert len(said) == 1 and "sample of 1,000 of its" in said[0] and "one draw" in said[0]
     # every row is encoded: the candidates hold the stage's features of every unlabeled row
     with np.load(tmp_path / "candidates.npz", allow_pickle=False) as cand:
         assert cand["representation"].shape[0] == int(np.sum(big.y < 0))

@@ -80,8 +80,8 @@ def choose_stage(n_rows: int, stage_rows: int | str = "auto",
     draws = stage_draws if stage_draws != "auto" else ("one" if large else "per-repeat")
     chosen_by = "auto" if "auto" in (stage_rows, stage_draws) else "spec"
     if large:
-        reason = (f"{n_rows:,} rows are more than {cap:,}: the unsupervised stage is fitted on "
-                  f"a seeded sample of {fit_rows:,} rows and encodes every row")
+        reason = (f"the unsupervised stage is fitted on a seeded sample of {fit_rows:,} of its "
+                  f"{n_rows:,} rows (more than {cap:,}) and encodes every row")
         if stage_rows == "auto":
             reason += f" ({STAGE_SAMPLE_EVIDENCE})"
     else:
@@ -253,7 +253,7 @@ def fit_representations(
     if not kinds:
         return features, diagnostics, errors, seconds
     if stage is not None:
-        log.info("unsupervised stage: %s", stage.reason)
+        log.info("%s", stage.reason)
     cache = Path(out_dir) / "cache"
     tasks = [(kind, r) for kind in sorted(kinds) for r in range(max(1, int(repeats)))]
     rows = np.asarray(fit_rows)
