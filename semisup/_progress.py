@@ -3,13 +3,17 @@
 A person at a terminal gets tqdm's bar (as before). When stderr is a file, a pipe or a job
 log, a bar would be a wall of carriage returns; instead :class:`Progress` writes one line
 every tenth of the work or every 30 seconds, whichever comes first, and one at the end:
-``cells 120/360, 2m10s, about 3m left``.
+``cells 120/360, 2m10s, about 3m left``. With ``heartbeat``, a background thread also writes
+the current line when nothing finished for ``every_seconds`` (one long cell or epoch), so a
+log never stays silent longer than that. Work that runs in other processes reports through
+the coordinator's :class:`Progress` (``update`` from the thread that collects results).
 """
 
 from __future__ import annotations
 
 import logging
 import sys
+import threading
 import time
 from collections.abc import Callable
 from typing import IO, Any
@@ -58,12 +62,19 @@ class Progress:
         A line after this share of the work or this many seconds since the last line.
     clock : callable
         Seconds, monotonic (injected by tests).
+    heartbeat : float, optional
+        Check every this many seconds (a daemon thread) whether ``every_seconds`` passed
+        without a line, and write one then (not on a terminal: the bar shows the time).
+    at_most : bool
+        The total is an upper bound (epochs with early stopping): the time left is shown as
+        ``at most ...``.
     """
 
     def __init__(self, total: int, what: str, *, enabled: bool | None = None,
                  stream: IO[str] | None = None, every_fraction: float = 0.1,
                  every_seconds: float = 30.0,
-                 clock: Callable[[], float] = time.monotonic) -> None:
+                 clock: Callable[[], float] = time.monotonic,
+                 heartbeat: float | None = None, at_most: bool = False) -> None:
         self.total = max(0, int(total))
         self.what = what
         self.done = 0
@@ -79,9 +90,30 @@ class Progress:
         self._step = max(1, int(round(every_fraction * self.total)))
         self._every_seconds = float(every_seconds)
         self._bar: Any = None
+        self._at_most = bool(at_most)
+        self._lock = threading.Lock()
+        self._stop = threading.Event()
+        self._thread: threading.Thread | None = None
         self.lines: int = 0
         if self._enabled and bool(getattr(self._stream, "isatty", lambda: False)()):
             self._bar = _bar(self.total, what, self._stream)
+        if self._enabled and self._bar is None and heartbeat:
+            self._thread = threading.Thread(target=self._beat, args=(float(heartbeat),),
+                                            name="semisup-progress", daemon=True)
+            self._thread.start()
+
+    def _beat(self, every: float) -> None:
+        while not self._stop.wait(every):
+            self.tick()
+
+    def tick(self) -> None:
+        """Write the current line if ``every_seconds`` passed since the last one."""
+        if not self._enabled or self._bar is not None:
+            return
+        with self._lock:
+            now = self._clock()
+            if now - self._last_time >= self._every_seconds and self.done < self.total:
+                self._line(now)
 
     def update(self, n: int = 1, *, failed: bool = False) -> None:
         """``n`` more items finished (``failed``: they failed)."""
@@ -94,10 +126,11 @@ class Progress:
             self._bar.update(n)
             self._bar.set_postfix(failed=self.failed)
             return
-        now = self._clock()
-        if (self.done >= self.total or self.done - self._last_done >= self._step
-                or now - self._last_time >= self._every_seconds):
-            self._line(now)
+        with self._lock:
+            now = self._clock()
+            if (self.done >= self.total or self.done - self._last_done >= self._step
+                    or now - self._last_time >= self._every_seconds):
+                self._line(now)
 
     def line(self) -> str:
         """The current progress line (without the newline)."""
@@ -107,7 +140,10 @@ class Progress:
         elapsed = now - self._start
         text = f"{self.what} {self.done}/{self.total}, {format_duration(elapsed)}"
         if 0 < self.done < self.total:
-            text += f", {_about(elapsed / self.done * (self.total - self.done))} left"
+            left = _about(elapsed / self.done * (self.total - self.done))
+            if self._at_most:
+                left = "under 10s" if left == "under 10s" else left.replace("about", "at most")
+            text += f", {left} left"
         if self.failed:
             text += f", {self.failed} failed"
         return text
@@ -119,6 +155,10 @@ class Progress:
         self._last_time, self._last_done = now, self.done
 
     def close(self) -> None:
+        self._stop.set()
+        if self._thread is not None:
+            self._thread.join()
+            self._thread = None
         if self._bar is not None:
             self._bar.close()
             self._bar = None

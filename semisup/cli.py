@@ -44,6 +44,23 @@ def _positive_int(text: str) -> int:
     return value
 
 
+def _stage_rows(text: str) -> int | str:
+    """argparse type of --stage-rows: auto, all or a whole number (the spec checks its size)."""
+    if text in ("auto", "all"):
+        return text
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not allowed; give auto, all or a whole number, e.g. 200000") from None
+
+
+def _stage_rows_default() -> str:
+    from .study import STAGE_SAMPLE_ROWS
+
+    return f"auto, {STAGE_SAMPLE_ROWS:,} rows"
+
+
 def _add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--quiet", "-q", action="store_true", help="only errors on stderr")
     p.add_argument("--verbose", "-v", action="store_true", help="detailed progress on stderr")
@@ -107,6 +124,7 @@ def help_defaults() -> dict[str, str]:
         "evaluation": str(_field_default(StudySpec, "evaluation")),
         "folds": str(_field_default(StudySpec, "folds")),
         "stage_draws": str(_field_default(StudySpec, "stage_draws")),
+        "stage_rows": _stage_rows_default(),
         "confidence": f"{_field_default(PlanRequest, 'confidence'):g}",
         "cost_per_round": f"{_field_default(PlanRequest, 'cost_per_round'):g}",
         "metrics": ", ".join(METRICS),
@@ -185,10 +203,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--transductive", action="store_true",
                    help="let the methods (and, with a holdout or test file, the unsupervised "
                         "stage) see the evaluation rows' features (never their labels)")
-    p.add_argument("--stage-draws", choices=("per-repeat", "one"),
+    p.add_argument("--stage-draws", choices=("auto", "per-repeat", "one"),
                    help=f"fit the unsupervised stage once per repeat (its randomness is in the "
-                        f"intervals) or once for the study (faster on large tables) "
-                        f"(default: {d['stage_draws']})")
+                        f"intervals) or once for the study (faster on large tables); auto: "
+                        f"once past --stage-rows rows (default: {d['stage_draws']})")
+    p.add_argument("--stage-rows", type=_stage_rows, metavar="N",
+                   help=f"fit the unsupervised stage on a seeded sample of at most N rows and "
+                        f"encode every row; 'all' for every row (default: {d['stage_rows']})")
     p.add_argument("--jobs", type=_positive_int, default=None, metavar="N",
                    help="worker processes (default: all cores)")
     p.add_argument("--cluster", metavar="ADDR",
@@ -393,6 +414,7 @@ def _cmd_study(args: argparse.Namespace) -> int:
         "test_data": args.test_file,
         "transductive": True if args.transductive else None,
         "stage_draws": args.stage_draws,
+        "stage_rows": args.stage_rows,
     }
     spec = StudySpec.build(config=args.config, overrides=overrides)
     out = args.out or Path(f"{args.data.stem}-study")

@@ -13,7 +13,12 @@
 from __future__ import annotations
 
 from ._config import VAEConfig, check_integer, check_number
-from ._fit import REPRESENTATION_KINDS, fit_representation, representation_params
+from ._fit import (
+    REPRESENTATION_KINDS,
+    fit_representation,
+    representation_params,
+    representation_steps,
+)
 from ._likelihood import (
     BlockLayout,
     bernoulli_log_likelihood,
@@ -48,6 +53,7 @@ __all__ = [
     "pinned_threads",
     "reconstruction_log_likelihood",
     "representation_params",
+    "representation_steps",
     "torch_state",
     "train_epochs",
 ]

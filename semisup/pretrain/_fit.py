@@ -6,7 +6,7 @@ import logging
 import os
 import shutil
 import warnings
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -18,7 +18,7 @@ from ._cache import REFIT_FIX, cache_key, entry_dir, load_entry, save_entry
 from ._mixture import MixtureTransformer
 from ._vae_transformer import VAETransformer
 
-__all__ = ["REPRESENTATION_KINDS", "fit_representation"]
+__all__ = ["REPRESENTATION_KINDS", "fit_representation", "representation_steps"]
 
 logger = logging.getLogger(__name__)
 
@@ -46,6 +46,15 @@ def representation_params(kind: str, params: dict[str, Any] | None = None) -> di
                           f"({exc}); fix them") from None
     return {k: v for k, v in estimator.get_params(deep=False).items()
             if k not in ("blocks", "progress", "random_state")}
+
+
+def representation_steps(kind: str, params: dict[str, Any] | None = None) -> int:
+    """The most steps a fit of ``kind`` reports through ``on_step``: the VAE's
+    ``max_epochs`` (early stopping may end sooner), the mixture's candidates plus its refit."""
+    estimator = _estimator(kind, dict(params or {}), None, 0)
+    if kind == "vae":
+        return int(estimator.config().max_epochs)
+    return int(estimator.n_steps())
 
 
 def _estimator(kind: str, params: dict[str, Any], blocks: Sequence | None, seed: int):
@@ -77,6 +86,7 @@ def fit_representation(
     params: dict[str, Any] | None = None,
     seed: int = 0,
     cache_dir: str | os.PathLike[str] | None = None,
+    on_step: Callable[[int, int], None] | None = None,
 ) -> tuple[VAETransformer | MixtureTransformer, dict[str, Any]]:
     """Fit the unsupervised representation ``kind`` ("vae" or "mixture") on the rows of X.
 
@@ -85,6 +95,8 @@ def fit_representation(
     (``diagnostics["loaded_from_cache"]`` is True) and gives identical ``transform`` output.
     The estimator's seed is ``derive_seed(seed, "pretrain", kind)``. ``blocks`` (the
     Dataset's) set the VAE's per-column likelihood; the mixture models all columns jointly.
+    ``on_step(done, total)`` reports the fit's progress (VAE epochs, mixture candidates; see
+    :func:`representation_steps`); a load from the cache reports nothing.
 
     Returns
     -------
@@ -127,7 +139,7 @@ def fit_representation(
         if loaded is not None:
             logger.info("%s representation loaded from cache %s", kind, folder)
             return loaded, _with_cache(loaded.diagnostics_, key, folder)
-    estimator.fit(X)
+    estimator.fit(X, on_step=on_step)
     if folder is not None:
         save_entry(folder, key, estimator)
         logger.info("%s representation saved to cache %s", kind, folder)

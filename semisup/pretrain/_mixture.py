@@ -6,6 +6,7 @@ from __future__ import annotations
 import logging
 import math
 import time
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -207,13 +208,24 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             **extra,
         )
 
-    def fit(self, X: Any, y: Any = None) -> MixtureTransformer:
-        """Select and fit the mixture on the rows of ``X`` (labels are ignored)."""
+    def fit(self, X: Any, y: Any = None, *,
+            on_step: Callable[[int, int], None] | None = None) -> MixtureTransformer:
+        """Select and fit the mixture on the rows of ``X`` (labels are ignored).
+
+        ``on_step(done, total)``, if given, is called after each candidate of the grid and
+        after the final fit (a study's progress).
+        """
         counts, types = self._check_params()
         with threadpool_limits(limits=self.n_threads):
-            return self._fit(X, counts, types)
+            return self._fit(X, counts, types, on_step)
 
-    def _fit(self, X: Any, counts: list[int], types: list[str]) -> MixtureTransformer:
+    def n_steps(self) -> int:
+        """Fits :meth:`fit` makes (grid candidates plus the refit): the ``total`` of on_step."""
+        counts, types = self._check_params()
+        return len(counts) * len(types) + 1
+
+    def _fit(self, X: Any, counts: list[int], types: list[str],
+             on_step: Callable[[int, int], None] | None = None) -> MixtureTransformer:
         started = time.perf_counter()
         X = checked_rows(self, X, dtype=[np.float64, np.float32], reset=True)
         n_rows = X.shape[0]
@@ -232,6 +244,12 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         else:
             X_sel = X
         grid = [(k, t) for t in types for k in fitted_counts]
+        n_steps = len(counts) * len(types) + 1
+
+        def step(done: int) -> None:
+            if on_step is not None:
+                on_step(done, n_steps)
+
         selection: list[dict[str, Any]] = []
         best: GaussianMixture | None = None
         best_bic = math.inf
@@ -251,6 +269,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
                 continue
             bic = float(gm.bic(X_sel)) if len(grid) > 1 else None
             selection.append({"n_components": k, "covariance_type": cov, "bic": bic})
+            step(len(selection))
             if best is None or (bic is not None and bic < best_bic):
                 best, best_bic = gm, bic
         if best is None:
@@ -270,6 +289,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             ).fit(X)
         else:
             final = best
+        step(n_steps)
         self.n_components_ = int(final.n_components)
         self.covariance_type_ = str(final.covariance_type)
         self.weights_ = final.weights_

@@ -264,6 +264,23 @@ class _VAEEpochs:
         return monitored
 
 
+class _EpochHook:
+    """Stands in for ``Progress`` in :func:`train_epochs`: calls ``on_epoch(epoch, total)``."""
+
+    def __init__(self, on_epoch: Callable[[int, int], None], total: int):
+        self.on_epoch, self.total, self.done = on_epoch, total, 0
+
+    def __enter__(self) -> _EpochHook:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        return None
+
+    def update(self, n: int = 1) -> None:
+        self.done += n
+        self.on_epoch(self.done, self.total)
+
+
 def train_module(
     module: VAEModule,
     X: torch.Tensor,
@@ -274,12 +291,15 @@ def train_module(
     *,
     shuffle_seed: int,
     monitor_eps: torch.Tensor,
+    on_epoch: Callable[[int, int], None] | None = None,
 ) -> TrainResult:
     """Fit ``module`` in place and leave it at the epoch with the best monitored objective.
 
     The monitored objective is the held-out (or, without held-out rows, training) ELBO with
     the final ``beta``; patience counts only after the KL warm-up. ``train_index`` picks the
     training rows of ``X`` (None = all rows), so no copy of the training rows is made.
+    ``on_epoch(epoch, max_epochs)``, if given, is called after every epoch and replaces the
+    progress lines (a study reports its workers' epochs itself).
     """
     epochs = _VAEEpochs(module, X, train_index, X_val, layout, config, shuffle_seed,
                         monitor_eps)
@@ -288,7 +308,8 @@ def train_module(
     # the epochs or 30 s when the semisup logger shows info (an upper bound of the time left:
     # early stopping may end sooner)
     enabled = config.progress if _is_terminal() else None
-    with Progress(config.max_epochs, "VAE epochs", enabled=enabled) as progress:
+    with (Progress(config.max_epochs, "VAE epochs", enabled=enabled) if on_epoch is None
+          else _EpochHook(on_epoch, config.max_epochs)) as progress:
         loop = train_epochs(
             module, optimizer, epochs.losses, max_epochs=config.max_epochs,
             monitor=epochs.monitor, patience=config.patience, tol=config.tol,

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import logging
 import time
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -131,8 +132,13 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
 
     # -- fitting -----------------------------------------------------------------------------
 
-    def fit(self, X: Any, y: Any = None) -> VAETransformer:
-        """Fit on the rows of ``X`` (labels, if given, are ignored)."""
+    def fit(self, X: Any, y: Any = None, *,
+            on_step: Callable[[int, int], None] | None = None) -> VAETransformer:
+        """Fit on the rows of ``X`` (labels, if given, are ignored).
+
+        ``on_step(epoch, max_epochs)``, if given, is called after every epoch (a study's
+        progress; early stopping may end before ``max_epochs``).
+        """
         started = time.perf_counter()
         seed = self._seed()
         cfg = self.config(seed)
@@ -168,6 +174,7 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
                 cfg,
                 shuffle_seed=derive_seed(seed, "vae", "shuffle"),
                 monitor_eps=torch.from_numpy(draws[0]),
+                on_epoch=on_step,
             )
             self.module_ = module
             self.layout_ = layout

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from ._draws import default_budgets, nested_draws, split_holdout
 from ._metrics import METRICS, holdout_metrics, summarize_curves, wilson_interval
+from ._representations import STAGE_SAMPLE_ROWS
 from ._rounds import ADDED_LABELS_FILE, SHEET_STUDY_COLUMN, AddResult, add_labels, study_id
 from ._runner import StudyResult, run_study
 from ._spec import StudySpec
@@ -12,6 +13,7 @@ __all__ = [
     "ADDED_LABELS_FILE",
     "METRICS",
     "SHEET_STUDY_COLUMN",
+    "STAGE_SAMPLE_ROWS",
     "AddResult",
     "StudyResult",
     "StudySpec",

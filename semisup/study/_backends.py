@@ -2,23 +2,35 @@
 
 Every backend takes the shared :class:`CellContext` once (process-pool initializer / Dask
 scatter), runs :func:`run_cell` on each cell, and hands each finished row back to the
-coordinator's ``on_result`` as it arrives; only the coordinator writes the store.
+coordinator's ``on_result`` as it arrives; only the coordinator writes the store. The
+feature matrices travel as the paths of their shared files (study/_shared.py) when they are
+such files and the workers share this machine's disk (the local pool, ``local-cluster``),
+and are opened memory-mapped there: one copy in memory whatever the number of workers.
+
+Interrupting the coordinator (Ctrl-C) stops the workers and releases the pool's queues and
+locks: the workers ignore SIGINT, and the coordinator cancels the cells not yet started and
+ends the workers (:func:`stop_pool`).
 """
 
 from __future__ import annotations
 
+import contextlib
+import dataclasses
 import logging
 import os
+import signal
 import sys
 import threading
 import time
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Iterator
 from typing import Any
 
 from .._errors import ConfigError
 from ._cell import Cell, CellContext, run_cell
+from ._shared import open_shared, shared_paths
 
-__all__ = ["run_cells"]
+__all__ = ["exit_with_parent", "ignore_interrupts", "run_cells", "stop_pool",
+           "terminate_as_interrupt"]
 
 log = logging.getLogger(__name__)
 
@@ -79,14 +91,78 @@ def _exit_with_parent(parent_pid: int) -> None:
     threading.Thread(target=watch, name="semisup-parent-watch", daemon=True).start()
 
 
+exit_with_parent = _exit_with_parent
+
+
+def ignore_interrupts() -> None:
+    """A worker ignores Ctrl-C (SIGINT goes to the whole process group): its coordinator
+    catches it and stops the pool, so no worker dies half-way through a queue operation."""
+    try:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except ValueError:  # pragma: no cover - not the main thread
+        pass
+
+
+@contextlib.contextmanager
+def terminate_as_interrupt() -> Iterator[None]:
+    """While a pool runs, SIGTERM (``kill``, ``timeout``, a job scheduler) stops the study as
+    Ctrl-C does: the pool is stopped and its queues released, instead of the coordinator
+    dying at once and leaving its workers and their semaphores behind ("leaked semaphore
+    objects"). Only in the main thread and where SIGTERM still has its default action."""
+    if threading.current_thread() is not threading.main_thread() or \
+            signal.getsignal(signal.SIGTERM) is not signal.SIG_DFL:
+        yield
+        return
+
+    def interrupt(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt(f"signal {signum}")
+
+    signal.signal(signal.SIGTERM, interrupt)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def stop_pool(pool: Any, futures: Iterable[Any] = ()) -> None:
+    """Stop a process pool at once: cancel what has not started, end the workers, close the
+    pool's queues (an interrupted coordinator leaves no worker and no semaphore behind)."""
+    for fut in futures:
+        fut.cancel()
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    for proc in processes:
+        if proc.is_alive():
+            proc.terminate()
+    pool.shutdown(wait=True, cancel_futures=True)
+    for proc in processes:
+        proc.join(timeout=5)
+
+
+def _with_shared_features(ctx: CellContext) -> tuple[CellContext, dict[str, str] | None]:
+    """``ctx`` without its feature matrices and their files' paths, when every one is a
+    shared file; else ``ctx`` itself and None."""
+    paths = shared_paths(ctx.features)
+    if paths is None:
+        return ctx, None
+    return dataclasses.replace(ctx, features={}), paths
+
+
+def _attach_features(ctx: CellContext, paths: dict[str, str] | None) -> CellContext:
+    if paths:
+        ctx.features = {key: open_shared(path) for key, path in paths.items()}
+    return ctx
+
+
 def _init_worker(payload: bytes, parent_pid: int | None = None) -> None:
     import pickle
 
     global _WORKER_CTX
     if parent_pid is not None:
         _exit_with_parent(parent_pid)
+    ignore_interrupts()
     _one_thread()
-    _WORKER_CTX = pickle.loads(payload)
+    loaded = pickle.loads(payload)
+    _WORKER_CTX = _attach_features(*loaded) if isinstance(loaded, tuple) else loaded
 
 
 def make_pool(jobs: int, payload: bytes):
@@ -100,6 +176,22 @@ def make_pool(jobs: int, payload: bytes):
         max_workers=jobs, mp_context=mp.get_context("spawn"),
         initializer=_init_worker, initargs=(payload, os.getpid()),
     )
+
+
+#: The context a Dask worker opened from its shared files, by the files' paths.
+_DASK_CTX: dict[Any, CellContext] = {}
+
+
+def _run_shipped(shipped: tuple[CellContext, dict[str, str] | None], cell: Cell
+                 ) -> dict[str, Any]:
+    ctx, paths = shipped
+    if paths:
+        key = tuple(sorted(paths.items()))
+        if key not in _DASK_CTX:
+            _DASK_CTX.clear()
+            _DASK_CTX[key] = _attach_features(dataclasses.replace(ctx), paths)
+        ctx = _DASK_CTX[key]
+    return run_cell(ctx, cell)
 
 
 def _run_in_worker(cell: Cell) -> dict[str, Any]:
@@ -127,14 +219,16 @@ def _run_pool(
 ) -> None:
     from concurrent.futures import as_completed
 
-    with make_pool(jobs, _dumps(ctx)) as pool:
-        futures = [pool.submit(_run_in_worker, cell) for cell in cells]
+    with terminate_as_interrupt():
+        pool = make_pool(jobs, _dumps(_with_shared_features(ctx)))
+        futures = []
         try:
+            futures = [pool.submit(_run_in_worker, cell) for cell in cells]
             for fut in as_completed(futures):
                 on_result(fut.result())
+            pool.shutdown(wait=True)
         except BaseException:
-            for fut in futures:
-                fut.cancel()
+            stop_pool(pool, futures)
             raise
 
 
@@ -169,8 +263,11 @@ def _run_dask(
         )
     try:
         client.run(_one_thread)
-        ctx_future = client.scatter(ctx, broadcast=True)  # shipped once to every worker
-        futures = [client.submit(run_cell, ctx_future, cell, pure=False) for cell in cells]
+        # Workers on this machine open the shared feature files; a remote cluster gets the
+        # matrices themselves, shipped once to every worker.
+        shipped = _with_shared_features(ctx) if own_cluster is not None else (ctx, None)
+        ctx_future = client.scatter(shipped, broadcast=True)
+        futures = [client.submit(_run_shipped, ctx_future, cell, pure=False) for cell in cells]
         for fut in as_completed(futures):
             on_result(fut.result())
     finally:

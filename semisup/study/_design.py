@@ -22,6 +22,7 @@ import pandas as pd
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
 from ._draws import crossfit_folds, default_budgets, split_holdout
+from ._representations import choose_stage, stage_sample
 from ._spec import StudySpec
 from ._testfile import load_test_rows
 
@@ -65,6 +66,8 @@ class StudyDesign:
     pool_parts: dict[int, list[tuple[int, int]]] = dataclasses.field(default_factory=dict)
     #: per representation kind ("raw" too), a digest of what its features depend on
     representation_keys: dict[str, str] = dataclasses.field(default_factory=dict)
+    #: the unsupervised stage's rows and draws (study/_representations.choose_stage)
+    stage: Any = None
 
     def eval_idx(self, repeat: int) -> np.ndarray:
         return self.evals[self.repeat_fold[repeat]]
@@ -134,8 +137,9 @@ def _settings_fingerprint(resolved: StudySpec, kinds: set[str], data_digest: str
                           injected_representation: bool, test: Any) -> str:
     # The tables' paths are left out (their content hashes are in): moving a file keeps the
     # study.
+    # stage_rows changes the stage's rows, which the latent cells' keys hash (not every cell)
     facts = {k: v for k, v in resolved.to_dict().items()
-             if k not in ("data", "test_data", *GROWING_KEYS)}
+             if k not in ("data", "test_data", "stage_rows", *GROWING_KEYS)}
     if test is not None:
         facts["test_data_sha256"] = test.sha256
     if kinds:
@@ -290,6 +294,9 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         n_folds = 1
         where = "labeled rows of the table"
 
+    # large tables: the stage is fitted on a seeded sample and once for every repeat
+    stage = choose_stage(len(rep_rows), spec.stage_rows, spec.stage_draws)
+    rep_rows = stage_sample(rep_rows, stage.fit_rows, spec.seed)
     # the rounds' rows are training rows of every repeat, after the table's own (so the
     # random draws of a smaller pool stay prefixes): DEVELOPERS.md "The study protocol"
     base_pool = min(len(p) for p in pools.values())
@@ -306,7 +313,8 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
             f"study option 'budgets': {too_big[0]} is larger than the pool ({n_pool} {where}); "
             f"use budgets up to {n_pool}"
         )
-    resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
+    resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets),
+                            stage_draws=stage.draws)
     kinds = {m.representation for m in methods.values()} - {"raw"}
     settings = _settings_fingerprint(resolved, kinds, data_digest, injected_representation,
                                      test)
@@ -321,7 +329,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         pools=pools, repeat_fold=repeat_fold, representation_rows=rep_rows,
         final_train_idx=final, budgets=budgets, methods=methods, kinds=kinds,
         fingerprint=fingerprint, test=test, settings_fingerprint=settings,
-        n_added_labels=n_added, pool_parts=pool_parts,
+        n_added_labels=n_added, pool_parts=pool_parts, stage=stage,
         representation_keys=_representation_keys(resolved, kinds, data_digest,
                                                   injected_representation, test, rep_rows),
     )

@@ -73,10 +73,16 @@ ROUNDS_NOTE = (
 )
 
 
-def protocol_notes(protocol: str, rounds: bool = False, one_draw: bool = False) -> list[str]:
+def protocol_notes(protocol: str, rounds: bool = False, one_draw: bool = False,
+                   stage_sample: int | None = None) -> list[str]:
     """The protocol lines study.json records for evaluation ``protocol`` (``rounds``: the
-    study holds labels returned in labeling rounds; ``one_draw``: ``stage_draws = "one"``)."""
+    study holds labels returned in labeling rounds; ``one_draw``: ``stage_draws = "one"``;
+    ``stage_sample``: the stage is fitted on a seeded sample of that many of its rows)."""
     notes = [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES, *([ROUNDS_NOTE] if rounds else [])]
+    if stage_sample is not None:
+        notes.insert(len(_EVALUATION_NOTES[protocol]), (
+            f"large table: the unsupervised stage is fitted on a seeded random sample of "
+            f"{stage_sample:,} of the rows named above (stage_rows) and then encodes every row"))
     if one_draw:
         shared = ("fitted once for the study (stage_draws = \"one\": one seeded draw shared "
                   "by every repeat, so its randomness is in no interval)")
@@ -133,6 +139,13 @@ def evaluation_facts(design: Any) -> dict[str, Any]:
             "class_counts": _counts(test.y, np.arange(len(test.y)), names),
         },
     }
+
+
+def _sample_rows(design: Any) -> int | None:
+    stage = getattr(design, "stage", None)
+    if not design.kinds or stage is None or stage.fit_rows >= stage.n_rows:
+        return None
+    return int(stage.fit_rows)
 
 
 def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: dict,
@@ -207,9 +220,11 @@ def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: 
         "selection_representation": order_kind,
         "status_counts": {k: int(v) for k, v in counts.items()},
         "protocol": protocol_notes(design.protocol, bool(evaluation["rounds"]),
-                                   design.spec.stage_draws == "one"),
+                                   design.spec.stage_draws == "one", _sample_rows(design)),
         "warnings": warnings_,
         "representation": {"diagnostics": diagnostics, "errors": rep_errors},
+        # rows and draws of the unsupervised stage, and why (study/_representations.py)
+        "unsupervised_stage": design.stage.to_dict() if design.kinds and design.stage else None,
         "timing": timing,
         "execution": {"jobs": jobs, "cluster": None if cluster is None else str(cluster)},
     }

@@ -27,6 +27,7 @@ from ._layout import check_input_outside_outputs, check_out_folder, remove_outpu
 from ._lock import study_lock
 from ._representations import fit_representations, repeat_key
 from ._rounds import read_added_labels
+from ._shared import remove_shared
 from ._spec import StudySpec
 from ._store import Store
 
@@ -168,7 +169,7 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         features, diagnostics, rep_errors, rep_seconds = fit_representations(
             design.kinds, ds, design.representation_rows, resolved, out, representation_fn,
             repeats=resolved.repeats if resolved.stage_draws == "per-repeat" else 1,
-            jobs=jobs,
+            jobs=jobs, stage=design.stage, progress=progress,
         )
         if store.get_meta("pretrain_seconds") is None:
             store.set_meta("pretrain_seconds", json.dumps(rep_seconds))
@@ -208,6 +209,7 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         write_exports(out, cells, resolved.metrics, info)
     finally:
         store.close()
+        remove_shared(out)  # the feature files the workers shared
     return StudyResult(out_dir=out, cells=cells, info=info)
 
 
@@ -250,7 +252,7 @@ def _run_all_cells(ctx, design, keys, store, rep_errors, jobs, cluster, rerun_fa
     log.info("%d cells in the study: %d kept from earlier runs, %d to run", counts["total"],
              counts["kept"], counts["run"])
 
-    bar = Progress(len(todo), "cells", enabled=progress)
+    bar = Progress(len(todo), "cells", enabled=progress, heartbeat=1.0)
 
     def on_result(row: dict) -> None:
         row["cell_key"] = keys[Cell(row["method"], row["n_labels"], row["repeat"],

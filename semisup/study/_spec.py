@@ -26,7 +26,7 @@ _PRETRAIN_KINDS = ("vae", "mixture")
 #: Evaluation protocols (DEVELOPERS.md "The study protocol").
 EVALUATIONS = ("cross-fit", "holdout", "test-file")
 #: How many draws of the unsupervised stage a study fits (study/_representations.py).
-STAGE_DRAWS = ("per-repeat", "one")
+STAGE_DRAWS = ("auto", "per-repeat", "one")
 
 
 @dataclass(frozen=True)
@@ -76,7 +76,12 @@ class StudySpec:
         ``"per-repeat"``: each repeat fits its own seeded draw of the unsupervised stage, so
         the curves' intervals hold the stage's own randomness; ``"one"``: one draw shared by
         every repeat (1/repeats of the pretraining time and memory on large tables, but that
-        randomness is then in no interval).
+        randomness is then in no interval); ``"auto"``: per-repeat unless the stage's rows
+        are more than ``stage_rows``, then one.
+    stage_rows : int or str
+        The unsupervised stage is fitted on a seeded random sample of at most this many rows
+        and then encodes every row; ``"auto"``: the size measured in
+        benchmarks/bench_large_stage.py; ``"all"``: every row.
     metrics : tuple of str
         Metrics written to curves.csv (all are measured for every cell).
     max_unlabeled : int
@@ -106,7 +111,8 @@ class StudySpec:
     holdout: float | int = 0.3
     test_data: str | None = None
     transductive: bool = False
-    stage_draws: str = "per-repeat"
+    stage_draws: str = "auto"
+    stage_rows: int | str = "auto"
     metrics: tuple[str, ...] = METRICS
     max_unlabeled: int = 20_000
     cv_folds: int = 3
@@ -342,6 +348,12 @@ def _check(key: str, value: Any) -> Any:
         if value not in STAGE_DRAWS:
             raise _bad(key, value, f"give one of {', '.join(STAGE_DRAWS)}")
         return value
+    if key == "stage_rows":
+        if value in ("auto", "all"):
+            return value
+        if isinstance(value, bool) or not isinstance(value, int) or value < 1000:
+            raise _bad(key, value, "give \"auto\", \"all\" or a whole number >= 1000")
+        return int(value)
     if key == "transductive":
         if not isinstance(value, bool):
             raise _bad(key, value, "give true or false")
