@@ -27,7 +27,10 @@ import pandas as pd
 
 from .._atomic import atomic_write_text
 from .._errors import DataError
+from .._paths import check_output
 from ._folder import StudyRecord, read_study_record
+from ._integrity import study_table
+from ._lock import study_lock
 
 __all__ = ["ADDED_LABELS_FILE", "SHEET_STUDY_COLUMN", "AddResult", "AddedLabels",
            "add_labels", "apply_added_labels", "read_added_labels", "study_id",
@@ -230,16 +233,28 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
     returned : the sheet (CSV, TSV, Parquet or .xlsx) with ``row_id`` and the label column.
     allow_new_classes : accept labels of classes the study has never seen.
     """
-    from ..data import load_dataset
-
     out = Path(study_dir)
     study = _read_study(out / "study.json")
+    # one add-labels at a time, and none while a study or a fit reads the folder
+    with study_lock(out, command="add-labels"):
+        return _add_labels(out, study, Path(returned), allow_new_classes)
+
+
+def _add_labels(out: Path, study: StudyRecord, returned: Path,
+                allow_new_classes: bool) -> AddResult:
+    from ..data import load_dataset
+
     spec = study.spec
-    ids, labels, n_blank = _returned_labels(study, Path(returned))
     if not spec.get("data") or not spec.get("label_column"):
         raise DataError(f"{out / 'study.json'} does not name the study's table and label "
                         "column; run 'semisup study' again")
-    ds = load_dataset(spec["data"], label_column=spec["label_column"],
+    # the study's own table (by its recorded absolute path and SHA-256), never a same-named
+    # file of the current folder
+    table = study_table(out, strict=True, option="").path
+    check_output(out / ADDED_LABELS_FILE, option="add-labels: the study's labels file",
+                 inputs={"the returned sheet": returned, "the study's table": table})
+    ids, labels, n_blank = _returned_labels(study, returned)
+    ds = load_dataset(table, label_column=spec["label_column"],
                       id_column=spec.get("id_column"),
                       unlabeled_markers=tuple(spec.get("unlabeled_markers") or ()),
                       kinds=dict(spec.get("kinds") or {}), delimiter=spec.get("delimiter"),
@@ -251,7 +266,7 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
     if (pos < 0).any():
         bad = [ids[i] for i in np.flatnonzero(pos < 0)]
         raise DataError(f"{returned}: row id {bad[0]!r} is not in the study's table "
-                        f"{spec['data']} ({len(bad)} unknown id(s)); return only rows of "
+                        f"{table} ({len(bad)} unknown id(s)); return only rows of "
                         "label_next.csv")
     names = list(current.class_names)
     new = sorted({lab for lab in labels if lab not in names})
