@@ -14,6 +14,7 @@ from _model_support import ID, LABEL, wine_frame
 
 from semisup.methods import get_method, list_methods
 from semisup.model import FittedModel, ModelFileError, load_model, save_model
+from semisup.model._file import manifest_digest
 
 
 @pytest.fixture(scope="module")
@@ -81,6 +82,7 @@ def _rewrite(path, fname, data: bytes):
     (path / fname).write_bytes(data)
     manifest = json.loads((path / "manifest.json").read_text())
     manifest["files"][fname] = hashlib.sha256(data).hexdigest()
+    manifest["manifest_sha256"] = manifest_digest(manifest)  # the forger recomputes it too
     (path / "manifest.json").write_text(json.dumps(manifest))
 
 
@@ -146,9 +148,10 @@ def test_foreign_folders_and_files(tmp_path):
     (tmp_path / "other" / "manifest.json").write_text('{"name": "something else"}')
     with pytest.raises(ModelFileError, match="not a semisup model manifest"):
         load_model(tmp_path / "other")
-    (tmp_path / "other" / "manifest.json").write_text(json.dumps({
-        "format": "semisup-model", "format_version": 1, "method": "x", "classes": [],
-        "features": [], "encoder": {}, "files": "classifier.skops"}))
+    odd = {"format": "semisup-model", "format_version": 2, "method": "x", "classes": [],
+           "features": [], "encoder": {}, "files": "classifier.skops"}
+    (tmp_path / "other" / "manifest.json").write_text(json.dumps(
+        {**odd, "manifest_sha256": manifest_digest(odd)}))
     with pytest.raises(ModelFileError, match="not a table of file checksums"):
         load_model(tmp_path / "other")
     (tmp_path / "other" / "manifest.json").write_text(json.dumps({
