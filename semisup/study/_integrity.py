@@ -101,11 +101,11 @@ def _legacy_cells_check(folder: Path, command: str, error: type[Exception]) -> N
     if not path.is_file():
         return
     try:
-        cells = pd.read_csv(path)
+        cells = pd.read_csv(path, dtype=str, keep_default_na=False)
     except (ValueError, OSError, UnicodeDecodeError):
         return  # the readers' own one-line error
     if "n_labels" in cells.columns:
-        n = pd.to_numeric(cells["n_labels"], errors="coerce")
+        n = pd.to_numeric(cells["n_labels"].str.strip(), errors="coerce")
         bad = n.notna() & (n % 1 != 0)
         if bad.any():
             raise error(f"{path} column 'n_labels' holds {cells['n_labels'][bad].iloc[0]!r}, not "
