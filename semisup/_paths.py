@@ -112,6 +112,10 @@ def check_output(
         One line naming ``option``, the path and what it would overwrite.
     """
     target = _resolved(out)
+    for what, path in held.items():
+        if path is not None and str(path) != "" and same_path(out, path):
+            raise ConfigError(f"{option} {out} is {what}; choose another path (inputs are never "
+                              "overwritten)")
     for what, path in inputs.items():
         if path is None or str(path) == "":
             continue

@@ -214,7 +214,7 @@ CASES = {
         _fit(e[1], t / "m", "--pseudo-labels", t / "m"), t, [e[1]], 2,
         "also given as --out"),
     "fit --out is the study folder": lambda e, t: _c(
-        _fit(e[1], e[1]), t, [e[1]], 2, "--out", "study"),
+        _fit(e[1], e[1]), t, [e[1]], 2, "--out", "is the study folder"),
     "fit --out is the table": lambda e, t: _c(
         _fit(e[1], e[0] / "wine.csv"), t, [e[1], e[0] / "wine.csv"], 2,
         "is the study's table"),

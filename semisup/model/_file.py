@@ -223,9 +223,10 @@ def read_manifest(path: str | os.PathLike[str]) -> dict[str, Any]:
                              f"{__version__} reads ({FORMAT_VERSION}); upgrade semisup")
     recorded = manifest.get(_SELF_KEY)
     if recorded is None:
-        raise ModelFileError(f"{manifest_path} carries no checksum of itself (model format "
-                             f"{version}, written by an older semisup, or the key was removed), "
-                             "so an edit cannot be ruled out; fit the model again")
+        why = (f"model format {version}, written by an older semisup" if version < 2 else
+               f"its {_SELF_KEY} was removed")
+        raise ModelFileError(f"{manifest_path} carries no checksum of itself ({why}), so an "
+                             "edit cannot be ruled out; fit the model again")
     try:
         actual = manifest_digest(manifest)
     except TypeError:
