@@ -365,8 +365,10 @@ def _table_kwargs(args: argparse.Namespace) -> dict:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
+    from ._paths import check_output
     from .demo import run_demo
 
+    check_output(args.out, option="--out")  # never inside a model folder
     result = run_demo(args.out, jobs=args.jobs)
     print(result.summary())
     return EXIT_OK

@@ -10,8 +10,9 @@ names), its output is read back with Python's ``csv`` module (no spreadsheet log
   delimiters, line breaks and a lone CR survive: CRLF line ends, RFC 4180 quoting);
 - ``raw`` output and Parquet keep the payloads as they are.
 
-The writers: ``semisup._tables_out.write_table`` (pseudo-labels, the annotator sheet),
-``ChunkedTableWriter`` (predictions), and end to end ``semisup plan`` (label_next.csv),
+The writers: ``semisup._tables_out.write_table`` (pseudo-labels, the annotator sheet, the
+study's labels_added.csv), ``ChunkedTableWriter`` (predictions), and end to end ``semisup
+plan`` (label_next.csv), ``semisup add-labels`` (labels_added.csv, read back exactly),
 ``semisup fit --pseudo-labels`` and ``semisup predict`` on a study whose class names and row
 ids are payloads.
 """
@@ -182,3 +183,16 @@ def test_every_cli_writer_neutralises_payload_ids_and_classes(hostile_study, tmp
             _assert_inert(rows)
             assert [restore_cell(v) for v in got[: len(ID_PAYLOADS)]] == ID_PAYLOADS
             assert {restore_cell(r[1]) for r in rows[1:]} <= set(CLASSES)
+
+    # the annotator fills in the payload rows (typing the class as the sheet shows it, quoted)
+    returned = pd.read_csv(study / "label_next.csv", dtype=str, keep_default_na=False)
+    mine = returned["row_id"].map(restore_cell).isin(ID_PAYLOADS)
+    returned.loc[mine, "kind"] = "'" + CLASSES[0]
+    returned.to_csv(tmp_path / "returned.csv", index=False)
+    assert cli.main(["add-labels", str(study), str(tmp_path / "returned.csv"), "-q"]) == 0
+    added = _read_csv_cells(study / "labels_added.csv")
+    _assert_inert(added)
+    from semisup.study import read_added_labels
+
+    back = read_added_labels(study)
+    assert set(back.row_ids) == set(ID_PAYLOADS) and set(back.labels) == {CLASSES[0]}

@@ -31,7 +31,7 @@ from pathlib import Path
 from typing import Any
 
 from .. import __version__
-from .._atomic import atomic_write_bytes, atomic_write_text
+from .._atomic import _current_umask, atomic_write_bytes, atomic_write_text
 from ._errors import ModelFileError
 from ._json import read_json
 from ._model import FittedModel, encoder_from_state
@@ -69,12 +69,6 @@ def manifest_digest(manifest: dict[str, Any]) -> str:
     text = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=True,
                       default=_json_default)
     return _sha256(text.encode("ascii"))
-
-
-def _current_umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
 
 
 def _pid_alive(pid: int) -> bool:

@@ -15,7 +15,6 @@ sheet returned to the wrong study folder is refused.
 from __future__ import annotations
 
 import hashlib
-import io
 import logging
 import os
 from collections.abc import Mapping
@@ -25,9 +24,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .._atomic import atomic_write_text
 from .._errors import DataError
+from .._escape import restore_cell
 from .._paths import check_output
+from .._tables_out import write_table
 from ._folder import StudyRecord, read_study_record
 from ._integrity import study_table
 from ._lock import study_lock
@@ -104,16 +104,17 @@ def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
             raise DataError(f"{path}: column 'round' holds {bad!r}, not a round number (1, 2, "
                             "...); remove it or restore the file from a backup")
         rounds = tuple(int(v) for v in text)
-    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]), rounds)
+    # the file is written through the spreadsheet-safe writer: take its quotes off again
+    return AddedLabels(tuple(frame["row_id"].map(restore_cell)),
+                       tuple(frame["label"].map(restore_cell)), rounds)
 
 
 def write_added_labels(out_dir: str | os.PathLike[str], added: AddedLabels) -> Path:
-    """Write ``added`` as the study's added labels, atomically."""
+    """Write ``added`` as the study's added labels, atomically, through the one writer of
+    tables a person may open (formula-like ids and labels get a leading quote, which
+    :func:`read_added_labels` takes off)."""
     path = Path(out_dir) / ADDED_LABELS_FILE
-    buf = io.StringIO()
-    added.to_frame().to_csv(buf, index=False)
-    atomic_write_text(path, buf.getvalue())
-    return path
+    return write_table(added.to_frame(), path)
 
 
 def apply_added_labels(ds, added: AddedLabels, *, where: str = ADDED_LABELS_FILE):
