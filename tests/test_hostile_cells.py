@@ -192,7 +192,7 @@ def test_every_cli_writer_neutralises_payload_ids_and_classes(hostile_study, tmp
     assert cli.main(["add-labels", str(study), str(tmp_path / "returned.csv"), "-q"]) == 0
     added = _read_csv_cells(study / "labels_added.csv")
     _assert_inert(added)
-    from semisup.study import read_added_labels
+    from semisup.study._rounds import read_added_labels
 
     back = read_added_labels(study)
     assert set(back.row_ids) == set(ID_PAYLOADS) and set(back.labels) == {CLASSES[0]}
