@@ -298,7 +298,8 @@ CASES = {
     "fit from a folder with another wine.csv, old study.json": lambda e, t: (
         _relative_study(e, t, keep_path=False), _c(
             _fit(t / "study", t / "m"), _other_folder_with_another_table(t),
-            [t / "study", t / "elsewhere"], 2, "wine.csv", "changed since the study read it"))[1],
+            [t / "study", t / "elsewhere"], 2, "wine.csv", "as given to the study",
+            "is not the table the study read", "folder the study ran in"))[1],
     "add-labels, old study.json, no wine.csv here": lambda e, t: (
         _relative_study(e, t, keep_path=False), _c(
             ["add-labels", t / "study", _sheet(t, [(_unlabeled_id(), "a")])], t,

@@ -197,6 +197,11 @@ def study_table(study_dir: str | os.PathLike[str], study: Mapping | None = None,
                             f"{actual[:12]}... differs from the {sha[:12]}... the study read "
                             f"({folder / 'study.json'}); give the table the study read, or run "
                             "a new study on this one")
+        if how == "given":  # an older study.json: the path may be relative to another folder
+            raise DataError(f"{path}{where} is not the table the study read (its SHA-256 "
+                            f"{actual[:12]}... differs from the recorded {sha[:12]}...); run "
+                            "this command from the folder the study ran in, or give the "
+                            "study's table with its full path")
         raise DataError(f"{check.message(folder)}; restore the table the study read, or run "
                         "a new study on the changed table")
     return check
