@@ -471,10 +471,10 @@ def _cmd_report(args: argparse.Namespace) -> int:
 def _cmd_fit(args: argparse.Namespace) -> int:
     from ._paths import check_output, study_inputs
     from .model import fit_model
-    from .study._integrity import recorded_table
+    from .study._integrity import recorded_table, study_json
 
     # every output path is checked before the (long) fit, by the same rule the writers apply
-    info = _study_json_or_empty(args.study_dir)
+    info = study_json(args.study_dir)
     table = args.data or recorded_table(info, args.study_dir)[0]
     inputs = {"the study's table": table, **study_inputs(args.study_dir)}
     check_output(args.out, option="--out", model_folder_ok=True, inputs=inputs,
@@ -507,18 +507,6 @@ def _cmd_predict(args: argparse.Namespace) -> int:
                            raw_cells=args.raw_cells, **kwargs)
     print(summary.summary())
     return EXIT_OK
-
-
-def _study_json_or_empty(study_dir: Path) -> dict:
-    """study.json of a folder for the up-front path checks ({} when absent or damaged: the
-    command's own reader then gives the one-line error)."""
-    import json
-
-    try:
-        info = json.loads((Path(study_dir) / "study.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return {}
-    return info if isinstance(info, dict) else {}
 
 
 _COMMANDS = {

@@ -26,7 +26,7 @@ from typing import Any
 from .._errors import DataError, StoreError
 
 __all__ = ["EXPORTS_KEY", "TableCheck", "check_exports", "export_digests", "recorded_table",
-           "study_table"]
+           "study_json", "study_table"]
 
 log = logging.getLogger(__name__)
 
@@ -45,8 +45,9 @@ def export_digests(texts: Mapping[str, str]) -> dict[str, str]:
     return {name: _sha(text.encode("utf-8")) for name, text in texts.items()}
 
 
-def _study_json(study_dir: Path) -> dict[str, Any]:
-    path = study_dir / "study.json"
+def study_json(study_dir: str | os.PathLike[str]) -> dict[str, Any]:
+    """study.json's content, {} when absent or damaged (the readers give their own error)."""
+    path = Path(study_dir) / "study.json"
     if not path.is_file():
         return {}
     try:
@@ -68,7 +69,7 @@ def check_exports(study_dir: str | os.PathLike[str], *, command: str,
     folder = Path(study_dir)
     if not folder.is_dir():
         return  # the command's own check names the missing folder
-    info = _study_json(folder)
+    info = study_json(folder)
     recorded = info.get(EXPORTS_KEY)
     fix = ("run 'semisup study' on the folder again to rewrite it from the study's store "
            "(finished cells are kept, nothing is recomputed)")
@@ -111,7 +112,7 @@ def _legacy_cells_check(folder: Path, command: str, error: type[Exception]) -> N
             raise error(f"{path} column 'n_labels' holds {cells['n_labels'][bad].iloc[0]!r}, not "
                         "a whole number of labels (the file was edited); run 'semisup study' on "
                         "the folder again to rewrite it")
-    counts = _study_json(folder).get("status_counts")
+    counts = study_json(folder).get("status_counts")
     if isinstance(counts, Mapping) and "status" in cells.columns:
         expected = sum(int(v) for v in counts.values() if isinstance(v, int))
         if expected and expected != len(cells):
@@ -166,7 +167,7 @@ def study_table(study_dir: str | os.PathLike[str], study: Mapping | None = None,
     from ..data._read import file_sha256
 
     folder = Path(study_dir)
-    study = _study_json(folder) if study is None else study
+    study = study_json(folder) if study is None else study
     recorded = study.get("data") if isinstance(study.get("data"), Mapping) else {}
     sha = recorded.get("sha256") if isinstance(recorded.get("sha256"), str) else None
     path, how = recorded_table(study, folder)
