@@ -297,6 +297,7 @@ def _add_model_parsers(sub) -> None:
     p.add_argument("--confidence-cut", type=float, default=0.9, metavar="P",
                    help="top probability a pseudo-label needs; the fit reports its "
                         "cross-fitted accuracy (default 0.9)")
+    _add_raw_cells(p, "--pseudo-labels")
     _add_common(p)
 
     p = sub.add_parser("predict", help="classes, probabilities and flags for new rows",
@@ -314,7 +315,16 @@ def _add_model_parsers(sub) -> None:
     p.add_argument("--encoding", metavar="NAME", help="text encoding (default: utf-8)")
     p.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
                    help="rows scored at a time; bounds memory (default 100000)")
+    _add_raw_cells(p, "--out")
     _add_common(p)
+
+
+def _add_raw_cells(p: argparse.ArgumentParser, option: str) -> None:
+    p.add_argument("--raw-cells", action="store_true",
+                   help=f"write ids and class names in {option} exactly as they are, for "
+                        "machine pipelines (default: a .csv/.tsv cell or header that a "
+                        "spreadsheet would run as a formula gets a leading ', as OWASP's "
+                        "CSV-injection guidance advises; .parquet output is always raw)")
 
 
 def _parse_pairs(items: Sequence[str] | None, what: str) -> dict[str, str]:
@@ -376,19 +386,25 @@ def _table_kwargs(args: argparse.Namespace) -> dict:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
+    from ._paths import check_output
     from .demo import run_demo
 
+    check_output(args.out, option="--out")  # never inside a model folder
     result = run_demo(args.out, jobs=args.jobs)
     print(result.summary())
     return EXIT_OK
 
 
 def _cmd_card(args: argparse.Namespace) -> int:
+    from ._paths import check_output
     from .data import make_card, write_card
 
     out = args.out or Path(f"{args.data.stem}.card.md")
     if out.is_dir():  # a folder: the card goes inside it
         out = out / f"{args.data.stem}.card.md"
+    inputs = {"the input table": args.data, "the kinds file": args.kinds_file}
+    check_output(out, option="--out", inputs=inputs)
+    check_output(out.with_suffix(".json"), option="--out (its .json twin)", inputs=inputs)
     _check_writable_folder(out.parent, "--out")
     card = make_card(args.data, **_table_kwargs(args))
     md_path, json_path = write_card(card, out)
@@ -421,6 +437,11 @@ def _cmd_study(args: argparse.Namespace) -> int:
     if out.exists() and not out.is_dir():
         raise SemisupError(f"--out {out} is a file, not a folder; give a folder for the "
                            "study's outputs (it is created if missing)")
+    from ._paths import check_output
+
+    check_output(out, option="--out", inputs={
+        "the input table": args.data, "the test file": args.test_file,
+        "the config file": args.config, "the kinds file": args.kinds_file})
     _check_writable_folder(out if out.is_dir() else _existing_parent(out), "--out")
     result = run_study(spec, out, jobs=args.jobs, cluster=args.cluster,
                        rerun_failed=args.rerun_failed, restart=args.restart)
@@ -470,8 +491,19 @@ def _cmd_report(args: argparse.Namespace) -> int:
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
+    from ._paths import check_output, study_inputs
     from .model import fit_model, save_model
+    from .study._integrity import recorded_table, study_json
 
+    # every output path is checked before the (long) fit, by the same rule the writers apply
+    info = study_json(args.study_dir)
+    table = args.data or recorded_table(info, args.study_dir)[0]
+    inputs = {"the study's table": table, **study_inputs(args.study_dir)}
+    check_output(args.out, option="--out", model_folder_ok=True, inputs=inputs,
+                 held={"the study folder": args.study_dir})
+    if args.pseudo_labels is not None:
+        check_output(args.pseudo_labels, option="--pseudo-labels", inputs=inputs,
+                     extra_outputs=[("--out", args.out)])
     result = fit_model(args.study_dir, method=args.method, data=args.data,
                        confidence_cut=args.confidence_cut)
     path = save_model(result.model, args.out)
@@ -479,7 +511,7 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     print(f"wrote model folder {path}")
     if args.pseudo_labels is not None:
         frame = result.pseudo_labels
-        if result.write_pseudo_labels(args.pseudo_labels) is None:
+        if result.write_pseudo_labels(args.pseudo_labels, raw=args.raw_cells) is None:
             print("the table has no unlabeled rows; no pseudo-labels written")
         else:
             print(f"wrote {len(frame)} pseudo-labels ({int(frame['accepted'].sum())} accepted at "
@@ -493,7 +525,8 @@ def _cmd_predict(args: argparse.Namespace) -> int:
     model = load_model(args.model)
     kwargs = {} if args.id_column is None else {"id_column": args.id_column}
     summary = predict_file(model, args.data, args.out, delimiter=args.delimiter,
-                           encoding=args.encoding, chunk_rows=args.chunk_rows, **kwargs)
+                           encoding=args.encoding, chunk_rows=args.chunk_rows,
+                           raw_cells=args.raw_cells, **kwargs)
     print(summary.summary())
     return EXIT_OK
 

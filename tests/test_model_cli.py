@@ -96,8 +96,9 @@ def _plan_without_choice(root, study):
 
 
 def _moved_table(root, study):
-    return _study_copy(root, study, "study-moved", lambda c: _edit_json(
-        c / "study.json", "spec", {"data": str(root / "gone.csv")}))
+    return _study_copy(root, study, "study-moved", lambda c: (_edit_json(
+        c / "study.json", "spec", {"data": str(root / "gone.csv")}), _edit_json(
+        c / "study.json", "data", {"path": str(root / "gone.csv")})))
 
 
 FIT_CASES = {

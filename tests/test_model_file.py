@@ -6,6 +6,8 @@ from __future__ import annotations
 import hashlib
 import io
 import json
+import os
+import stat
 import warnings
 
 import numpy as np
@@ -14,6 +16,7 @@ from _model_support import ID, LABEL, wine_frame
 
 from semisup.methods import get_method, list_methods
 from semisup.model import FittedModel, ModelFileError, load_model, save_model
+from semisup.model._file import manifest_digest
 
 
 @pytest.fixture(scope="module")
@@ -79,6 +82,7 @@ def _rewrite(path, fname, data: bytes):
     (path / fname).write_bytes(data)
     manifest = json.loads((path / "manifest.json").read_text())
     manifest["files"][fname] = hashlib.sha256(data).hexdigest()
+    manifest["manifest_sha256"] = manifest_digest(manifest)  # the forger recomputes it too
     (path / "manifest.json").write_text(json.dumps(manifest))
 
 
@@ -156,9 +160,10 @@ def test_foreign_folders_and_files(tmp_path):
     (tmp_path / "other" / "manifest.json").write_text('{"name": "something else"}')
     with pytest.raises(ModelFileError, match="not a semisup model manifest"):
         load_model(tmp_path / "other")
-    (tmp_path / "other" / "manifest.json").write_text(json.dumps({
-        "format": "semisup-model", "format_version": 1, "method": "x", "classes": [],
-        "features": [], "encoder": {}, "files": "classifier.skops"}))
+    odd = {"format": "semisup-model", "format_version": 2, "method": "x", "classes": [],
+           "features": [], "encoder": {}, "files": "classifier.skops"}
+    (tmp_path / "other" / "manifest.json").write_text(json.dumps(
+        {**odd, "manifest_sha256": manifest_digest(odd)}))
     with pytest.raises(ModelFileError, match="not a table of file checksums"):
         load_model(tmp_path / "other")
     (tmp_path / "other" / "manifest.json").write_text(json.dumps({
@@ -177,3 +182,63 @@ def test_save_replaces_an_old_model_but_not_other_folders(parts, tmp_path):
     with pytest.raises(ModelFileError, match="not a semisup model folder"):
         save_model(_model(parts, "supervised-logreg"), tmp_path / "work")
     assert (tmp_path / "work" / "notes.txt").read_text() == "mine"
+
+
+@pytest.mark.parametrize("umask", [0o022, 0o077, 0o002])
+def test_model_folder_mode_follows_the_umask(parts, tmp_path, umask):
+    # POSIX: a folder made by mkdir(0o777) gets 0o777 & ~umask (what `mkdir` in a shell does)
+    old = os.umask(umask)
+    try:
+        path = _saved(parts, tmp_path, "supervised-logreg")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o777 & ~umask
+    for f in path.iterdir():
+        assert stat.S_IMODE(f.stat().st_mode) == 0o666 & ~umask
+
+
+def test_leftovers_of_killed_saves_are_removed_by_the_next_save(parts, tmp_path):
+    import subprocess
+    import sys
+
+    path = _saved(parts, tmp_path, "supervised-logreg")
+    # a save killed mid-way: its temporary folder names a process that no longer exists
+    gone = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                          capture_output=True, text=True, check=True).stdout.strip()
+    dead = tmp_path / f".m.tmp-{gone}-0a1b2c3d"
+    dead.mkdir()
+    (dead / "classifier.skops").write_bytes(b"partial")
+    old_style = tmp_path / ".m.k2j4_x9q"  # an earlier release's mkdtemp name
+    old_style.mkdir()
+    (old_style / "manifest.json").write_text("{}")
+    alive = tmp_path / f".m.tmp-{os.getpid()}-ffffffff"  # a save running now: kept
+    alive.mkdir()
+    mine = tmp_path / ".m.notes"  # not a save's folder name: kept
+    mine.mkdir()
+    save_model(_model(parts, "supervised-logreg"), path)
+    assert not dead.exists() and not old_style.exists()
+    assert alive.exists() and mine.exists()
+    assert load_model(path).method == "supervised-logreg"
+
+
+def test_any_manifest_edit_is_refused_naming_the_manifest(parts, tmp_path):
+    path = _saved(parts, tmp_path, "supervised-logreg")
+    text = (path / "manifest.json").read_text()
+    manifest = json.loads(text)
+    swapped = dict(manifest, classes=manifest["classes"][::-1])
+    (path / "manifest.json").write_text(json.dumps(swapped))
+    with pytest.raises(ModelFileError, match=r"manifest.json does not match its own checksum"):
+        load_model(path)
+    # key order and white space are not content: the same manifest re-indented still loads
+    (path / "manifest.json").write_text(json.dumps(manifest, indent=4, sort_keys=False))
+    assert load_model(path).classes == manifest["classes"]
+
+
+def test_malicious_tensor_file_is_named_by_its_own_name(parts, tmp_path):
+    import pickle
+
+    path = _saved(parts, tmp_path, "latent-logreg")  # a VAE: representation.pt exists
+    evil = pickle.dumps({"x": eval})  # weights_only refuses any callable (torch docs)
+    _rewrite(path, "representation.pt", evil)
+    with pytest.raises(ModelFileError, match=r"representation\.pt: network weights cannot"):
+        load_model(path)

@@ -16,10 +16,22 @@ from pandas.api import types as ptypes
 from .._errors import DataError
 from ._read import KIND_OVERRIDES
 
-__all__ = ["COLUMN_KINDS", "Where", "as_text", "infer_column_kinds", "prepare_columns"]
+__all__ = ["COLUMN_KINDS", "Where", "as_text", "infer_column_kinds", "looks_like_dates",
+           "prepare_columns"]
 
 #: Every kind a source column can end up with.
-COLUMN_KINDS = ("numeric", "categorical", "constant", "id-like", "text", "drop", "label", "id")
+COLUMN_KINDS = ("numeric", "categorical", "constant", "id-like", "text", "datetime", "drop",
+                "label", "id")
+
+#: Share of a column's distinct values that must read as dates (or date-times) for the
+#: column to be of kind "datetime" (common practice, no source: a few stray entries allowed).
+DATETIME_SHARE = 0.95
+
+# Dates and date-times as tables write them: ISO 8601 (2007-11-11, 2013-04-01T20:15:04Z,
+# 2016-09-02 13:40:36), year/month/day, and day.month.year or month/day/year.
+_TIME = r"(?:[ T]\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?(?:Z|[+-]\d{2}:?\d{2})?)?"
+_DATE = re.compile(r"(?:\d{4}-\d{1,2}-\d{1,2}|\d{4}/\d{1,2}/\d{1,2}|\d{1,2}[/.]\d{1,2}[/.]\d{4})"
+                   + _TIME)
 
 #: Fewer non-missing values than this and a column is never called id-like or free text.
 MIN_ROWS_FOR_ID_OR_TEXT = 20
@@ -223,6 +235,24 @@ def prepare_columns(
     return out, notes
 
 
+def looks_like_dates(text: pd.Series) -> bool:
+    """True when at least :data:`DATETIME_SHARE` of the distinct non-missing values of a text
+    column are written as dates or date-times and pandas reads them as such."""
+    values = pd.Series(text.dropna().astype(str).str.strip().unique())
+    values = values[values.str.len() > 0]
+    if not len(values):
+        return False
+    match = values.str.fullmatch(_DATE)
+    if float(match.mean()) < DATETIME_SHARE:
+        return False
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        parsed = pd.to_datetime(values[match], errors="coerce", format="mixed", utc=True)
+    return float(parsed.notna().sum()) >= DATETIME_SHARE * len(values)
+
+
 def _looks_like_id_numbers(series: pd.Series, name: str) -> bool:
     if not ptypes.is_integer_dtype(series.dtype):
         return False
@@ -246,8 +276,10 @@ def infer_column_kinds(
     drop, and user overrides).
 
     Rules (common practice, no source): one distinct value (missing counts as a value) ->
-    constant; integers unique per row that form a 1..n-like run or sit in an id-named column
-    -> id-like; strings unique per row -> id-like, unless most hold spaces -> text; strings
+    constant; date or time values (a datetime column, or text written as dates, see
+    :func:`looks_like_dates`) -> datetime; integers unique per row that form a 1..n-like run
+    or sit in an id-named column -> id-like; strings unique per row -> id-like, unless most
+    hold spaces -> text; strings
     with mostly distinct values that mostly hold spaces -> text; other strings and booleans ->
     categorical; other numbers -> numeric.
     """
@@ -288,7 +320,13 @@ def infer_column_kinds(
         if ptypes.is_bool_dtype(series.dtype):
             kinds[column] = "categorical"
             continue
+        if ptypes.is_datetime64_any_dtype(series.dtype):
+            kinds[column] = "datetime"
+            continue
         text = as_text(series).dropna()
+        if looks_like_dates(text):
+            kinds[column] = "datetime"
+            continue
         distinct_share = text.nunique() / max(n_present, 1)
         spaced_share = float(text.str.contains(r"\s", regex=True).mean())
         if n_present >= MIN_ROWS_FOR_ID_OR_TEXT and distinct_share >= 0.5 and spaced_share >= 0.5:

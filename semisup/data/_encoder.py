@@ -187,9 +187,13 @@ class TableEncoder(TransformerMixin, BaseEstimator):
             else:
                 why = {"constant": "has a single value", "id-like": "looks like an id (one "
                        "distinct value per row)", "text": "is free text", "drop": "is dropped "
-                       "as asked"}.get(kind, f"is {kind}")
+                       "as asked", "datetime": "holds dates or times (kind datetime)"
+                       }.get(kind, f"is {kind}")
                 hint = (f" (to use it, pass --kind {column}=categorical)"
-                        if kind in ("id-like", "text") else "")
+                        if kind in ("id-like", "text") else
+                        " (to use it, add the parts that matter, such as year, month or "
+                        "weekday, as numeric columns of the table)" if kind == "datetime"
+                        else "")
                 notes.append(f"column {column!r} {why}; not used as a feature{hint}")
         if not names:
             raise DataError("no feature columns are left after dropping constant, id-like, text "

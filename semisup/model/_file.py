@@ -2,44 +2,53 @@
 
 Layout of a folder written by :func:`save_model`::
 
-    manifest.json            what the model is (see FittedModel.manifest) and the SHA-256 of
-                             every other file
+    manifest.json            what the model is (see FittedModel.manifest), the SHA-256 of
+                             every other file, and ``manifest_sha256``: a SHA-256 of the
+                             manifest's own content (checked first, so an edited manifest
+                             is refused before anything in it is used)
     classifier.skops         the fitted classifier (skops; only trusted classes are rebuilt)
     classifier.pt            tensors of any network inside it (torch, weights_only=True)
     representation.skops/.pt the unsupervised stage the classifier reads, when it has one
     density.skops/.pt        the model whose density / ELBO flags unfamiliar rows
 
-A changed, missing or foreign file raises :class:`ModelFileError` with one line. The
-checksums catch damage and edits, not a forger who rewrites the manifest too; the trust rules
+A changed, missing or foreign file raises :class:`ModelFileError` with one line naming it.
+The checksums catch damage and edits, not a forger who recomputes them; the trust rules
 of the loaders (skops' trusted types, ``weights_only``) are what keep a crafted file from
 running code.
 """
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import logging
 import os
+import re
+import secrets
 import shutil
-import tempfile
 from pathlib import Path
 from typing import Any
 
 from .. import __version__
-from .._atomic import atomic_write_bytes, atomic_write_text
+from .._atomic import _current_umask, atomic_write_bytes, atomic_write_text
 from ._errors import ModelFileError
 from ._json import read_json
 from ._model import FittedModel
 from ._persist import dump_estimator, load_estimator
 
-__all__ = ["FORMAT", "FORMAT_VERSION", "load_model", "save_model"]
+__all__ = ["FORMAT", "FORMAT_VERSION", "load_model", "manifest_digest", "save_model"]
 
 log = logging.getLogger(__name__)
 
 FORMAT = "semisup-model"
-FORMAT_VERSION = 1
+#: 2: the manifest carries ``manifest_sha256`` (version 1 folders cannot be checked).
+FORMAT_VERSION = 2
 _PARTS = ("classifier", "representation", "density")
+_SELF_KEY = "manifest_sha256"
+#: Temporary and set-aside folders of save_model: ``.<name>.tmp-<pid>-<hex>`` and
+#: ``.<name>.old-<pid>``; releases before 2 used ``.<name>.<8 random characters>``.
+_TMP_RE = r"\.{name}\.(?:(?:tmp|old)-(?P<pid>\d+)(?:-[0-9a-f]+)?|[a-z0-9_]{{8}})"
 
 
 def _sha256(data: bytes) -> str:
@@ -47,11 +56,65 @@ def _sha256(data: bytes) -> str:
 
 
 def _is_model_folder(path: Path) -> bool:
+    from .._paths import is_model_folder
+
+    return is_model_folder(path)
+
+
+def manifest_digest(manifest: dict[str, Any]) -> str:
+    """SHA-256 of a manifest's content without its own ``manifest_sha256`` key (keys sorted,
+    compact JSON, ASCII), so an edit of any value, the class names or the flag threshold
+    included, changes it."""
+    body = {k: v for k, v in manifest.items() if k != _SELF_KEY}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=True,
+                      default=_json_default)
+    return _sha256(text.encode("ascii"))
+
+
+def _pid_alive(pid: int) -> bool:
     try:
-        manifest = json.loads((path / "manifest.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        os.kill(pid, 0)
+    except ProcessLookupError:
         return False
-    return isinstance(manifest, dict) and manifest.get("format") == FORMAT
+    except OSError as exc:  # EPERM: alive, another user's
+        return exc.errno == errno.EPERM
+    return True
+
+
+def _leftover_files(folder: Path) -> bool:
+    """Only files a model save writes (manifest, parts, atomic temporaries)."""
+    try:
+        names = [p.name for p in folder.iterdir()]
+    except OSError:
+        return False
+    return all(n == "manifest.json" or n.endswith((".skops", ".pt", ".json"))
+               or ".tmp" in n for n in names)
+
+
+def remove_leftovers(target: Path) -> list[Path]:
+    """Remove the temporary folders that killed saves of ``target`` left beside it (their
+    process is gone, or they come from a release that did not record it)."""
+    pattern = re.compile(_TMP_RE.format(name=re.escape(target.name)))
+    removed = []
+    try:
+        siblings = list(target.parent.iterdir())
+    except OSError:
+        return removed
+    for path in siblings:
+        m = pattern.fullmatch(path.name)
+        if m is None or not path.is_dir() or path.is_symlink():
+            continue
+        pid = m.group("pid")
+        if pid is not None and _pid_alive(int(pid)):
+            continue
+        if pid is None and not _leftover_files(path):
+            continue
+        shutil.rmtree(path, ignore_errors=True)
+        removed.append(path)
+    if removed:
+        log.info("removed %d temporary folder(s) of interrupted saves beside %s", len(removed),
+                 target)
+    return removed
 
 
 def save_model(model: FittedModel, path: str | os.PathLike[str]) -> Path:
@@ -60,11 +123,17 @@ def save_model(model: FittedModel, path: str | os.PathLike[str]) -> Path:
     The folder is assembled under a temporary name beside ``path`` and renamed into place,
     so an interrupted save leaves the old model (or nothing).
     """
+    from .._paths import check_output
+
     target = Path(path)
     if target.exists() and not (target.is_dir() and (_is_model_folder(target)
                                                      or not any(target.iterdir()))):
         raise ModelFileError(f"{target} exists and is not a semisup model folder; choose another "
                              "--out (an older model folder there would be replaced)")
+    training = model.manifest.get("training_data") or {}
+    check_output(target, option="--out", model_folder_ok=True,
+                 inputs={"the training table": training.get("source")},
+                 held={"the study folder": training.get("study_dir")})
     parts = {"classifier": model.estimator, "representation": model.representation}
     if model.density is not None and model.density is not model.representation:
         parts["density"] = model.density
@@ -83,13 +152,20 @@ def save_model(model: FittedModel, path: str | os.PathLike[str]) -> Path:
     if model.density is not None:
         manifest["density"]["part"] = "density" if "density" in parts else "representation"
     manifest["files"] = {name: _sha256(data) for name, data in sorted(files.items())}
+    manifest.pop(_SELF_KEY, None)
+    manifest = json.loads(json.dumps(manifest, default=_json_default))  # as a reader sees it
+    manifest[_SELF_KEY] = manifest_digest(manifest)
     target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", dir=target.parent))
+    remove_leftovers(target)
+    tmp = target.with_name(f".{target.name}.tmp-{os.getpid()}-{secrets.token_hex(4)}")
+    # the user's umask decides the folder's mode, as for any folder they make (mkdtemp's
+    # 0700 made every model folder private)
+    tmp.mkdir(mode=0o777 & ~_current_umask())
     try:
         for name, data in files.items():
             atomic_write_bytes(tmp / name, data)
-        atomic_write_text(tmp / "manifest.json", json.dumps(manifest, indent=1, sort_keys=True,
-                                                            default=_json_default) + "\n")
+        atomic_write_text(tmp / "manifest.json", json.dumps(manifest, indent=1, sort_keys=True)
+                          + "\n")
         old = None
         if target.exists():
             old = target.with_name(f".{target.name}.old-{os.getpid()}")
@@ -139,6 +215,20 @@ def read_manifest(path: str | os.PathLike[str]) -> dict[str, Any]:
     if not isinstance(version, int) or version > FORMAT_VERSION:
         raise ModelFileError(f"{folder} has model format {version!r}, newer than this semisup "
                              f"{__version__} reads ({FORMAT_VERSION}); upgrade semisup")
+    recorded = manifest.get(_SELF_KEY)
+    if recorded is None:
+        why = (f"model format {version}, written by an older semisup" if version < 2 else
+               f"its {_SELF_KEY} was removed")
+        raise ModelFileError(f"{manifest_path} carries no checksum of itself ({why}), so an "
+                             "edit cannot be ruled out; fit the model again")
+    try:
+        actual = manifest_digest(manifest)
+    except TypeError:
+        actual = None
+    if recorded != actual:
+        raise ModelFileError(f"{manifest_path} does not match its own checksum "
+                             f"({_SELF_KEY}): it was edited after it was written; fit the model "
+                             "again (or restore the folder from a copy)")
     for key in ("method", "classes", "features", "encoder", "files"):
         if key not in manifest:
             raise ModelFileError(f"{manifest_path} lacks {key!r}; the folder is damaged, fit the "
@@ -173,7 +263,8 @@ def _read_part(folder: Path, name: str, manifest: dict) -> Any:
     if ".skops" not in blobs:
         raise ModelFileError(f"{folder}: manifest.json lists no {name}.skops; the folder is "
                              "damaged, fit the model again")
-    return load_estimator(blobs[".skops"], blobs.get(".pt"), where=str(folder / f"{name}.skops"))
+    return load_estimator(blobs[".skops"], blobs.get(".pt"), where=str(folder / f"{name}.skops"),
+                          weights_where=str(folder / f"{name}.pt"))
 
 
 def load_model(path: str | os.PathLike[str]) -> FittedModel:
@@ -219,4 +310,6 @@ def load_model(path: str | os.PathLike[str]) -> FittedModel:
     if not hasattr(estimator, "predict_proba") or not hasattr(estimator, "classes_"):
         raise ModelFileError(f"{folder}/classifier.skops is not a fitted classifier; fit the "
                              "model again")
-    return FittedModel(manifest, encoder, estimator, representation, density)
+    model = FittedModel(manifest, encoder, estimator, representation, density)
+    model.path = folder  # where it was read from: outputs may not go inside it
+    return model

@@ -52,15 +52,26 @@ class FitResult:
     pseudo_labels: pd.DataFrame | None = None
     notes: list[str] = field(default_factory=list)
 
-    def write_pseudo_labels(self, path: str | os.PathLike[str]) -> Path | None:
-        """Write the pool's pseudo-labels as CSV (atomically); None when there is no pool."""
-        from .._atomic import atomic_path
+    def write_pseudo_labels(self, path: str | os.PathLike[str], *,
+                            raw: bool = False) -> Path | None:
+        """Write the pool's pseudo-labels (atomically; CSV, TSV or Parquet by the suffix);
+        None when there is no pool.
 
+        Text cells and headers a spreadsheet would run as formulas get a leading ``'`` unless
+        ``raw`` (Parquet is always raw). ``path`` may not be the study's table, one of the
+        study's files or inside a model folder (ConfigError).
+        """
+        from .._paths import check_output, study_inputs
+        from .._tables_out import write_table
+
+        training = self.model.manifest.get("training_data") or {}
+        study_dir = training.get("study_dir")
+        check_output(path, option="--pseudo-labels", inputs={
+            "the study's table": training.get("source"),
+            **(study_inputs(study_dir) if study_dir else {})})
         if self.pseudo_labels is None:
             return None
-        with atomic_path(path) as tmp:
-            self.pseudo_labels.to_csv(tmp, index=False)
-        return Path(path)
+        return write_table(self.pseudo_labels, path, raw=raw, header_prefixes=("proba_",))
 
     def summary(self) -> str:
         r = self.report
@@ -253,23 +264,17 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
     return stage, how
 
 
-def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict):
+def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict, folder: Path):
     from ..data import load_dataset
+    from ..study._integrity import study_table
 
-    path = Path(data) if data is not None else Path(spec.data)
-    if not path.exists():
-        raise DataError(f"the study's table {path} is not found; pass --data with its new path")
+    # the table by study.json's absolute path (or --data), refused unless its SHA-256 is the
+    # one the study read
+    path = study_table(folder, info, data=data, strict=True, option="--data").path
     ds = load_dataset(path, label_column=spec.label_column, id_column=spec.id_column,
                       unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
                       delimiter=spec.delimiter, encoding=spec.encoding)
-    study_sha = StudyRecord.from_dict(info).data.sha256
-    notes = []
-    if study_sha and ds.sha256 and study_sha != ds.sha256:
-        notes.append(f"the table {path} changed since the study (new SHA-256); the model is "
-                     "trained on the table as it is now, the study's estimates describe the old "
-                     "one")
-        log.warning("%s", notes[-1])
-    return ds, notes
+    return ds, []
 
 
 @dataclass(frozen=True)
@@ -324,9 +329,11 @@ class _Classifier:
 def _open_study(study_dir: str | os.PathLike[str], method: str | None) -> _Study:
     from ..methods import get_method
     from ..study import StudySpec
+    from ..study._integrity import check_exports
 
     folder = Path(study_dir)
     info, plan = read_study(folder)
+    check_exports(folder, command="fit")
     spec = _spec_view(info["spec"], folder, StudySpec)
     plan = _current_plan(folder, plan, method)
     name = _choose_method(folder, plan, method)
@@ -339,7 +346,7 @@ def _all_labels(study: _Study, data: str | os.PathLike[str] | None) -> _Labels:
     from ..study._rounds import apply_added_labels, read_added_labels
 
     spec, folder = study.spec, study.folder
-    ds, notes = _load_data(spec, data, study.info)
+    ds, notes = _load_data(spec, data, study.info, folder)
     added = read_added_labels(folder)  # labels returned by annotators (semisup add-labels)
     own_y = np.asarray(ds.y)
     if len(added):
@@ -469,8 +476,19 @@ def fit_model(
     if isinstance(confidence_cut, bool) or not 0 < float(confidence_cut) < 1:
         raise ConfigError(f"--confidence-cut {confidence_cut!r} is not allowed; give a "
                           "probability between 0 and 1, e.g. 0.9")
+    from ..study._lock import study_lock
+
+    folder = Path(study_dir)
+    read_study(folder)  # a missing folder or study.json is one line before the lock
+    # no study, add-labels or other fit changes the folder while this fit reads it
+    with study_lock(folder, command="fit"):
+        return _fit_model(folder, method, data, confidence_cut, crossfit_folds)
+
+
+def _fit_model(folder: Path, method: str | None, data: Any, confidence_cut: float,
+               crossfit_folds: int) -> FitResult:
     t0 = time.perf_counter()
-    study = _open_study(study_dir, method)
+    study = _open_study(folder, method)
     labels = _all_labels(study, data)
     features = _features(study, labels)
     clf = _fit_classifier(study, labels, features, crossfit_folds)

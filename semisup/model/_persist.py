@@ -240,8 +240,10 @@ def dump_estimator(estimator: Any) -> tuple[bytes, bytes | None]:
     return data, weights
 
 
-def load_estimator(data: bytes, weights: bytes | None, *, where: str) -> Any:
-    """Rebuild what :func:`dump_estimator` wrote; untrusted content raises ModelFileError."""
+def load_estimator(data: bytes, weights: bytes | None, *, where: str,
+                   weights_where: str | None = None) -> Any:
+    """Rebuild what :func:`dump_estimator` wrote; untrusted content raises ModelFileError
+    naming ``where`` (the skops file) or ``weights_where`` (the tensor file)."""
     import skops.io as sio
 
     try:
@@ -259,19 +261,21 @@ def load_estimator(data: bytes, weights: bytes | None, *, where: str) -> Any:
         raise ModelFileError(f"{where} cannot be read ({type(exc).__name__}: {exc}); fit the "
                              "model again with semisup fit") from None
     tensors: dict[str, Any] = {}
+    wwhere = weights_where or f"{where} (network weights)"
     if weights is not None:
         import torch
 
         try:
             tensors = torch.load(io.BytesIO(weights), weights_only=True, map_location="cpu")
         except Exception as exc:  # noqa: BLE001
-            raise ModelFileError(f"{where}: network weights cannot be read "
-                                 f"({type(exc).__name__}); fit the model again") from None
+            raise ModelFileError(f"{wwhere}: network weights cannot be read "
+                                 f"({type(exc).__name__}); the file was not written by semisup "
+                                 "fit or is damaged, fit the model again") from None
         if not isinstance(tensors, dict):
-            raise ModelFileError(f"{where}: network weights are not a table of tensors; the "
+            raise ModelFileError(f"{wwhere}: network weights are not a table of tensors; the "
                                  "file was not written by semisup fit")
     try:
         return _restore(stripped, tensors, set())
     except KeyError as exc:
-        raise ModelFileError(f"{where}: network weights lack tensor {exc}; the file is "
+        raise ModelFileError(f"{wwhere}: network weights lack tensor {exc}; the file is "
                              "damaged, fit the model again") from None

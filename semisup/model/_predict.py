@@ -2,7 +2,10 @@
 
 Memory stays bounded by ``chunk_rows``: rows are read, checked, encoded, scored and written
 one chunk at a time into a temporary file that is renamed onto ``out`` only when every chunk
-succeeded (an error leaves no partial output). The input file is only read.
+succeeded (an error leaves no partial output). The input file is only read, and ``out``
+may be neither an input nor inside a model folder (:func:`semisup._paths.check_output`).
+Text output goes through the one spreadsheet-safe writer (:mod:`semisup._tables_out`):
+formula-like ids and class names get a leading ``'`` unless ``raw_cells`` (or Parquet).
 """
 
 from __future__ import annotations
@@ -19,6 +22,8 @@ import pandas as pd
 
 from .._atomic import atomic_path
 from .._errors import ConfigError, DataError
+from .._paths import check_output
+from .._tables_out import ChunkedTableWriter, table_format
 from ..data import is_text_table, read_table_chunks
 from ..data._columns import as_text
 from ._model import FittedModel
@@ -86,27 +91,6 @@ def _ids(frame: pd.DataFrame, id_column: str | None, first_row: int, source: str
     return ids.to_numpy(dtype=object)
 
 
-def _write_chunk(handle: Any, frame: pd.DataFrame, fmt: str, state: dict) -> None:
-    """Append one chunk; pyarrow's writers (its CSV writer is ~10x faster than pandas'
-    ``to_csv`` and writes floats that read back exactly)."""
-    import pyarrow as pa
-
-    table = pa.Table.from_pandas(frame, preserve_index=False)
-    if state.get("writer") is None:
-        if fmt == "parquet":
-            import pyarrow.parquet as pq
-
-            state["writer"] = pq.ParquetWriter(handle, table.schema)
-        else:
-            import pyarrow.csv as pcsv
-
-            options = pcsv.WriteOptions(delimiter="\t" if fmt == "tsv" else ",",
-                                        quoting_style="needed")
-            state["writer"] = pcsv.CSVWriter(handle, table.schema, write_options=options)
-        state["schema"] = table.schema
-    state["writer"].write_table(table.cast(state["schema"]))
-
-
 def predict_file(
     model: FittedModel,
     data: str | os.PathLike[str],
@@ -116,6 +100,7 @@ def predict_file(
     delimiter: str | None = None,
     encoding: str | None = None,
     chunk_rows: int = DEFAULT_CHUNK_ROWS,
+    raw_cells: bool = False,
 ) -> PredictSummary:
     """Score every row of ``data`` and write the prediction table to ``out``.
 
@@ -130,6 +115,10 @@ def predict_file(
         none); ``None`` or ``""`` numbers the rows from 0.
     chunk_rows : int
         Rows read and scored at a time (memory is bounded by this).
+    raw_cells : bool
+        Write ids and class names exactly as they are in CSV / TSV output; by default a cell
+        or header a spreadsheet would run as a formula gets a leading ``'`` (Parquet output
+        is always raw).
 
     Raises
     ------
@@ -142,17 +131,15 @@ def predict_file(
     if isinstance(chunk_rows, bool) or not isinstance(chunk_rows, int) or chunk_rows < 1:
         raise ConfigError(f"--chunk-rows {chunk_rows!r} is not allowed; give a whole number "
                           ">= 1, e.g. 100000")
-    if out.exists() and data.exists() and out.resolve() == data.resolve():
-        raise ConfigError(f"--out {out} is the input table; choose another file (input files "
-                          "are never changed)")
+    check_output(out, option="--out", inputs={"the input table": data,
+                                              "the model folder": getattr(model, "path", None)})
     if id_column is _SAME_AS_MODEL:
         id_column = model.manifest.get("id_column")
         required = id_column is not None
     else:
         id_column = id_column or None
         required = id_column is not None
-    suffix = out.suffix.lower()
-    fmt = "parquet" if suffix in (".parquet", ".pq") else "tsv" if suffix == ".tsv" else "csv"
+    fmt = table_format(out)
     source = str(data)
     text_file = is_text_table(data)
     counts = InputCounts()
@@ -161,11 +148,11 @@ def predict_file(
     top_sum = 0.0
     seen_ids: set = set()
     ignored: list[str] = []
-    state: dict[str, Any] = {}
     checked = False
     text_columns = (id_column,) if id_column else ()
     with atomic_path(out) as tmp:
         with open(tmp, "wb") as handle:  # noqa: PTH123
+            writer = ChunkedTableWriter(handle, fmt, raw=raw_cells, header_prefixes=("proba_",))
             try:
                 for frame in read_table_chunks(data, chunk_rows=chunk_rows,
                                                delimiter=delimiter, encoding=encoding,
@@ -185,7 +172,7 @@ def predict_file(
                     X = model.encode(frame, counts, source=source, text_file=text_file,
                                      first_row=n_rows)
                     result = model.output_frame(ids, X)
-                    _write_chunk(handle, result, fmt, state)
+                    writer.write(result)
                     top = np.argmax(result.iloc[:, 2:2 + len(model.classes)].to_numpy(), axis=1)
                     predicted += np.bincount(top, minlength=len(model.classes))
                     n_flagged += int(result["out_of_distribution"].sum())
@@ -193,8 +180,7 @@ def predict_file(
                     n_rows += len(frame)
                     log.info("predicted %d rows", n_rows)
             finally:
-                if state.get("writer") is not None:
-                    state["writer"].close()
+                writer.close()
         if n_rows == 0:
             raise DataError(f"{source}: the table has a header but no data rows; give rows to "
                             "predict")

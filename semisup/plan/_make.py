@@ -440,6 +440,9 @@ def make_plan(
         raise PlanError(f"request must be a PlanRequest, got {type(request).__name__}")
     check_sheet_format(sheet_format)
     study_dir = Path(study_dir)
+    from ..study._integrity import check_exports
+
+    check_exports(study_dir, command="plan")  # a hand-edited cells.csv / curves.csv: one line
     cells_all = read_cells(study_dir, METRICS)
     state = current_state(study_dir)
     made_at = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)

@@ -15,9 +15,10 @@ from pathlib import Path
 
 import pandas as pd
 
-from .._atomic import atomic_path, atomic_write_text
+from .._atomic import atomic_path
 from .._errors import PlanError, SemisupError
 from .._escape import neutralise_frame, restore_cell
+from .._tables_out import write_table
 from ..study import SHEET_STUDY_COLUMN, study_id
 from ._label_next import LABEL_NEXT_COLUMNS
 
@@ -35,16 +36,22 @@ def read_study_table(study: Mapping) -> tuple[pd.DataFrame | None, str | None, s
     warning says why) when study.json does not name it or it cannot be read any more.
     """
     from ..data import read_table
+    from ..study._integrity import recorded_table, study_table
 
     spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
-    data = study.get("data") if isinstance(study.get("data"), Mapping) else {}
-    path = spec.get("data") or data.get("source")
+    path = recorded_table(study, ".")[0]  # by its absolute path, whatever the current folder
     label_column = spec.get("label_column")
     id_column = spec.get("id_column")
     if not path:
         return None, id_column, label_column, [
             "study.json does not name the study's table, so label_next.csv lists row ids "
             "without the rows' data"]
+    check = study_table(".", study, strict=False)
+    if check.changed:
+        return None, id_column, label_column, [
+            f"the study's table {check.path} changed since the study read it (its SHA-256 "
+            "differs from study.json's), so label_next.csv lists row ids without the rows' "
+            "data; restore the table or run a new study on it"]
     try:
         frame = read_table(Path(path), delimiter=spec.get("delimiter"),
                            encoding=spec.get("encoding"),
@@ -133,7 +140,7 @@ def write_sheet(sheet: pd.DataFrame, folder: Path, sheet_format: str) -> Path:
     if sheet_format == "csv":
         # CRLF line ends (RFC 4180): the csv writer then quotes a cell holding a lone CR,
         # which a "\n" line end would leave bare, splitting the row in a spreadsheet.
-        atomic_write_text(path, sheet.to_csv(index=False, lineterminator="\r\n"))
+        write_table(sheet, path, neutralised=True)  # the one spreadsheet-safe writer
     else:
         # Cells come neutralised (a leading "'"), so openpyxl stores no text as a formula;
         # it writes a string starting with "=" as one, which neutralising rules out.

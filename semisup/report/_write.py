@@ -631,6 +631,9 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
     study_dir = Path(study_dir)
     if not study_dir.is_dir():
         raise StoreError(f"study folder {study_dir} does not exist; run 'semisup study' first")
+    from ..study._integrity import check_exports
+
+    check_exports(study_dir, command="report")  # a hand-edited cells.csv / curves.csv
     cells = _read_csv(study_dir / "cells.csv")
     try:
         if cells is not None:

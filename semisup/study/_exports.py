@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .._atomic import atomic_path, atomic_write_bytes, atomic_write_text
+from ._integrity import EXPORTS_KEY, export_digests
 from ._metrics import summarize_curves
 
 __all__ = [
@@ -70,11 +71,15 @@ def write_exports(
         "curves_csv": out_dir / "curves.csv",
         "study_json": out_dir / "study.json",
     }
-    atomic_write_text(paths["cells_csv"], _csv_text(cells))
+    cells_text = _csv_text(cells)
+    atomic_write_text(paths["cells_csv"], cells_text)
     with atomic_path(paths["cells_parquet"]) as tmp:
         cells.to_parquet(tmp, index=False)
     curves = summarize_curves(cells, metrics, evaluation=info.get("evaluation"))
-    atomic_write_text(paths["curves_csv"], _csv_text(curves))
+    curves_text = _csv_text(curves)
+    atomic_write_text(paths["curves_csv"], curves_text)
+    # plan, report and fit check these before reading the files (study/_integrity.py)
+    info[EXPORTS_KEY] = export_digests({"cells.csv": cells_text, "curves.csv": curves_text})
     atomic_write_text(paths["study_json"],
                       json.dumps(info, indent=2, sort_keys=False, default=_json_default) + "\n")
     return paths

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import statistics
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -202,6 +203,9 @@ def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: 
         "fingerprint": design.fingerprint,
         "data": {
             "source": str(ds.source) if getattr(ds, "source", None) else spec.data,
+            # where the table is whatever folder a later command runs in, and its content;
+            # both are checked by add-labels, fit and plan (study/_integrity.py)
+            "path": str(Path(spec.data).resolve()) if spec.data else None,
             "sha256": getattr(ds, "sha256", None),
             "n_rows": int(n_table), "n_labeled": int(len(labeled)),
             "n_unlabeled": int(len(unlabeled_idx)), "n_features": int(ds.X.shape[1]),

@@ -19,15 +19,22 @@ __all__ = ["study_lock"]
 
 
 @contextlib.contextmanager
-def study_lock(out_dir: str | os.PathLike[str], *, timeout: float = 0.0) -> Iterator[Path]:
-    """Hold the study folder's lock; StoreError when another study holds it.
+def study_lock(out_dir: str | os.PathLike[str], *, timeout: float = 0.0,
+               command: str = "study") -> Iterator[Path]:
+    """Hold the study folder's lock; StoreError when another command holds it.
+
+    ``study``, ``add-labels`` and ``fit`` take the same lock, so none of them reads the
+    folder while another writes it, and two ``add-labels`` never merge at once.
 
     Parameters
     ----------
     out_dir : path
-        Study folder; created if missing.
+        Study folder; created if missing (only ``study`` creates one: the other commands
+        check it exists first).
     timeout : float
         Seconds to wait for a running study to finish (0: refuse at once).
+    command : str
+        The command taking the lock, for the message ("study", "add-labels", "fit").
     """
     from filelock import FileLock, Timeout
 
@@ -38,9 +45,14 @@ def study_lock(out_dir: str | os.PathLike[str], *, timeout: float = 0.0) -> Iter
         lock = FileLock(str(lock_path), timeout=timeout)
         lock.acquire()
     except Timeout:
+        if command == "study":
+            raise StoreError(
+                f"another study is running in {out} (or an add-labels or fit; it holds "
+                f"{lock_path}); wait for it to finish, or give this one another --out folder"
+            ) from None
         raise StoreError(
-            f"another study is running in {out} (it holds {lock_path}); wait for it to finish, "
-            "or give this one another --out folder"
+            f"{command}: a study, add-labels or fit is running in {out} (it holds {lock_path}); "
+            f"wait for it to finish, then run {command} again"
         ) from None
     except OSError as exc:
         raise StoreError(

@@ -15,7 +15,6 @@ sheet returned to the wrong study folder is refused.
 from __future__ import annotations
 
 import hashlib
-import io
 import logging
 import os
 from collections.abc import Mapping
@@ -25,9 +24,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .._atomic import atomic_write_text
 from .._errors import DataError
+from .._escape import restore_cell
+from .._paths import check_output
+from .._tables_out import write_table
 from ._folder import StudyRecord, read_study_record
+from ._integrity import study_table
+from ._lock import study_lock
 
 __all__ = ["ADDED_LABELS_FILE", "SHEET_STUDY_COLUMN", "AddResult", "AddedLabels",
            "add_labels", "apply_added_labels", "read_added_labels", "study_id",
@@ -101,16 +104,17 @@ def read_added_labels(out_dir: str | os.PathLike[str]) -> AddedLabels:
             raise DataError(f"{path}: column 'round' holds {bad!r}, not a round number (1, 2, "
                             "...); remove it or restore the file from a backup")
         rounds = tuple(int(v) for v in text)
-    return AddedLabels(tuple(frame["row_id"]), tuple(frame["label"]), rounds)
+    # the file is written through the spreadsheet-safe writer: take its quotes off again
+    return AddedLabels(tuple(frame["row_id"].map(restore_cell)),
+                       tuple(frame["label"].map(restore_cell)), rounds)
 
 
 def write_added_labels(out_dir: str | os.PathLike[str], added: AddedLabels) -> Path:
-    """Write ``added`` as the study's added labels, atomically."""
+    """Write ``added`` as the study's added labels, atomically, through the one writer of
+    tables a person may open (formula-like ids and labels get a leading quote, which
+    :func:`read_added_labels` takes off)."""
     path = Path(out_dir) / ADDED_LABELS_FILE
-    buf = io.StringIO()
-    added.to_frame().to_csv(buf, index=False)
-    atomic_write_text(path, buf.getvalue())
-    return path
+    return write_table(added.to_frame(), path)
 
 
 def apply_added_labels(ds, added: AddedLabels, *, where: str = ADDED_LABELS_FILE):
@@ -230,16 +234,28 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
     returned : the sheet (CSV, TSV, Parquet or .xlsx) with ``row_id`` and the label column.
     allow_new_classes : accept labels of classes the study has never seen.
     """
-    from ..data import load_dataset
-
     out = Path(study_dir)
     study = _read_study(out / "study.json")
+    # one add-labels at a time, and none while a study or a fit reads the folder
+    with study_lock(out, command="add-labels"):
+        return _add_labels(out, study, Path(returned), allow_new_classes)
+
+
+def _add_labels(out: Path, study: StudyRecord, returned: Path,
+                allow_new_classes: bool) -> AddResult:
+    from ..data import load_dataset
+
     spec = study.spec
-    ids, labels, n_blank = _returned_labels(study, Path(returned))
     if not spec.get("data") or not spec.get("label_column"):
         raise DataError(f"{out / 'study.json'} does not name the study's table and label "
                         "column; run 'semisup study' again")
-    ds = load_dataset(spec["data"], label_column=spec["label_column"],
+    # the study's own table (by its recorded absolute path and SHA-256), never a same-named
+    # file of the current folder
+    table = study_table(out, strict=True, option="").path
+    check_output(out / ADDED_LABELS_FILE, option="add-labels: the study's labels file",
+                 inputs={"the returned sheet": returned, "the study's table": table})
+    ids, labels, n_blank = _returned_labels(study, returned)
+    ds = load_dataset(table, label_column=spec["label_column"],
                       id_column=spec.get("id_column"),
                       unlabeled_markers=tuple(spec.get("unlabeled_markers") or ()),
                       kinds=dict(spec.get("kinds") or {}), delimiter=spec.get("delimiter"),
@@ -251,7 +267,7 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
     if (pos < 0).any():
         bad = [ids[i] for i in np.flatnonzero(pos < 0)]
         raise DataError(f"{returned}: row id {bad[0]!r} is not in the study's table "
-                        f"{spec['data']} ({len(bad)} unknown id(s)); return only rows of "
+                        f"{table} ({len(bad)} unknown id(s)); return only rows of "
                         "label_next.csv")
     names = list(current.class_names)
     new = sorted({lab for lab in labels if lab not in names})
