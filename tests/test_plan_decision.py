@@ -105,3 +105,10 @@ def test_the_small_evaluation_warning_is_said_plainly():
     # a warning it does not know passes unchanged
     facts = StudyFacts(protocol="cross_fit", warnings=["something else"])
     assert data_warnings(facts)[0] == "something else"
+
+
+def test_a_track_sentence_recorded_in_the_plan_is_shown():
+    lines = decision_lines(_plan_dict(track_sentence="At 2x, forecasts like this were off by "
+                                                     "0.03 on tables never tuned on."))
+    assert lines[2].startswith("At 2x, forecasts like this")  # after decision and owned labels
+    assert lines[3].startswith("Target:")

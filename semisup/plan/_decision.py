@@ -143,7 +143,9 @@ def decision_lines(plan: Mapping, *, currency: str = "",
     plan : a plan as plan.json holds it (``Plan.to_dict()``).
     currency : written before every price (e.g. "EUR"); none by default.
     track_sentence : one sentence on how well this kind of forecast has held up; printed
-        after the labels and before the target when given.
+        after the labels (and why the goal moved) and before the target. None: the plan's
+        own ``track_sentence`` key, when plan.json has one (so the console and the report
+        both show it once the plan records it).
 
     Returns
     -------
@@ -187,8 +189,10 @@ def decision_lines(plan: Mapping, *, currency: str = "",
     moved = _moved(plan.get("previous_plan"), metric)
     if moved:
         lines.append(moved)
+    if track_sentence is None:
+        track_sentence = plan.get("track_sentence")
     if track_sentence:
-        lines.append(track_sentence.strip())
+        lines.append(str(track_sentence).strip())
     price = plan.get("cost_per_label")
     per_label = (f"an average of {money(plan.get('expected_price_per_label'), currency)} per "
                  "label (the class prices weighted by the labeled classes)"

@@ -414,7 +414,7 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str,
             covered = b.get("covered")
             err = b.get("error")
             brow.append([b.get("method"), b.get("strategy"), count(b.get("n_labels")),
-                         num(p.get("mean")), span(p.get("low"), p.get("high")),
+                         forecast_value(p.get("mean")), forecast_span(p.get("low"), p.get("high")),
                          num(b.get("measured")),
                          f"{float(err):+.3f}" if isinstance(err, (int, float)) else "\u2013",
                          "not possible: " + str(b.get("reason")) if covered is None
@@ -513,7 +513,8 @@ def _rounds_section(plan: Mapping | None, plans: list[dict], state: Mapping) -> 
             if r.get("plan_choice"):
                 hl.add(len(rows))
             rows.append([p.get("plan"), r["method"], r["strategy"], count(r["n_labels"]),
-                         num(pred["mean"]), span(pred["low"], pred["high"]), num(got["mean"]),
+                         forecast_value(pred["mean"]), forecast_span(pred["low"], pred["high"]),
+                         num(got["mean"]),
                          f"{float(r['error']):+.3f}", "hit" if r["hit"] else "MISS"])
     level = interval_name(scored[0].get("interval"), "bootstrap", brief=True)
     s.table(Table(["plan", "method", "strategy", "training labels", "predicted", level,
