@@ -21,6 +21,7 @@ __all__ = [
     "DASH",
     "FORECAST_CEILING",
     "METRIC_WORDS",
+    "as_number",
     "decision_lines",
     "forecast_span",
     "forecast_value",
@@ -40,7 +41,8 @@ METRIC_WORDS = {
 }
 
 
-def _number(v: object) -> float | None:
+def as_number(v: object) -> float | None:
+    """``v`` as a float; None for None, booleans, text that is not a number and NaN."""
     if isinstance(v, bool) or v is None:
         return None
     try:
@@ -52,7 +54,7 @@ def _number(v: object) -> float | None:
 
 def percent(v: object, digits: int = 0) -> str:
     """A probability or share as a percentage (0.8 -> "80%"; "<1%" and ">99%" at the ends)."""
-    x = _number(v)
+    x = as_number(v)
     if x is None:
         return DASH
     if digits == 0 and 0 < x < 0.005:
@@ -64,7 +66,7 @@ def percent(v: object, digits: int = 0) -> str:
 
 def money(v: object, currency: str = "") -> str:
     """A price with two decimals, after the currency when one is named."""
-    x = _number(v)
+    x = as_number(v)
     if x is None:
         return DASH
     text = f"{x:,.2f}"
@@ -74,7 +76,7 @@ def money(v: object, currency: str = "") -> str:
 def forecast_value(v: object, *, words: bool = False) -> str:
     """A forecast of a metric: three decimals, or "at least 0.99" (``words``) / "0.99+"
     above :data:`FORECAST_CEILING`."""
-    x = _number(v)
+    x = as_number(v)
     if x is None:
         return DASH
     if x > FORECAST_CEILING:
@@ -85,7 +87,7 @@ def forecast_value(v: object, *, words: bool = False) -> str:
 def forecast_span(low: object, high: object) -> str:
     """A forecast interval as "0.947\u20130.981"; an upper end above the ceiling reads
     "0.975 or more" (and an interval wholly above it "at least 0.99")."""
-    lo, hi = _number(low), _number(high)
+    lo, hi = as_number(low), as_number(high)
     if lo is None and hi is None:
         return DASH
     if lo is not None and lo > FORECAST_CEILING:
@@ -101,13 +103,13 @@ def owned_option(options: Sequence[Mapping]) -> Mapping | None:
     free = [o for o in options if isinstance(o, Mapping) and not o.get("n_new")]
     if not free:
         return None
-    return max(free, key=lambda o: (_number(o.get("probability")) or 0.0,
-                                    _number((o.get("predicted") or {}).get("mean")) or 0.0,
-                                    -(_number(o.get("n_labels")) or 0.0)))
+    return max(free, key=lambda o: (as_number(o.get("probability")) or 0.0,
+                                    as_number((o.get("predicted") or {}).get("mean")) or 0.0,
+                                    -(as_number(o.get("n_labels")) or 0.0)))
 
 
 def _count(v: object) -> str:
-    x = _number(v)
+    x = as_number(v)
     return DASH if x is None else f"{round(x):,}"
 
 
@@ -130,7 +132,7 @@ def _chance(p: object) -> str:
 
 
 def _rounds(n: object) -> str:
-    k = int(_number(n) or 0)
+    k = int(as_number(n) or 0)
     return f" in {k} labeling rounds" if k > 1 else ""
 
 
@@ -153,14 +155,14 @@ def decision_lines(plan: Mapping, *, currency: str = "",
     """
     target = plan.get("target") or {}
     metric = METRIC_WORDS.get(str(target.get("metric")), str(target.get("metric", "metric")))
-    value = _number(target.get("value"))
+    value = as_number(target.get("value"))
     goal = f"{metric} {value:g}" if value is not None else metric
-    level = _number(plan.get("interval"))
+    level = as_number(plan.get("interval"))
     interval = f"{level:.0%} interval" if level else "interval"
     chosen = plan.get("chosen")
     lines: list[str] = []
     if chosen:
-        n_new = int(_number(chosen.get("n_new")) or 0)
+        n_new = int(as_number(chosen.get("n_new")) or 0)
         if n_new > 0:
             lines.append(f"Decision: buy {n_new:,} labels{_rounds(chosen.get('rounds'))} for "
                          f"{money(chosen.get('cost'), currency)} and train "
@@ -170,7 +172,7 @@ def decision_lines(plan: Mapping, *, currency: str = "",
                          f"{_outcome(chosen, metric, interval, goal)}.")
     else:
         best = plan.get("best")
-        limit = _number(plan.get("max_extrapolation"))
+        limit = as_number(plan.get("max_extrapolation"))
         within = f" within {limit:g}x the largest measured budget" if limit else ""
         lines.append(f"Decision: do not buy labels. No method reaches {goal} with "
                      f"{_chance(plan.get('confidence'))}{within}"
@@ -198,7 +200,7 @@ def decision_lines(plan: Mapping, *, currency: str = "",
                  "label (the class prices weighted by the labeled classes)"
                  if plan.get("class_costs") else f"{money(price, currency)} per label")
     per_round = (f" and {money(plan.get('cost_per_round'), currency)} per labeling round"
-                 if _number(plan.get("cost_per_round")) else "")
+                 if as_number(plan.get("cost_per_round")) else "")
     lines.append(f"Target: {goal} or more with a chance of at least "
                  f"{percent(plan.get('confidence'))}; price {per_label}{per_round}.")
     if chosen:
@@ -211,16 +213,16 @@ def decision_lines(plan: Mapping, *, currency: str = "",
 
 def _moved(previous: object, metric: str) -> str:
     """"Since the last plan: it expected 0.981 at 300 labels; ..." (why the goal moved)."""
-    if not isinstance(previous, Mapping) or _number(previous.get("expected")) is None:
+    if not isinstance(previous, Mapping) or as_number(previous.get("expected")) is None:
         return ""
     what = (f"{previous.get('method')} ({previous.get('strategy')} selection) at "
             f"{_count(previous.get('n_labels'))} labels")
     text = (f"Since the last plan: it expected {metric} "
             f"{forecast_value(previous.get('expected'), words=True)} for {what}")
-    now = _number(previous.get("now"))
+    now = as_number(previous.get("now"))
     if now is None:
         return text + "; the new measurements no longer forecast that budget."
-    chance = _number(previous.get("probability"))
+    chance = as_number(previous.get("probability"))
     return (text + f"; the new measurements give {forecast_value(now, words=True)} there"
             + (f" ({_chance(chance)} of reaching the target)" if chance is not None
                else "") + ".")

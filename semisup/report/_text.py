@@ -11,6 +11,7 @@ import re
 from collections.abc import Mapping, Sequence
 
 from ..plan._decision import DASH, money, percent
+from ..plan._decision import as_number as _number
 from ._html import Table
 
 __all__ = [
@@ -26,15 +27,6 @@ __all__ = [
     "span",
     "warning_text",
 ]
-
-def _number(v: object) -> float | None:
-    if isinstance(v, bool) or v is None:
-        return None
-    try:
-        x = float(v)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        return None
-    return None if math.isnan(x) else x
 
 
 def num(v: object, digits: int = 3) -> str:
