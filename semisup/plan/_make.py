@@ -503,25 +503,18 @@ def make_plan(
         raise PlanError(f"request must be a PlanRequest, got {type(request).__name__}")
     check_sheet_format(sheet_format)
     plan = build_plan(read_inputs(study_dir), request, select_rows=select_rows, n_boot=n_boot,
-                      sheet_format=sheet_format, now=now)
-    return write_plan(plan)
+                      now=now)
+    return write_plan(plan, sheet_format=sheet_format)
 
 
-def build_plan(
-    inputs: PlanInputs,
-    request: PlanRequest,
-    *,
-    select_rows: Callable[..., object] | None = None,
-    n_boot: int = N_BOOT_PLAN,
-    sheet_format: str = "csv",
-    now: datetime | None = None,
-) -> Plan:
+def build_plan(inputs: PlanInputs, request: PlanRequest, *,
+               select_rows: Callable[..., object] | None = None, n_boot: int = N_BOOT_PLAN,
+               now: datetime | None = None) -> Plan:
     """The plan for ``request`` from what :func:`read_inputs` read; writes no file.
 
-    Same parameters as :func:`make_plan`; returns the frozen :class:`Plan` that
-    :func:`write_plan` writes.
+    ``select_rows``, ``n_boot`` and ``now`` as for :func:`make_plan`; returns the frozen
+    :class:`Plan` that :func:`write_plan` writes.
     """
-    check_sheet_format(sheet_format)
     study_dir, facts, cells_all = inputs.study_dir, inputs.facts, inputs.cells
     made_at = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
     warnings: list[str] = []
@@ -615,7 +608,6 @@ def build_plan(
         name=plan_name(made_at, state), made_at=made_at.isoformat(), state=dict(state),
         history=tuple(_history_entry(p, state) for p in earlier_plans),
         track=track_record(inputs.earlier, inputs.measured),
-        sheet_format=sheet_format,
         previous_stale=(f"plan ({prev_status.name}) was made from another state of the "
                         f"study: {prev_status.reason}"
                         if prev_status is not None and prev_status.stale else ""),
@@ -623,10 +615,13 @@ def build_plan(
         study=dict(inputs.study))
 
 
-def write_plan(plan: Plan) -> Plan:
+def write_plan(plan: Plan, *, sheet_format: str = "csv") -> Plan:
     """Write ``plan`` into its study folder: ``plans/<name>.json`` and its forecast points,
-    ``plan.json`` and the annotator sheet (or remove an older sheet when the plan lists no
-    rows). Returns the plan as written (with the sheet's warnings, if any)."""
+    ``plan.json`` and the annotator sheet as ``sheet_format`` (or remove an older sheet when
+    the plan lists no rows). Returns the plan as written (with the sheet's format and
+    warnings)."""
+    check_sheet_format(sheet_format)
+    plan = replace(plan, sheet_format=sheet_format)
     study_dir = plan.study_dir
     kept = study_dir / PLANS_FOLDER
     atomic_write_text(kept / f"{plan.name}{FORECAST_SUFFIX}", plan.curves.to_csv(index=False))
