@@ -50,7 +50,7 @@ nav a{color:#1b6ca8}
 """
 
 #: Text of a cell that reads as a number (right-aligned): 1,234 / 0.812 / 80% / -0.013.
-_NUMERIC = re.compile(r"[<>+\-−]?\d[\d,]*(\.\d+)?%?")
+_NUMERIC = re.compile(r"[<>+\-−]?\d[\d,]*(\.\d+)?[%+]?")
 
 
 def esc(value: object) -> str:
