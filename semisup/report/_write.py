@@ -306,15 +306,16 @@ def _curves_section(curves, plan, study: Mapping, facts, card: Mapping, figures_
     s.heading("Figures")
     s.para(f"One panel per method family, on a shared scale. Points: measured mean on the "
            f"evaluation rows; bars: {measured_kind}."
-           + (f" Lines: the fitted learning curve (curve families weighted by their backtests; "
+           + (f" Lines: the forecast, a fitted learning curve (curve families weighted by their "
+              "backtests; "
               f"see 'Evidence behind the forecast'); bands: "
               f"{fitted_kind}; the grey area is extrapolated beyond the largest measured budget."
               if fitted else " No curves are fitted until a plan is made ('semisup plan').")
            + " The axis counts training labels"
            + ("; the upper axis adds the labels of the fixed holdout, kept for evaluation"
               if holdout else "") + ". Bars cut by the axes end in an open triangle. "
-           f"Forecasts above {FORECAST_CEILING:g} are drawn at {FORECAST_CEILING:g}: a few "
-           "hundred evaluated labels cannot tell them apart.", "note")
+           f"Forecast lines stop at {FORECAST_CEILING:g} and their bands are cut there: a "
+           "few hundred evaluated labels cannot tell higher forecasts apart.", "note")
     families = _families(curves["method"].unique())
     budget = BudgetFacts(n_holdout=facts.n_holdout if holdout else None,
                          labels_owned=(plan or {}).get("labels_owned"), currency=currency)
