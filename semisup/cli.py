@@ -237,14 +237,15 @@ def build_parser() -> argparse.ArgumentParser:
                    help="price of one label (any currency; the report can name it)")
     p.add_argument("--confidence", type=float,
                    default=_field_default(PlanRequest, "confidence"), metavar="P",
-                   help="required probability of meeting the target "
-                        f"(default: {d['confidence']})")
+                   help="how sure the plan must be: the least probability that the chosen "
+                        f"option meets the target (default: {d['confidence']})")
     p.add_argument("--cost-per-round", type=float,
                    default=_field_default(PlanRequest, "cost_per_round"), metavar="X",
                    help=f"fixed price of one labeling round (default: {d['cost_per_round']})")
     p.add_argument("--labels-owned", type=int, default=None, metavar="N",
-                   help="training labels already paid for (default: the labeled rows in the "
-                        "table less the holdout)")
+                   help="training labels already paid for (default: every labeled row of "
+                        "the study, those returned by labeling rounds included; with "
+                        "--evaluation holdout, less the holdout)")
     p.add_argument("--class-cost", action="append", metavar="CLASS=X", default=None,
                    help="price of one label of CLASS, overriding --cost-per-label (repeatable)")
     p.add_argument("--next", type=int, default=None, metavar="N", dest="n_next",
@@ -293,10 +294,14 @@ def _add_model_parsers(sub) -> None:
                    help="the study's table, if it moved since the study")
     p.add_argument("--pseudo-labels", type=Path, metavar="FILE.csv",
                    help="also write class, probabilities and flags for the table's unlabeled "
-                        "rows, with an 'accepted' column at --confidence-cut")
-    p.add_argument("--confidence-cut", type=float, default=0.9, metavar="P",
-                   help="top probability a pseudo-label needs; the fit reports its "
-                        "cross-fitted accuracy (default 0.9)")
+                        "rows, with an 'accepted' column at --min-probability")
+    p.add_argument("--min-probability", type=float, default=0.9, metavar="P",
+                   dest="confidence_cut",
+                   help="the least predicted probability a pseudo-label needs to be accepted; "
+                        "the fit reports the cross-fitted accuracy above it (default 0.9)")
+    # the option's earlier name, still accepted
+    p.add_argument("--confidence-cut", type=float, default=argparse.SUPPRESS,
+                   dest="confidence_cut", help=argparse.SUPPRESS)
     _add_raw_cells(p, "--pseudo-labels")
     _add_common(p)
 
@@ -470,7 +475,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
         n_next=args.n_next,
     )
     plan = make_plan(args.study_dir, request, sheet_format=args.sheet_format)
-    print(plan.summary())
+    print(plan.summary(verbose=args.verbose))
     return EXIT_OK if plan.reached else EXIT_NOT_REACHABLE
 
 
@@ -495,6 +500,10 @@ def _cmd_fit(args: argparse.Namespace) -> int:
     from .model import fit_model, save_model
     from .study._integrity import recorded_table, study_json
 
+    cut = args.confidence_cut
+    if not 0 < cut < 1:
+        raise SemisupError(f"--min-probability {cut:g} is not allowed; give a probability "
+                           "between 0 and 1 (exclusive), e.g. 0.9")
     # every output path is checked before the (long) fit, by the same rule the writers apply
     info = study_json(args.study_dir)
     table = args.data or recorded_table(info, args.study_dir)[0]

@@ -155,6 +155,15 @@ CARD_ERRORS = {
                           ["t.csv", "SQLite database", "export"]),
     "old xls named .csv": ("t.csv", b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + b"\x00" * 64, [],
                            ["t.csv", ".xls", "save it as .xlsx or CSV"]),
+    # PNG signature: the PNG specification (ISO/IEC 15948), section 5.2.
+    "png image named .csv": ("t.csv", b"\x89PNG\r\n\x1a\n" + b"\x00\x00\x00\rIHDR" * 8, [],
+                             ["t.csv", "a PNG image", "not a picture"]),
+    "binary named .csv": ("t.csv", b"ab\x00\x01\x02" * 40, [],
+                          ["t.csv", "binary file", "not a text table"]),
+    "json array named .csv": ("t.csv", b'[{"a": 1, "label": "p"}, {"a": 2, "label": "q"}]\n',
+                              [], ["t.csv", "looks like JSON", "convert it"]),
+    "json object named .csv": ("t.csv", b'{"a": [1, 2], "label": ["p", "q"]}\n', [],
+                               ["t.csv", "looks like JSON"]),
     "utf-16 file": ("t.csv", "a,b,label\n1,2,x\n".encode("utf-16"), [],
                     ["t.csv", "UTF-16", "--encoding utf-16"]),
     "old .xls name": ("t.xls", b"whatever", [], ["t.xls", "old .xls", ".xlsx or CSV"]),
@@ -567,3 +576,12 @@ def test_plan_label_next_neutralises_formula_ids(tmp_path, monkeypatch):
         if value and value[0] in "=+-@":  # ("" is in every string: the empty label cells)
             assert value.lstrip("+-").replace(".", "", 1).isdigit(), value
     assert any(v.startswith("'=HYPERLINK") for v in sheet["row_id"])
+
+
+def test_a_column_named_id_used_as_a_feature_gets_a_hint(tmp_path, monkeypatch):
+    body = b"id,b,label\n1,2,x\n1,3,y\n2,4,x\n2,5,y\n3,6,\n"
+    result, card = _card_ok(tmp_path, monkeypatch, "t.csv", body)
+    # reference: the file itself -- 'id' repeats, so it is read as a number, not as ids
+    assert "id" in card["kinds"]["numeric"]
+    assert "column 'id' is named like a row id" in result.stderr
+    assert "--id-column id" in result.stderr

@@ -113,8 +113,8 @@ FIT_CASES = {
     "unknown method": (lambda r, s: ["fit", str(s), "--method", "nope", "--out", str(r / "m5")],
                        ["unknown method 'nope'", "known methods"]),
     "confidence cut outside (0, 1)": (
-        lambda r, s: ["fit", str(s), "--confidence-cut", "1.5", "--out", str(r / "m6")],
-        ["--confidence-cut 1.5", "between 0 and 1"]),
+        lambda r, s: ["fit", str(s), "--min-probability", "1.5", "--out", str(r / "m6")],
+        ["--min-probability 1.5", "between 0 and 1"]),
     "table moved": (lambda r, s: ["fit", str(_moved_table(r, s)), "--out", str(r / "m7")],
                     ["gone.csv", "is not found", "--data"]),
     "out is someone's folder": (lambda r, s: ["fit", str(s), "--out", str(_busy(r))],
@@ -265,7 +265,7 @@ def test_pseudo_labels_flag_writes_the_pool(env, capsys):
     root, study, _ = env
     out = root / "pseudo.csv"
     assert main(["fit", str(study), "--out", str(root / "m-pseudo"), "--pseudo-labels",
-                 str(out), "--confidence-cut", "0.8", "--quiet"]) == 0
+                 str(out), "--min-probability", "0.8", "--quiet"]) == 0
     printed = capsys.readouterr().out
     assert "expected accuracy" in printed and ">= 0.8" in printed
     frame, _ = wine_frame()

@@ -149,7 +149,7 @@ def test_each_plan_is_kept_and_a_changed_study_makes_it_stale(tmp_path):
     data = json.loads((folder / "plan.json").read_text())
     assert data["name"] == second.name and data["state"] == current_state(folder)
     assert data["history"][0]["name"] == first.name and not data["history"][0]["stale"]
-    assert "Track record of 1 earlier plan(s): no budget" in second.summary()
+    assert "Track record of 1 earlier plan: no budget" in second.summary()
 
     # The study changes (a new round measured other numbers): the plan is stale everywhere.
     cells = pd.read_csv(folder / "cells.csv")

@@ -55,7 +55,7 @@ def test_plan_files_and_fixed_keys(study):
     assert list(nxt.columns[:3]) == ["rank", "row_id", "reason"]
     assert list(nxt["rank"]) == list(range(1, len(nxt) + 1))
     assert plan.summary().startswith("Decision: buy ")
-    assert "Target: accuracy >= 0.9" in plan.summary()
+    assert "Target: accuracy 0.9 or more with a chance of at least 80%" in plan.summary()
 
 
 def test_chosen_is_the_cheapest_sure_option_and_its_numbers_add_up(study):
@@ -85,8 +85,8 @@ def test_chosen_is_the_cheapest_sure_option_and_its_numbers_add_up(study):
 def test_not_reachable_names_the_best(study):
     plan = _plan(study, target=0.99)
     assert plan.chosen is None and plan.best is not None and not plan.reached
-    assert "not reachable with these data and methods; the best is latent-logreg" in (
-        plan.summary())
+    assert "No method reaches accuracy 0.99 with an 80% chance" in plan.summary()
+    assert "; the best is latent-logreg" in plan.summary()
     data = json.loads((study / "plan.json").read_text())
     assert data["chosen"] is None and data["best"]["method"] == "latent-logreg"
     assert data["reached"] is False
@@ -151,8 +151,8 @@ def test_decision_counts_every_label(study, tmp_path):
     assert lab["owned_for_training"] == 250 and lab["kept_for_evaluation"] == 150
     assert lab["to_buy"] == plan.chosen.n_new
     assert lab["in_all"] == 400 + plan.chosen.n_new
-    assert (f"owned for training: 250; kept for evaluation: 150; to buy: "
-            f"{plan.chosen.n_new}") in plan.summary()
+    assert ("You own 250 training labels and 150 kept aside for evaluation (the holdout)."
+            in plan.summary().splitlines())
     # Under cross-fitting every labeled row trains and is evaluated, in different repeats.
     from semisup.plan._inputs import StudyFacts
     from semisup.plan._make import label_counts
@@ -161,15 +161,21 @@ def test_decision_counts_every_label(study, tmp_path):
     lab = label_counts(facts, 200, 40)
     assert lab["owned_for_training"] == 200 and lab["kept_for_evaluation"] == 0
     assert lab["evaluated_by_cross_fit"] == 200 and lab["in_all"] == 240
-    assert "160 train and 40 are evaluated" in lab["text"]
+    assert "160 train and 40 are evaluated" in lab["evaluation_text"]
+    assert lab["text"] == "You own 200 labels, all in the table; all train the final model."
     # Rows returned by a labeling round only train (DEVELOPERS.md, "Studies that grow"): the
     # folds are dealt from the table's 200, the 50 returned rows are owned but never evaluated.
     facts = StudyFacts(n_labeled=250, protocol="cross_fit", folds=5, n_round_rows=50)
     lab = label_counts(facts, 250, 10)
     assert lab["owned_for_training"] == 250 and lab["evaluated_by_cross_fit"] == 200
     assert lab["returned_by_rounds"] == 50 and lab["in_all"] == 260
-    assert "200 of the table" in lab["text"] and "160 train and 40 are evaluated" in lab["text"]
-    assert "50 returned by labeling rounds, which only ever train" in lab["text"]
+    assert lab["text"] == ("You own 250 labels: 200 in the table + 50 from labeling rounds; "
+                           "all train the final model.")
+    assert "160 train and 40 are evaluated" in lab["evaluation_text"]
+    assert "the 50 returned by labeling rounds only train" in lab["evaluation_text"]
+    facts = StudyFacts(n_labeled=250, protocol="cross_fit", folds=5, n_round_rows=50,
+                       evaluation={"rounds": [{"round": 1, "n_rows": 50}]})
+    assert "+ 50 from round 1;" in label_counts(facts, 250, 10)["text"]
 
 
 def test_labels_owned_default_comes_from_study_json(study):

@@ -42,7 +42,25 @@ OVERFLOW_JS = """() => {
 
 IMAGES_JS = """() => [...document.images].map(i => ({
   src: i.src.slice(0, 30), ok: i.complete && i.naturalWidth > 0, alt: i.alt,
-  shown: i.getBoundingClientRect().width}))"""
+  cls: i.className, shown: i.getBoundingClientRect().width}))"""
+
+# Figure text as shown: an image's smallest text (data-text-px, in image pixels) times its
+# shown width over its natural width, in CSS px; every shown image must say it.
+FIGURE_TEXT_JS = """() => [...document.images].filter(i => i.getBoundingClientRect().width > 0)
+  .map(i => ({alt: i.alt, px: i.dataset.textPx ? parseFloat(i.dataset.textPx)
+      * i.getBoundingClientRect().width / i.naturalWidth : null}))
+  .filter(f => f.px === null || f.px < 9)"""
+
+# The decisive columns of a table (th/td class "key": the option, its chance and its cost)
+# must be on screen without scrolling the table sideways.
+KEY_COLUMNS_JS = """() => {
+  const vw = document.documentElement.clientWidth;
+  const cells = [...document.querySelectorAll("th.key, td.key")]
+    .filter(c => c.getBoundingClientRect().width > 0);
+  return {n: cells.length, off: cells.filter(c => {
+    const r = c.getBoundingClientRect(); return r.right > vw + 1 || r.left < -1;})
+    .map(c => c.textContent.trim().slice(0, 40))};
+}"""
 
 
 def _chromium() -> str | None:
@@ -92,10 +110,56 @@ def test_every_figure_loads(browser, report):
     page = _page(browser, report, 1280)
     images = page.evaluate(IMAGES_JS)
     page.close()
-    assert len(images) == 3
+    wide = [i for i in images if i["cls"] == "wide"]
+    assert len(wide) == 3  # one figure per metric
     for img in images:
         assert img["ok"], img
-        assert img["alt"] and img["shown"] > 300, img
+        assert img["alt"]
+    for img in wide:
+        assert img["shown"] > 300, img
+    # on a wide screen the one-panel images are hidden
+    assert all(i["shown"] == 0 for i in images if i["cls"] == "panel")
+
+
+@pytest.mark.parametrize("width", [1280, 390])
+def test_figure_text_is_at_least_9_css_px(browser, report, width):
+    # 9 CSS px: the smallest text size we accept (common practice, no source).
+    page = _page(browser, report, width)
+    small = page.evaluate(FIGURE_TEXT_JS)
+    page.close()
+    assert small == []
+
+
+def test_figure_text_check_catches_a_shrunken_figure(browser, report, tmp_path):
+    # Control: the report's own wide figure squeezed into 300 px has text below 9 px.
+    html = report.read_text()
+    start = html.index("<img class=\"wide\"")
+    img = html[start:html.index(">", start) + 1].replace("<img ", "<img style='width:300px' ")
+    bad_page = tmp_path / "small.html"
+    bad_page.write_text("<!DOCTYPE html><html lang='en'><head><title>x</title></head><body>"
+                        + img + "</body></html>")
+    page = _page(browser, bad_page, 390)
+    assert page.evaluate(FIGURE_TEXT_JS)
+    page.close()
+
+
+def test_decisive_columns_are_on_a_phone_screen(browser, report):
+    page = _page(browser, report, 390)
+    found = page.evaluate(KEY_COLUMNS_JS)
+    page.close()
+    assert found["n"] >= 3 and found["off"] == []
+
+
+def test_decisive_column_check_catches_a_column_off_screen(browser, tmp_path):
+    # Control: a key column after six wide columns lies beyond a 390 px screen.
+    cells = "".join("<td>" + "x" * 20 + "</td>" for _ in range(6))
+    bad_page = tmp_path / "wide.html"
+    bad_page.write_text("<!DOCTYPE html><html lang='en'><head><title>x</title></head><body>"
+                        "<div style='overflow-x:auto'><table><tr>" + cells
+                        + "<td class='key'>80%</td></tr></table></div></body></html>")
+    page = _page(browser, bad_page, 390)
+    assert page.evaluate(KEY_COLUMNS_JS)["off"] == ["80%"]
+    page.close()
 
 
 @pytest.mark.parametrize("width", [1280, 390])

@@ -89,15 +89,17 @@ def test_the_choice_target_and_intervals_are_shown_and_named(figure):
     for ax in panels:  # the target line in every panel
         assert any(list(line.get_ydata()) == [0.8, 0.8] for line in ax.get_lines())
     text = _texts(figure)
-    assert "90% Student-t interval of the mean over 5 repeats" in text
-    assert "90% bootstrap interval of the fitted curve" in text
+    assert "90% interval of the measured mean over 5 repeats (Student-t)" in text
+    assert "90% interval of the forecast (bootstrap)" in text
     assert "target 0.8" in text and "buy 70" in text and "cost EUR 140.00" in text
+    # the choice's labels, purchase and cost are in the legend, below the data
+    assert "the plan's choice: 120 labels, buy 70, cost EUR 140.00" in text
 
 
 def test_the_budget_axis_counts_evaluation_and_owned_labels(figure):
     text = _texts(figure)
-    assert "all labels: training + 300 kept for evaluation" in text
-    assert "owned 50" in text and "training labels (log scale)" in text
+    assert "all labels: training + 300 of the fixed holdout" in text
+    assert "dotted line: the 50 labels owned" in text and "training labels (log scale)" in text
     top = [c for ax in _panels(figure) for c in ax.child_axes]
     assert top, "no secondary axis with the total label count"
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -105,6 +107,36 @@ def test_the_budget_axis_counts_evaluation_and_owned_labels(figure):
     FigureCanvasAgg(figure).draw()
     labels = {t.get_text() for t in top[0].get_xticklabels()}
     assert {"320", "340", "380"} <= labels  # 20, 40, 80 training labels + 300
+
+
+def test_no_secondary_axis_without_a_holdout():
+    fig = build_curve_figure(_curves(), "accuracy", families=FAMILIES,
+                             facts=BudgetFacts(n_holdout=None, labels_owned=50))
+    assert not [c for ax in _panels(fig) for c in ax.child_axes]
+    assert "kept for evaluation" not in _texts(fig) and "holdout" not in _texts(fig)
+
+
+def test_tick_labels_never_collide_and_keep_the_ends():
+    from semisup.report._figures import tick_budgets
+
+    ticks, labelled = tick_budgets([20, 32, 50, 80, 126, 200, 261], 1044, min_gap=0.06)
+    assert ticks == [20, 32, 50, 80, 126, 200, 261, 1044]
+    assert {20, 80, 261, 1044} <= set(labelled)  # 80 kept: nothing crowds it
+    logs = np.log(labelled)
+    assert np.diff(logs).min() / (logs[-1] - logs[0]) >= 0.06
+
+
+def test_forecasts_above_the_ceiling_are_not_drawn():
+    from semisup.plan import FORECAST_CEILING
+
+    curves = _curves()
+    curves.loc[~curves["measured"], ["mean", "high"]] = 1.0
+    fig = build_curve_figure(curves, "accuracy", families=FAMILIES)
+    for ax in _panels(fig):
+        for line in ax.get_lines():
+            y = np.asarray(line.get_ydata(), dtype=float)
+            assert not (y[np.isfinite(y)] > FORECAST_CEILING + 1e-9).any() or \
+                line.get_linestyle() == "None"
 
 
 def test_error_bars_stay_inside_the_axes(figure):
@@ -121,7 +153,7 @@ def test_rendered_as_png_and_svg():
     assert out.png.startswith(PNG_MAGIC)
     assert out.svg.lstrip().startswith(b"<?xml") and b"<svg" in out.svg
     width, height = int.from_bytes(out.png[16:20], "big"), int.from_bytes(out.png[20:24], "big")
-    assert 600 < width < 2000 and 300 < height < 900  # PNG header (IHDR), PNG specification
+    assert 600 < width < 2000 and 300 < height < 1100  # PNG header (IHDR), PNG specification
 
 
 def _cam02(rgb):

@@ -73,8 +73,8 @@ def test_report_is_self_contained(evil_report):
             if value is not None:
                 assert value.startswith(("data:image/png;base64,", "#")), (tag, value)
     assert "<link" not in text and "http://" not in text and "https://" not in text
-    imgs = [a["src"] for t, a in parser.tags if t == "img"]
-    assert len(imgs) == 3  # one figure per metric
+    wide = [a["src"] for t, a in parser.tags if t == "img" and a.get("class") == "wide"]
+    assert len(wide) == 3  # one figure per metric (and one image per panel for phones)
     pngs = sorted(p.name for p in (folder / "figures").glob("*.png"))
     assert pngs == ["curves_accuracy.png", "curves_balanced_accuracy.png", "curves_macro_f1.png"]
     for p in (folder / "figures").glob("*.png"):
@@ -260,9 +260,12 @@ def test_card_and_diagnostics_read_as_words_and_formatted_numbers(readable_repor
 def test_summary_shows_the_plan_metric_where_repeats_differ(readable_report):
     _, _, text = readable_report
     # The plan's metric (macro-F1) at 160 labels: the largest budget below the pool of 250.
-    assert "Macro-F1 at 160 training labels" in text
+    assert "Measured macro-F1 at 160 training labels" in text
     # measured points come from the study's curves.csv (summarize_curves' 95% default)
-    assert "95% Student-t interval of the mean over 5 repeats" in text
+    assert "95% interval of the measured mean over 5 repeats (Student-t)" in text
+    # ... shown under the curves, not in the job summary beside the plan's 90% intervals
+    summary = text[text.index("id=\"summary\""):text.index("id=\"data\"")]
+    assert "95%" not in summary and "Student-t" not in summary
 
 
 def test_prices_carry_the_currency_and_intervals_their_kind(readable_report):
@@ -270,7 +273,7 @@ def test_prices_carry_the_currency_and_intervals_their_kind(readable_report):
     assert "price EUR 2.50 per label" in text
     cost = plan["chosen"]["cost"] if plan["chosen"] else plan["best"]["cost"]
     assert f"EUR {cost:,.2f}" in text
-    assert "90% bootstrap interval of the fitted curve" in text
+    assert "90% interval of the forecast (bootstrap)" in text
     assert "0.020 &gt; 0.020" not in text
 
 
@@ -289,5 +292,5 @@ def test_numbers_are_formatted_for_people():
 
     assert count(1234567.0) == "1,234,567" and percent(0.8) == "80%"
     assert money(1234.5, "EUR") == "EUR 1,234.50" and money(2.5) == "2.50"
-    assert span(0.81234, 0.9) == "0.812 \u2013 0.900"
+    assert span(0.81234, 0.9) == "0.812\u20130.900"
     assert short({"elbo": {"train": -44.5}, "cv_folds": 3}) == "ELBO train: -44.5; CV folds: 3"

@@ -5,6 +5,8 @@ from __future__ import annotations
 import difflib
 import logging
 import os
+import re
+import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -12,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .._errors import DataError
+from .._errors import DataError, DataWarning
 from ._columns import Where, as_text, infer_column_kinds, prepare_columns
 from ._dataset import Dataset
 from ._labels import encode_labels
@@ -21,6 +23,10 @@ from ._read import KIND_OVERRIDES, file_sha256, is_text_table, read_table
 __all__ = ["dataset_from_frame", "load_dataset"]
 
 log = logging.getLogger(__name__)
+#: (table hash, note) pairs already logged at INFO in this process
+_NOTED: set[tuple[str | None, str]] = set()
+#: column names that usually hold row ids (case-insensitive)
+_ID_NAME = re.compile(r"(?i)(id|row_?id|record_?id|index|key|uuid|\w+_id)")
 
 
 @dataclass
@@ -183,8 +189,16 @@ def _build(
         sha256=sha256,
         label_column=label_column,
     )
+    for column, kind in column_kinds.items():
+        if id_column is None and kind == "numeric" and _ID_NAME.fullmatch(column.strip()):
+            warnings.warn(f"{where.source}: column {column!r} is named like a row id but is "
+                          "used as a numeric feature; if it names the rows, pass --id-column "
+                          f"{column} (or --kind {column}=drop)", DataWarning, stacklevel=3)
     for note in dataset.notes:
-        log.info("%s", note)
+        # once per table and process: a study loads its table at every step
+        level = logging.DEBUG if (sha256, note) in _NOTED else logging.INFO
+        _NOTED.add((sha256, note))
+        log.log(level, "%s", note)
     return _Loaded(dataset=dataset, frame=frame, features=features, id_column=id_column)
 
 

@@ -18,6 +18,7 @@ import itertools
 import logging
 import lzma
 import os
+import re
 import zlib
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
@@ -55,7 +56,15 @@ _MAGIC = (
     (b"SQLite format 3\x00", "an SQLite database", "export the table to CSV or Parquet"),
     (b"\xd0\xcf\x11\xe0", "an old Excel (.xls) or other OLE document",
      "save it as .xlsx or CSV"),
+    (b"\x89PNG\r\n\x1a\n", "a PNG image", "give the table file, not a picture of it"),
+    (b"\xff\xd8\xff", "a JPEG image", "give the table file, not a picture of it"),
+    (b"GIF8", "a GIF image", "give the table file, not a picture of it"),
+    (b"%PDF-", "a PDF document", "export the table to CSV or Parquet"),
+    (b"\x7fELF", "a program (ELF executable)", "give the table file"),
 )
+#: The start of a JSON document (an object with a key, or an array of values): no CSV header
+#: starts like this.
+_JSON_START = re.compile(r'\A\s*(\{\s*("|\})|\[\s*(\{|\[|"|-?\d|\]))')
 #: Cell texts pandas reads as missing by default; used for feature columns only.
 try:
     from pandas._libs.parsers import STR_NA_VALUES as _PANDAS_NA
@@ -184,7 +193,7 @@ def _compression_error(path: Path, compression: str, exc: BaseException) -> Data
 
 
 def _check_magic(path: Path, raw: bytes, compression: str | None,
-                 encoding_given: bool = False) -> None:
+                 encoding_given: bool = False, encoding: str = "") -> None:
     """Refuse binary files named like text tables, with what they look like."""
     for magic, what, fix in _MAGIC:
         if raw.startswith(magic):
@@ -195,6 +204,12 @@ def _check_magic(path: Path, raw: bytes, compression: str | None,
         if raw.startswith(bom) and not encoding_given:
             raise DataError(f"{path}: starts with a UTF-16 byte-order mark; pass --encoding "
                             f"{name} or re-save the file as UTF-8")
+    head = raw[:4096]
+    if b"\x00" in head and not any(w in encoding for w in ("16", "32")):
+        # text in utf-8, latin-1 or cp1252 has no zero bytes; another encoding would be named
+        raise DataError(f"{path}: holds zero bytes at its start, so it is a binary file (an "
+                        "image, archive or program), not a text table; give the table's CSV, "
+                        "TSV, Parquet or .xlsx file")
 
 
 def _iter_records(path: Path, compression: str | None, enc: str,
@@ -328,7 +343,7 @@ def _text_layout(path: Path, delimiter: str | None, encoding: str | None,
         raise _compression_error(path, compression, exc) from None
     if not raw:
         raise DataError(f"{path}: holds no data after decompression; export the table again")
-    _check_magic(path, raw, compression, encoding_given=encoding is not None)
+    _check_magic(path, raw, compression, encoding_given=encoding is not None, encoding=enc)
     try:
         sample = raw.decode(enc)
     except UnicodeDecodeError as exc:
@@ -340,7 +355,8 @@ def _text_layout(path: Path, delimiter: str | None, encoding: str | None,
                         "header row and data rows")
     inner_suffix = Path(path.stem).suffix.lower() if compression else path.suffix.lower()
     stripped_sample = sample.lstrip()
-    if inner_suffix not in (".csv", ".tsv", ".txt") and stripped_sample[:1] in ("{", "["):
+    if (inner_suffix not in (".csv", ".tsv", ".txt") and stripped_sample[:1] in ("{", "[")) \
+            or _JSON_START.match(sample):
         raise DataError(f"{path}: looks like JSON, not a delimited text table; convert it to "
                         "CSV or Parquet first (e.g. pandas.read_json(...).to_csv(...))")
 

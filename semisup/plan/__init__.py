@@ -1,6 +1,7 @@
 """Learning curves, their backtest, the cost model, the plan and the rows to label next.
 
-``make_plan(study_dir, PlanRequest(...))`` reads a finished study folder and writes the plan
+``make_plan(study_dir, PlanRequest(...))`` (``read_inputs``, then ``build_plan``, which writes
+nothing, then ``write_plan``) reads a finished study folder and writes the plan
 under its own name in ``plans/`` (with the study state it was made from and its forecast
 points), ``plan.json`` (the latest plan, with the earlier plans' track record) and the
 annotator sheet ``label_next.csv`` (or ``.xlsx``); the maths underneath is exposed as pure
@@ -30,6 +31,14 @@ from ._curves import (
     fit_power_law_batch,
     power_law,
 )
+from ._decision import (
+    FORECAST_CEILING,
+    METRIC_WORDS,
+    decision_lines,
+    forecast_span,
+    forecast_value,
+    owned_option,
+)
 from ._ensemble import BacktestRecord, ensemble_records, family_errors, family_weights
 from ._families import FAMILIES, Family, exponential, fit_family_batch, mmf, weibull
 from ._history import (
@@ -44,7 +53,7 @@ from ._history import (
 )
 from ._honest import overlapping, shrink_toward_mean
 from ._inputs import StudyFacts, data_warnings, read_json, study_facts, tidy_cells
-from ._make import CURVE_COLUMNS, Plan, make_plan
+from ._make import CURVE_COLUMNS, Plan, PlanInputs, build_plan, make_plan, read_inputs, write_plan
 from ._request import METRICS, PlanRequest
 from ._sheet import SHEET_FORMATS
 from ._track import score_plan, track_record
@@ -53,8 +62,10 @@ __all__ = [
     "BACKTEST_RATIO",
     "CURVE_COLUMNS",
     "FAMILIES",
+    "FORECAST_CEILING",
     "MAX_EXTRAPOLATION",
     "METRICS",
+    "METRIC_WORDS",
     "Backtest",
     "BacktestRecord",
     "Calibration",
@@ -65,6 +76,7 @@ __all__ = [
     "Option",
     "PLANS_FOLDER",
     "Plan",
+    "PlanInputs",
     "PlanRequest",
     "PlanStatus",
     "SHEET_FORMATS",
@@ -74,12 +86,14 @@ __all__ = [
     "bootstrap_curve",
     "budget_grid",
     "budget_weights",
+    "build_plan",
     "calibrate",
     "calibrated_samples",
     "choose",
     "curve_options",
     "current_state",
     "data_warnings",
+    "decision_lines",
     "ensemble_records",
     "expected_label_price",
     "exponential",
@@ -89,11 +103,14 @@ __all__ = [
     "fit_family_batch",
     "fit_learning_curve",
     "fit_power_law_batch",
+    "forecast_span",
+    "forecast_value",
     "labeling_rounds",
     "list_plans",
     "make_plan",
     "mmf",
     "overlapping",
+    "owned_option",
     "paule_mandel",
     "plan_cost",
     "plan_status",
@@ -101,6 +118,7 @@ __all__ = [
     "probability_meets",
     "ratio_table",
     "read_forecast",
+    "read_inputs",
     "read_json",
     "read_measured",
     "rolling_origin",
@@ -112,4 +130,5 @@ __all__ = [
     "tidy_cells",
     "track_record",
     "weibull",
+    "write_plan",
 ]

@@ -7,6 +7,7 @@ off what depends on it (with a warning in the plan), a malformed file is a one-l
 from __future__ import annotations
 
 import json
+import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -191,12 +192,33 @@ def study_facts(study: Mapping, card: Mapping | None = None) -> StudyFacts:
     return facts
 
 
+_SMALL_EVAL = re.compile(r"(?:evaluation rows|holdout) too small for tight estimates: "
+                         r"(?P<detail>.*?)(?:; median Wilson 95% interval width on accuracy of "
+                         r"one cell (?P<width>[\d.]+))?")
+
+
+def _plain_warning(text: str, facts: StudyFacts) -> str:
+    """The study's small-evaluation warning said plainly: how many labeled rows the metric is
+    tested on and how uncertain one repeat's accuracy is (half the median Wilson 95% interval
+    of a cell, which the study's warning gives); other warnings as they are."""
+    m = _SMALL_EVAL.fullmatch(str(text))
+    n = facts.n_rows_evaluated if facts.protocol == "cross_fit" else facts.n_eval
+    if m is None or not n:
+        return str(text)
+    per = (f" ({facts.n_eval:,} per repeat)" if facts.protocol == "cross_fit" and facts.n_eval
+           else "")
+    width = m.group("width")
+    sure = (f": one repeat's accuracy is uncertain by about \u00b1{float(width) / 2:.2f}"
+            if width else "")
+    return f"only {n:,} labeled rows to test on{per}{sure} ({m.group('detail')})"
+
+
 def data_warnings(facts: StudyFacts) -> list[str]:
     """Warnings about the data behind a study: its own, a small holdout, imbalanced classes.
 
     Thresholds (holdout under 100 rows, class ratio 5 or more) are common practice, no source.
     """
-    out = list(facts.warnings)
+    out = [_plain_warning(w, facts) for w in facts.warnings]
     if facts.protocol == "cross_fit":
         if facts.n_rows_evaluated is not None and facts.n_rows_evaluated < 100:
             out.append(f"the study evaluated only {facts.n_rows_evaluated} labeled rows in "

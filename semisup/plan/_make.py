@@ -1,4 +1,5 @@
-"""Make a plan from a study folder (I/O edge): read, fit, price, choose, write.
+"""Make a plan from a study folder: read (:func:`read_inputs`), build (:func:`build_plan`:
+fit, price, choose; no file written; a frozen :class:`Plan`), write (:func:`write_plan`).
 
 Writes, atomically, ``plans/<name>.json`` and ``plans/<name>.forecast.csv`` (the plan kept
 by name with the study state it was made from, and its forecast points; :mod:`._history`),
@@ -13,8 +14,8 @@ from __future__ import annotations
 import json
 import logging
 import os
-from collections.abc import Callable
-from dataclasses import dataclass, field
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -26,8 +27,10 @@ from .._errors import PlanError
 from .._seeding import derive_seed
 from ._bootstrap import CurveBand
 from ._choose import Option, best_effort, choose
+from ._continuation import track_sentence
 from ._costs import expected_label_price
 from ._curves import MAX_EXTRAPOLATION
+from ._decision import decision_lines, forecast_span, forecast_value
 from ._families import FAMILIES
 from ._history import (
     FORECAST_SUFFIX,
@@ -61,7 +64,18 @@ from ._sheet import (
 )
 from ._track import track_lines, track_record
 
-__all__ = ["CURVE_COLUMNS", "Plan", "label_counts", "make_plan", "order_options"]
+__all__ = [
+    "CURVE_COLUMNS",
+    "Plan",
+    "PlanInputs",
+    "build_plan",
+    "label_counts",
+    "make_plan",
+    "order_options",
+    "previous_choice",
+    "read_inputs",
+    "write_plan",
+]
 
 log = logging.getLogger(__name__)
 
@@ -70,27 +84,27 @@ INTERVAL = 0.9          # coverage of every interval the plan reports
 N_BOOT_PLAN = 200       # bootstrap resamples for the plan's metric
 
 
-def _fmt(x: float) -> str:
-    return f"{x:.3f}"
-
-
-@dataclass
+@dataclass(frozen=True)
 class Plan:
-    """A labeling plan: the choice, the options, the backtest and the rows to label next."""
+    """A labeling plan: the choice, the options, the backtest and the rows to label next.
+
+    Built by :func:`build_plan` (no file is written) and written by :func:`write_plan`;
+    frozen, so what is written is what was built.
+    """
 
     request: PlanRequest
     study_dir: Path
     chosen: Option | None
     runner_up: Option | None
     best: Option | None
-    options: list[Option]
-    backtest: list[dict]
-    warnings: list[str]
+    options: tuple[Option, ...]
+    backtest: tuple[dict, ...]
+    warnings: tuple[str, ...]
     labels_owned: int
     label_price: float
-    label_next: pd.DataFrame
-    label_next_strategy: str
-    curves: pd.DataFrame = field(repr=False)
+    label_next: pd.DataFrame = field(repr=False)
+    label_next_strategy: str = "random"
+    curves: pd.DataFrame = field(repr=False, default_factory=pd.DataFrame)
     n_max: dict[str, int] = field(default_factory=dict)
     evidence: dict = field(default_factory=dict)
     labels: dict = field(default_factory=dict)
@@ -98,15 +112,24 @@ class Plan:
     name: str = ""
     made_at: str = ""
     state: dict = field(default_factory=dict)
-    history: list = field(default_factory=list)
+    history: tuple[dict, ...] = ()
     track: dict = field(default_factory=dict)
-    sheet_file: str = "label_next.csv"
+    sheet_format: str = "csv"
     previous_stale: str = ""
+    #: the last plan made from an earlier study state: what it expected at its choice and
+    #: what this plan forecasts there ({} when there is none)
+    previous: dict = field(default_factory=dict)
+    #: study.json as read (the annotator sheet reads the table it names)
+    study: dict = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def reached(self) -> bool:
         """True when some option meets the target with the confidence asked for."""
         return self.chosen is not None
+
+    @property
+    def sheet_file(self) -> str:
+        return sheet_name(self.sheet_format)
 
     def to_dict(self) -> dict:
         r = self.request
@@ -131,85 +154,54 @@ class Plan:
             "runner_up": None if self.runner_up is None else self.runner_up.to_dict(),
             "best": None if self.best is None else self.best.to_dict(),
             "options": [o.to_dict() for o in self.options],
-            "backtest": self.backtest,
+            "backtest": list(self.backtest),
             **self.evidence,
             "label_next": {"strategy": self.label_next_strategy,
                            "n_rows": int(len(self.label_next)),
                            "written": self.label_next_written,
                            "file": self.sheet_file if self.label_next_written else None},
             "measured_up_to": dict(self.n_max),
+            "previous_plan": dict(self.previous) or None,
             "history": list(self.history),
             "track_record": dict(self.track),
             "warnings": list(self.warnings),
         }
 
-    def _describe(self, o: Option) -> str:
+    def summary(self, *, verbose: bool = False) -> str:
+        """The plan as text: :func:`decision_lines` first (the same lines as the report's
+        decision box), then the checks, the rows to label next, warnings and files.
+        ``verbose`` adds the forecast's calibration in numbers."""
+        lines = decision_lines(self.to_dict())
         m = self.request.metric
-        extra = ", extrapolated" if o.extrapolated else ""
-        return (f"{o.method} ({o.strategy} selection) at {o.n_labels} labels: predicted {m} "
-                f"{_fmt(o.mean)} [{_fmt(o.low)}, {_fmt(o.high)}]{extra}, probability "
-                f"{o.probability:.2f}, cost {o.cost:,.2f}")
-
-    def summary(self) -> str:
-        r = self.request
-        target = (f"Target: {r.metric} >= {r.target:g} with probability >= {r.confidence:g} "
-                  f"(expected price per label {self.label_price:,.2f}).")
-        lines: list[str] = []
-        if self.chosen is not None:
-            c = self.chosen
-            if c.n_new > 0:
-                lines.append(f"Decision: buy {c.n_new} labels ({c.rounds} round(s)) and use "
-                             f"{c.method} with {c.strategy} selection, {c.n_labels} training "
-                             "labels in all.")
-            else:
-                lines.append(f"Decision: no labels to buy; {c.method} trained on {c.n_labels} "
-                             "of the labels you own is predicted to meet the target.")
-            lines += [target, f"Labels: {self.labels.get('text', '')}",
-                      f"  {self._describe(c)}"]
-            if self.runner_up is not None:
-                lines.append(f"Runner-up: {self._describe(self.runner_up)}")
-            else:
-                lines.append("Runner-up: none (no other method and strategy meets the target "
-                             "with this confidence).")
-        else:
-            tail = (f"; the best is {self._describe(self.best)}" if self.best is not None
-                    else "")
-            lines.append("Decision: do not buy labels. The target is not reachable with these "
-                         f"data and methods{tail}.")
-            lines += [target, f"Labels: {self.labels.get('text', '')}"]
-            lines.append(f"  (Budgets up to {MAX_EXTRAPOLATION:g}x the largest measured one were "
-                         "considered; measure larger budgets to look further.)")
+        evaluated = self.labels.get("evaluation_text")
+        if evaluated:
+            lines.append(f"How the labels are evaluated: {evaluated}")
         for b in self.backtest:
             if b.get("covered") is None:
-                lines.append(f"Backtest {b['method']} ({b['strategy']}): not possible, "
+                lines.append(f"Check of {b['method']} ({b['strategy']}): not possible, "
                              f"{b.get('reason', '')}.")
             else:
                 pred = b["predicted"]
                 lines.append(
-                    f"Backtest {b['method']} ({b['strategy']}) at {b['n_labels']} labels: "
-                    f"predicted {_fmt(pred['mean'])} [{_fmt(pred['low'])}, {_fmt(pred['high'])}]"
-                    f", measured {_fmt(b['measured'])}, error {b['error']:+.3f}, "
-                    f"{'covered' if b['covered'] else 'NOT covered'}.")
-        ev = self.evidence
-        cal = ev.get("calibration") or {}
-        if cal:
-            wins = ", ".join(f"{k} {v}" for k, v in sorted((ev.get("family_wins") or {}).items()))
-            text = (f"calibrated on {cal.get('n_backtests')} backtest forecasts: metric shift "
-                    f"{cal.get('metric_shift_per_doubling', 0.0):+.4f} and extra sd "
-                    f"{(cal.get('extra_sd_at') or {}).get('2x', 0.0):.4f} per doubling"
-                    if cal.get("calibrated") else f"not calibrated ({cal.get('reason', '')})")
-            lines.append(f"Forecast: curve families weighted by their backtests (winning "
-                         f"family per curve: {wins or 'none'}); intervals {text}.")
-        note = (ev.get("selection") or {}).get("note")
+                    f"Check of {b['method']} ({b['strategy']}): refitted without its "
+                    f"{b['n_labels']:,}-label budget it predicted {m} "
+                    f"{forecast_value(pred['mean'])} ({INTERVAL:.0%} interval "
+                    f"{forecast_span(pred['low'], pred['high'])}) there; measured "
+                    f"{b['measured']:.3f}, "
+                    f"{'inside' if b['covered'] else 'OUTSIDE'} the interval.")
+        lines.extend(_forecast_lines(self.evidence, verbose=verbose))
+        note = (self.evidence.get("selection") or {}).get("note")
         if note:
-            lines.append(f"Overlap: {note}.")
+            lines.append(f"Close options: {note}.")
         lines.extend(track_lines(self.track))
         if self.previous_stale:
             lines.append(f"Note: the previous {self.previous_stale}; it is kept in "
                          f"{PLANS_FOLDER}/ as history, this plan replaces it as plan.json.")
-        if self.label_next_written:
-            lines.append(f"Rows to label next: {len(self.label_next)} "
+        if self.label_next_written and len(self.label_next):
+            lines.append(f"Rows to label next: {len(self.label_next):,} "
                          f"({self.label_next_strategy} selection) in {self.sheet_file}.")
+        elif self.label_next_written:
+            lines.append(f"Rows to label next: none ({self.sheet_file} lists no rows).")
         else:
             lines.append("Rows to label next: none listed, since nothing should be bought "
                          "(pass --next N to list N rows anyway).")
@@ -220,6 +212,29 @@ class Plan:
             f" and {self.sheet_file}" if self.label_next_written else "")
         lines.append(f"Wrote {written} in {self.study_dir}.")
         return "\n".join(lines)
+
+
+def _forecast_lines(evidence: dict, *, verbose: bool) -> list[str]:
+    """How the forecast's intervals were checked: in plain words, or (``verbose``) with the
+    calibration's numbers and the winning curve families."""
+    cal = evidence.get("calibration") or {}
+    if not cal:
+        return []
+    if not cal.get("calibrated"):
+        return [f"Forecast: its intervals could not be checked against earlier predictions "
+                f"({cal.get('reason', '')})."]
+    n = cal.get("n_backtests")
+    lines = [f"Forecast: checked against {n} earlier predictions of these curves (each curve "
+             "refitted on its first budgets and scored on the later ones) and its intervals "
+             "widened to match."]
+    if verbose:
+        wins = ", ".join(f"{k} {v}" for k, v in sorted((evidence.get("family_wins")
+                                                        or {}).items()))
+        lines.append(f"  Calibration: metric shift "
+                     f"{cal.get('metric_shift_per_doubling', 0.0):+.4f} and extra sd "
+                     f"{(cal.get('extra_sd_at') or {}).get('2x', 0.0):.4f} per doubling of the "
+                     f"budget; curve family winning per curve: {wins or 'none'}.")
+    return lines
 
 
 def _fitted_rows(band: CurveBand, display: np.ndarray, method: str, strategy: str,
@@ -256,8 +271,11 @@ def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
                  owned_given: bool = False) -> dict:
     """Every label of the decision: owned for training, kept for evaluation, to buy.
 
-    Under cross-fitting no label is set aside: each labeled row trains the model in some
-    repeats and is evaluated in the others, and the sentence says so.
+    ``text`` is the short line the plan shows ("You own 300 labels: 250 in the table + 50
+    from round 1; all train the final model."); ``evaluation_text`` says how they are
+    evaluated. Under cross-fitting no label is set aside: each labeled row of the table
+    trains the model in some repeats and is evaluated in the others; rows returned by
+    labeling rounds only train.
     """
     n_lab = facts.n_labeled
     out: dict = {"protocol": facts.protocol, "owned_for_training": int(labels_owned),
@@ -267,36 +285,45 @@ def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
         k = facts.folds
         rounds = min(int(facts.n_round_rows or 0), int(n_lab))
         table = n_lab - rounds  # the rows the folds are dealt from
-        folds = (f" ({k} folds: in each repeat about {table - table // k} train and "
-                 f"{table // k} are evaluated)" if k and k > 1 else "")
         out["evaluated_by_cross_fit"] = int(table)
+        folds = (f" ({k} folds: in each repeat about {table - table // k:,} train and "
+                 f"{table // k:,} are evaluated)" if k and k > 1 else "")
+        out["evaluation_text"] = (
+            f"cross-fitting: each of the {table:,} labeled rows in the table trains the model "
+            f"in some repeats and is evaluated in others{folds}; none is kept aside"
+            + (f"; the {rounds:,} returned by labeling rounds only train." if rounds else "."))
         if rounds:
             out["returned_by_rounds"] = rounds
-            out["text"] = (f"{n_lab} labeled rows: {table} of the table, each of which trains "
-                           f"the model in some repeats and is evaluated in others{folds}, "
-                           f"and {rounds} returned by labeling rounds, which only ever train; "
-                           f"so all {n_lab} count as owned for training and none is kept aside "
-                           f"for evaluation; to buy: {to_buy}; {n_lab + to_buy} labels in all.")
+            out["text"] = (f"You own {n_lab:,} labels: {table:,} in the table + {rounds:,} "
+                           f"from {_round_names(facts)}; all train the final model.")
         else:
-            out["text"] = (f"{n_lab} labeled rows in the table; under cross-fitting each of "
-                           f"them trains the model in some repeats and is evaluated in "
-                           f"others{folds}, so all {n_lab} count as owned for training and none "
-                           f"is kept aside for evaluation; to buy: {to_buy}; {n_lab + to_buy} "
-                           "labels in all.")
+            out["text"] = (f"You own {n_lab:,} labels, all in the table; all train the final "
+                           "model.")
     elif facts.protocol == "test_file":
         n_eval = int(facts.n_eval or 0)
         out["kept_for_evaluation"] = n_eval
-        out["text"] = (f"owned for training: {labels_owned}{source}; in the test file, for "
-                       f"evaluation only: {n_eval}; to buy: {to_buy}; "
-                       f"{labels_owned + n_eval + to_buy} labels in all.")
+        out["text"] = (f"You own {labels_owned:,} training labels{source}; the test file's "
+                       f"{n_eval:,} labels are for evaluation only.")
     else:
         kept = int(facts.n_holdout or 0) if facts.protocol != "cross_fit" else 0
         out["kept_for_evaluation"] = kept
-        out["text"] = (f"owned for training: {labels_owned}{source}; kept for evaluation: "
-                       f"{kept}; to buy: {to_buy}; {labels_owned + kept + to_buy} labels in "
-                       "all.")
+        out["text"] = (f"You own {labels_owned:,} training labels{source}"
+                       + (f" and {kept:,} kept aside for evaluation (the holdout)" if kept
+                          else "") + ".")
     out["in_all"] = out["owned_for_training"] + out["kept_for_evaluation"] + out["to_buy"]
     return out
+
+
+def _round_names(facts: StudyFacts) -> str:
+    """"round 1" or "rounds 1-3": the labeling rounds recorded in study.json."""
+    rounds = (facts.evaluation or {}).get("rounds") or []
+    numbers = sorted({int(r["round"]) for r in rounds
+                      if isinstance(r, dict) and isinstance(r.get("round"), int)})
+    if not numbers:
+        return "labeling rounds"
+    if len(numbers) == 1:
+        return f"round {numbers[0]}"
+    return f"rounds {numbers[0]}\u2013{numbers[-1]}"
 
 
 def order_options(options: list[Option], confidence: float) -> list[Option]:
@@ -335,16 +362,18 @@ def _rivals(chosen: Option | None, fc: Forecasts, metric: str) -> list[Option]:
 
 def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
                   reached: bool) -> str:
+    """Which other curves the study cannot tell from the choice at its budget."""
     if chosen is None or not rivals:
         return ""
-    names = ", ".join(f"{o.method} ({o.strategy}) {_fmt(o.mean)} [{_fmt(o.low)}, "
-                      f"{_fmt(o.high)}]" for o in rivals[:4])
+    def one(o: Option) -> str:
+        return f"{o.method} ({o.strategy}) {forecast_value(o.mean)}"
+    names = ", ".join(one(o) for o in rivals[:4])
     more = f" and {len(rivals) - 4} more" if len(rivals) > 4 else ""
-    return (f"at {chosen.n_labels} labels the {INTERVAL:.0%} intervals of {names}{more} overlap "
-            f"that of {chosen.method} ({chosen.strategy}) {_fmt(chosen.mean)} "
-            f"[{_fmt(chosen.low)}, {_fmt(chosen.high)}]: the study cannot tell these "
-            f"{metric} values apart"
-            + (", so the cheapest option that is sure enough is preferred" if reached else ""))
+    return (f"at {chosen.n_labels:,} labels the {INTERVAL:.0%} intervals of {names}{more} "
+            f"overlap that of {one(chosen)}: the study cannot tell these {metric} values "
+            "apart, so any of them may do as well"
+            + ("; the choice went to the one most likely to reach the target" if reached
+               else ""))
 
 
 def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
@@ -379,7 +408,21 @@ def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals:
     for cm in fc.curve_models:
         if cm["winner"]:
             winners[cm["winner"]] = winners.get(cm["winner"], 0) + 1
+    continuation, sentence = None, ""
+    if fc.prior is not None:
+        continuation = {
+            "tables": fc.prior.n_tasks, "curves": fc.prior.n_curves, "source": fc.prior.source,
+            "track": dict(fc.prior.track),
+            "curves_continued": {f"{m} ({s})": v for (m, s, met), v in fc.continued.items()
+                                 if met == fc.metric},
+        }
+        if pick is not None:
+            model = fc.models.get((pick.method, pick.strategy))
+            if model is not None and model.levels.size:
+                sentence = track_sentence(fc.prior, pick.n_labels / float(model.levels[-1]))
     return {
+        "continuation": continuation,
+        "track_sentence": sentence,
         "evaluation": {
             "protocol": facts.protocol,
             "shared_eval_rows": eval_rows,
@@ -393,9 +436,9 @@ def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals:
         "curve_models": fc.curve_models,
         "family_wins": winners,
         "selection": {
-            "winners_curse": ("each method's prediction at a budget is shrunk toward the "
-                              "mean of the methods (positive-part James-Stein, Efron & "
-                              "Morris 1975)"),
+            "winners_curse": ("each method's level at the largest measured budget is shrunk "
+                              "toward the mean of the methods (positive-part James-Stein, "
+                              "Efron & Morris 1975); the shift moves its whole curve"),
             "overlap": [o.to_dict() for o in rivals],
             "note": note,
             # share of each curve's own deviation from the methods' mean that is kept at the
@@ -407,6 +450,41 @@ def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals:
     }
 
 
+@dataclass(frozen=True)
+class PlanInputs:
+    """Everything a plan is built from, read from the study folder by :func:`read_inputs`."""
+
+    study_dir: Path
+    cells: pd.DataFrame = field(repr=False)
+    state: dict
+    study: dict = field(repr=False)
+    facts: StudyFacts
+    candidates: dict | None = field(repr=False)
+    #: earlier plans (oldest first) with their forecast points
+    earlier: tuple[tuple[dict, pd.DataFrame | None], ...] = field(repr=False)
+    measured: pd.DataFrame | None = field(repr=False)
+    #: the plan.json this plan replaces ({} when none)
+    previous: dict = field(repr=False)
+
+
+def read_inputs(study_dir: str | os.PathLike[str]) -> PlanInputs:
+    """Read what a plan needs from ``study_dir`` (cells.csv required; study.json,
+    data_card.json, candidates.npz, the kept plans and curves.csv when present)."""
+    from ..study._integrity import check_exports
+
+    study_dir = Path(study_dir)
+    check_exports(study_dir, command="plan")  # a hand-edited cells.csv / curves.csv: one line
+    cells = read_cells(study_dir, METRICS)
+    state = current_state(study_dir)
+    study = read_json(study_dir / "study.json")
+    facts = study_facts(study, read_json(study_dir / "data_card.json"))
+    earlier = tuple((p, read_forecast(study_dir, p)) for p in list_plans(study_dir))
+    return PlanInputs(study_dir=study_dir, cells=cells, state=state, study=study, facts=facts,
+                      candidates=read_candidates(study_dir), earlier=earlier,
+                      measured=read_measured(study_dir),
+                      previous=read_json(study_dir / "plan.json"))
+
+
 def make_plan(
     study_dir: str | os.PathLike[str],
     request: PlanRequest,
@@ -416,7 +494,10 @@ def make_plan(
     sheet_format: str = "csv",
     now: datetime | None = None,
 ) -> Plan:
-    """Fit learning curves to a finished study, price the options and choose.
+    """Fit learning curves to a finished study, price the options, choose, and write.
+
+    :func:`read_inputs`, then :func:`build_plan` (which writes nothing), then
+    :func:`write_plan`.
 
     Parameters
     ----------
@@ -439,16 +520,21 @@ def make_plan(
     if not isinstance(request, PlanRequest):
         raise PlanError(f"request must be a PlanRequest, got {type(request).__name__}")
     check_sheet_format(sheet_format)
-    study_dir = Path(study_dir)
-    from ..study._integrity import check_exports
+    plan = build_plan(read_inputs(study_dir), request, select_rows=select_rows, n_boot=n_boot,
+                      now=now)
+    return write_plan(plan, sheet_format=sheet_format)
 
-    check_exports(study_dir, command="plan")  # a hand-edited cells.csv / curves.csv: one line
-    cells_all = read_cells(study_dir, METRICS)
-    state = current_state(study_dir)
+
+def build_plan(inputs: PlanInputs, request: PlanRequest, *,
+               select_rows: Callable[..., object] | None = None, n_boot: int = N_BOOT_PLAN,
+               now: datetime | None = None) -> Plan:
+    """The plan for ``request`` from what :func:`read_inputs` read; writes no file.
+
+    ``select_rows``, ``n_boot`` and ``now`` as for :func:`make_plan`; returns the frozen
+    :class:`Plan` that :func:`write_plan` writes.
+    """
+    study_dir, facts, cells_all = inputs.study_dir, inputs.facts, inputs.cells
     made_at = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
-    study = read_json(study_dir / "study.json")
-    card = read_json(study_dir / "data_card.json")
-    facts = study_facts(study, card)
     warnings: list[str] = []
     metric = request.metric
     if metric not in cells_all.columns:
@@ -486,34 +572,22 @@ def make_plan(
                      "label_price": label_price, "labels_owned": labels_owned,
                      "cost_per_round": request.cost_per_round})
     warnings.extend(fc.warnings)
-    curve_rows: list[dict] = []
-    for (method, strategy), grp in cells.groupby(["method", "strategy"], sort=True):
-        for m in metrics_present:
-            sub = grp[grp[m].notna()]
-            if sub.empty or (method, strategy, m) not in fc.bands:
-                continue
-            band = fc.bands[(method, strategy, m)]
-            # the plan's metric on its whole grid (the track record reads budgets off it),
-            # the report-only metrics at the display budgets
-            curve_rows.extend(_fitted_rows(band, band.grid if m == metric
-                                           else fc.displays[(method, strategy, m)], method,
-                                           strategy, m))
-    options = fc.options
+    curves = _forecast_table(cells, fc, metric, metrics_present)
     backtests = fc.backtest
     n_max = {f"{k[0]} ({k[1]})": int(mdl.levels[-1]) for k, mdl in fc.models.items()}
 
-    chosen, runner_up = choose(options, request.confidence)
-    best = chosen if chosen is not None else best_effort(options)
-    options = order_options(options, request.confidence)
+    chosen, runner_up = choose(fc.options, request.confidence)
+    best = chosen if chosen is not None else best_effort(fc.options)
+    options = order_options(fc.options, request.confidence)
     if chosen is not None and chosen.extrapolated:
         warnings.append(f"the chosen budget ({chosen.n_labels}) lies beyond the largest measured "
                         "budget; its prediction is extrapolated and its interval widened")
     if chosen is not None and chosen.flagged:
         warnings.append("the chosen curve uses the monotone fallback, not a fitted curve "
                         "family")
-    rivals = _rivals(chosen if chosen is not None else best, fc, metric)
-    note = _overlap_note(chosen if chosen is not None else best, rivals, metric,
-                         chosen is not None)
+    pick = chosen if chosen is not None else best
+    rivals = _rivals(pick, fc, metric)
+    note = _overlap_note(pick, rivals, metric, chosen is not None)
     for b in backtests:
         if b["covered"] is False:
             warnings.append(f"backtest of {b['method']} ({b['strategy']}): the interval did not "
@@ -529,56 +603,114 @@ def make_plan(
         n_rows = chosen.n_new
     else:
         n_rows = 0
-    write_list = chosen is not None or request.n_next is not None
     select = select_rows if select_rows is not None else default_select_rows()
     label_next, strategy_used, lw = rank_rows(
-        read_candidates(study_dir), strategy, n_rows,
+        inputs.candidates, strategy, n_rows,
         seed=derive_seed(facts.seed, "plan", "label_next", strategy), select_rows=select)
     warnings.extend(lw)
 
-    curves = pd.DataFrame(curve_rows)
-    extra_cols = [c for c in curves.columns if c not in CURVE_COLUMNS]
-    curves = curves[CURVE_COLUMNS + extra_cols]
+    state = inputs.state
+    prev_status = PlanStatus(inputs.previous, state) if inputs.previous else None
+    earlier_plans = [p for p, _ in inputs.earlier]
+    return Plan(
+        request=request, study_dir=study_dir, chosen=chosen, runner_up=runner_up, best=best,
+        options=tuple(options), backtest=tuple(backtests), warnings=tuple(warnings),
+        labels_owned=labels_owned, label_price=label_price,
+        label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
+        curves=curves, n_max=n_max,
+        evidence=_evidence(fc, facts, eval_rows, rivals, note, pick),
+        labels=label_counts(facts, labels_owned, chosen.n_new if chosen is not None else 0,
+                            owned_given=request.labels_owned is not None),
+        label_next_written=chosen is not None or request.n_next is not None,
+        name=plan_name(made_at, state), made_at=made_at.isoformat(), state=dict(state),
+        history=tuple(_history_entry(p, state) for p in earlier_plans),
+        track=track_record(inputs.earlier, inputs.measured),
+        previous_stale=(f"plan ({prev_status.name}) was made from another state of the "
+                        f"study: {prev_status.reason}"
+                        if prev_status is not None and prev_status.stale else ""),
+        previous=previous_choice(earlier_plans, state, curves, options, metric),
+        study=dict(inputs.study))
 
-    plan = Plan(request=request, study_dir=study_dir, chosen=chosen, runner_up=runner_up,
-                best=best, options=options, backtest=backtests, warnings=warnings,
-                labels_owned=labels_owned, label_price=label_price,
-                label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
-                curves=curves, n_max=n_max,
-                evidence=_evidence(fc, facts, eval_rows, rivals, note,
-                                   chosen if chosen is not None else best),
-                labels=label_counts(facts, labels_owned,
-                                    chosen.n_new if chosen is not None else 0,
-                                    owned_given=request.labels_owned is not None),
-                label_next_written=write_list)
-    name = plan_name(made_at, state)
-    earlier = list_plans(study_dir)
-    previous = read_json(study_dir / "plan.json")
-    prev_status = PlanStatus(previous, state) if previous else None
-    plan.name, plan.made_at, plan.state = name, made_at.isoformat(), state
-    plan.previous_stale = (f"plan ({prev_status.name}) was made from another state of the "
-                           f"study: {prev_status.reason}"
-                           if prev_status is not None and prev_status.stale else "")
-    plan.history = [_history_entry(p, state) for p in earlier]
-    plan.track = track_record(((p, read_forecast(study_dir, p)) for p in earlier),
-                              read_measured(study_dir))
-    plan.sheet_file = sheet_name(sheet_format)
+
+def write_plan(plan: Plan, *, sheet_format: str = "csv") -> Plan:
+    """Write ``plan`` into its study folder: ``plans/<name>.json`` and its forecast points,
+    ``plan.json`` and the annotator sheet as ``sheet_format`` (or remove an older sheet when
+    the plan lists no rows). Returns the plan as written (with the sheet's format and
+    warnings)."""
+    check_sheet_format(sheet_format)
+    plan = replace(plan, sheet_format=sheet_format)
+    study_dir = plan.study_dir
     kept = study_dir / PLANS_FOLDER
-    atomic_write_text(kept / f"{name}{FORECAST_SUFFIX}", curves.to_csv(index=False))
-    if write_list:
-        table, id_column, label_column, sw = read_study_table(study)
+    atomic_write_text(kept / f"{plan.name}{FORECAST_SUFFIX}", plan.curves.to_csv(index=False))
+    if plan.label_next_written:
+        table, id_column, label_column, sw = read_study_table(plan.study)
         sheet, more = annotator_sheet(plan.label_next, table, id_column=id_column,
-                                      label_column=label_column, study=study)
-        plan.warnings.extend(sw + more)
-        write_sheet(sheet, study_dir, sheet_format)
+                                      label_column=label_column, study=plan.study)
+        if sw or more:
+            plan = replace(plan, warnings=(*plan.warnings, *sw, *more))
+        write_sheet(sheet, study_dir, plan.sheet_format)
     else:
         # an older plan's list must not be taken for this plan's
         remove_sheets(study_dir)
     text = json.dumps(_jsonable(plan.to_dict()), indent=2) + "\n"
-    atomic_write_text(kept / f"{name}.json", text)
+    atomic_write_text(kept / f"{plan.name}.json", text)
     atomic_write_text(study_dir / "plan.json", text)
     log.info("plan written to %s", study_dir / "plan.json")
     return plan
+
+
+def _forecast_table(cells: pd.DataFrame, fc: Forecasts, metric: str,
+                    metrics_present: list[str]) -> pd.DataFrame:
+    """The forecast points the plan keeps: the plan's metric on its whole grid (the track
+    record reads budgets off it), the report-only metrics at the display budgets."""
+    curve_rows: list[dict] = []
+    for (method, strategy), grp in cells.groupby(["method", "strategy"], sort=True):
+        for m in metrics_present:
+            if grp[m].notna().sum() == 0 or (method, strategy, m) not in fc.bands:
+                continue
+            band = fc.bands[(method, strategy, m)]
+            curve_rows.extend(_fitted_rows(band, band.grid if m == metric
+                                           else fc.displays[(method, strategy, m)], method,
+                                           strategy, m))
+    curves = pd.DataFrame(curve_rows)
+    if curves.empty:
+        return pd.DataFrame(columns=CURVE_COLUMNS)
+    extra_cols = [c for c in curves.columns if c not in CURVE_COLUMNS]
+    return curves[CURVE_COLUMNS + extra_cols]
+
+
+def previous_choice(earlier: list[dict], state: Mapping, curves: pd.DataFrame,
+                    options: list[Option], metric: str) -> dict:
+    """Why the goal moved: the latest plan made from an earlier study state, what it expected
+    at its choice, and this plan's forecast (and chance, when that budget is an option) for
+    the same method, strategy and budget. {} without such a plan (pure)."""
+    state_id = state.get("id")
+    older = [p for p in earlier
+             if ((p.get("state") or {}).get("id") != state_id)
+             and str((p.get("target") or {}).get("metric")) == metric]
+    if not older:
+        return {}
+    p = older[-1]
+    pick = p.get("chosen") or p.get("best")
+    if not isinstance(pick, Mapping) or not pick.get("method"):
+        return {}
+    method, strategy = str(pick["method"]), str(pick.get("strategy") or "random")
+    n = int(pick.get("n_labels") or 0)
+    out = {"plan": p.get("name"), "method": method, "strategy": strategy, "n_labels": n,
+           "expected": (pick.get("predicted") or {}).get("mean"), "now": None,
+           "probability": None}
+    if not curves.empty and n > 0:
+        fc = curves[(curves["metric"] == metric) & (curves["method"] == method)
+                    & (curves["strategy"] == strategy)].sort_values("n_labels")
+        budgets = fc["n_labels"].to_numpy(float)
+        if len(budgets) and budgets[0] <= n <= budgets[-1]:
+            out["now"] = float(np.interp(np.log(n), np.log(budgets),
+                                         fc["mean"].to_numpy(float)))
+    same = next((o for o in options if (o.method, o.strategy, o.n_labels)
+                 == (method, strategy, n)), None)
+    if same is not None:
+        out["now"], out["probability"] = same.mean, same.probability
+    return out
 
 
 def _history_entry(p: dict, state: dict) -> dict:

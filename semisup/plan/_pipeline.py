@@ -70,6 +70,8 @@ class Forecasts:
     continued: dict[tuple[str, str, str], dict] = field(default_factory=dict)
     #: the prior of the plan's metric (None when the fitted families extrapolate)
     prior: ContinuationPrior | None = None
+    #: the plan's metric
+    metric: str = ""
 
 
 def _grid(levels: np.ndarray, extra: Iterable[float]) -> tuple[np.ndarray, np.ndarray]:
@@ -315,4 +317,4 @@ def forecast_all(
         warnings.append(f"intervals are not calibrated: {cal.reason}")
     return Forecasts(bands, models, cal, options, records,
                      ratio_table(raw_records, cal, interval), curve_models, backtest,
-                     displays, factors, warnings, continued, prior_of(metric))
+                     displays, factors, warnings, continued, prior_of(metric), metric)

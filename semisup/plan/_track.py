@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from ..study._folder import truthy as _truthy
+from ._decision import forecast_span, forecast_value
 
 __all__ = ["score_plan", "track_lines", "track_record"]
 
@@ -131,28 +132,33 @@ def track_record(earlier: Iterable[tuple[Mapping, pd.DataFrame | None]],
             "coverage": hits / n if n else None}
 
 
+def _plural(n: int, noun: str) -> str:
+    return f"{n} {noun}" + ("" if n == 1 else "s")
+
+
 def track_lines(track: Mapping | None) -> list[str]:
     """Plain-text lines of a track record (for the plan's summary)."""
     plans = list((track or {}).get("plans") or [])
     if not plans:
         return []
-    out = [f"Track record of {len(plans)} earlier plan(s): "
+    out = [f"Track record of {_plural(len(plans), 'earlier plan')}: "
            + (f"{track['n_hit']} of {track['n_compared']} forecasts at budgets measured "
               "since fell inside their interval." if track.get("n_compared")
               else "no budget they forecast has been measured since.")]
     repeated = list((track or {}).get("repeated_plans") or [])
     if repeated:
-        out[0] += (f" ({len(repeated)} more plan(s) made again from the same study state "
-                   "forecast the same numbers and are counted once.)")
+        out[0] += (f" ({_plural(len(repeated), 'more plan')} made again from the same study "
+                   "state forecast the same numbers and are counted once.)")
     for p in plans:
         mine = [r for r in p["rows"] if r["plan_choice"]] or p["rows"]
         if not mine:
             continue
         r = mine[-1]
         pred = r["predicted"]
-        out.append(f"  {p['plan']}: {r['method']} ({r['strategy']}) at {r['n_labels']} labels "
-                   f"predicted {p['metric']} {pred['mean']:.3f} [{pred['low']:.3f}, "
-                   f"{pred['high']:.3f}], measured {r['measured']['mean']:.3f}: "
+        out.append(f"  {p['plan']}: {r['method']} ({r['strategy']}) at {r['n_labels']:,} "
+                   f"labels predicted {p['metric']} {forecast_value(pred['mean'])} "
+                   f"({forecast_span(pred['low'], pred['high'])}), measured "
+                   f"{r['measured']['mean']:.3f}: "
                    f"{'hit' if r['hit'] else 'MISS'}; all its curves: {p['n_hit']} of "
                    f"{p['n_compared']} hits.")
     return out

@@ -18,8 +18,10 @@ import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
+from matplotlib.text import Text
 from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, NullLocator
 
+from ..plan import FORECAST_CEILING, METRIC_WORDS
 from ..study._folder import truthy
 
 __all__ = [
@@ -30,15 +32,11 @@ __all__ = [
     "Rendered",
     "build_curve_figure",
     "curve_figure",
+    "curve_panels",
     "interval_name",
 ]
 
-METRIC_LABELS = {
-    "accuracy": "accuracy",
-    "balanced_accuracy": "balanced accuracy",
-    "macro_f1": "macro-F1",
-    "log_loss": "log loss",
-}
+METRIC_LABELS = METRIC_WORDS
 
 #: Panel titles per method family (``MethodSpec.family``), in panel order.
 FAMILY_TITLES = {
@@ -58,12 +56,22 @@ _INK = "#1d2329"
 _TARGET = "#6b1f1f"
 
 
+#: Resolution of the PNG figures (pixels per inch): a point of text is DPI / 72 pixels.
+DPI = 110
+#: Smallest text in a figure, in points (8 pt is 12 PNG pixels at :data:`DPI`).
+MIN_TEXT_PT = 8.0
+#: Width of one panel drawn on its own (the phone view), in inches: shown about 366 CSS px
+#: wide on a 390 px screen, 8 pt text stays above 9 CSS px.
+PANEL_WIDTH_IN = 3.6
+
+
 @dataclass(frozen=True)
 class Rendered:
-    """One figure in both formats."""
+    """One figure in both formats, with the size of its smallest text in PNG pixels."""
 
     png: bytes
     svg: bytes
+    text_px: float = MIN_TEXT_PT * DPI / 72
 
 
 @dataclass(frozen=True)
@@ -77,28 +85,36 @@ class BudgetFacts:
 
 def interval_name(level: float | None, kind: str, n_repeats: Sequence[int] = (), *,
                   brief: bool = False) -> str:
-    """``"90% Student-t interval of the mean over 5 repeats"`` and the like; ``brief`` gives
-    the short form for a table header (``"90% Student-t interval"``)."""
+    """``"95% interval of the measured mean over 5 repeats (Student-t)"`` or ``"90% interval
+    of the forecast (bootstrap)"``; ``brief`` gives the short form for a table header
+    (``"90% interval"``)."""
     lvl = f"{level:.0%} " if level else ""
     if brief:
-        return f"{lvl}{'Student-t' if kind == 'repeat' else 'bootstrap'} interval"
+        return f"{lvl}interval"
     if kind == "repeat":
         reps = sorted({int(n) for n in n_repeats if n and n > 0})
         over = ("" if not reps else f" over {reps[0]} repeats" if len(reps) == 1
-                else f" over {reps[0]}-{reps[-1]} repeats")
-        return f"{lvl}Student-t interval of the mean{over}"
-    return f"{lvl}bootstrap interval of the fitted curve"
+                else f" over {reps[0]}\u2013{reps[-1]} repeats")
+        return f"{lvl}interval of the measured mean{over} (Student-t)"
+    return f"{lvl}interval of the forecast (bootstrap)"
+
+
+def smallest_text_pt(fig: Figure) -> float:
+    """The font size (points) of the smallest visible text of ``fig``."""
+    sizes = [t.get_fontsize() for t in fig.findobj(Text)
+             if t.get_visible() and t.get_text().strip()]
+    return float(min(sizes)) if sizes else MIN_TEXT_PT
 
 
 def _render(fig: Figure) -> Rendered:
     FigureCanvasAgg(fig)
     png = io.BytesIO()
-    fig.savefig(png, format="png", dpi=110, bbox_inches="tight", metadata={"Software": None})
+    fig.savefig(png, format="png", dpi=DPI, bbox_inches="tight", metadata={"Software": None})
     FigureCanvasSVG(fig)
     svg = io.BytesIO()
     fig.savefig(svg, format="svg", bbox_inches="tight",
                 metadata={"Creator": None, "Date": None, "Format": None, "Type": None})
-    return Rendered(png.getvalue(), svg.getvalue())
+    return Rendered(png.getvalue(), svg.getvalue(), smallest_text_pt(fig) * DPI / 72)
 
 
 def _families(methods: Sequence[str], families: Mapping[str, str]) -> dict[str, list[str]]:
@@ -121,17 +137,22 @@ def _clip(values: pd.Series, lo: float, hi: float) -> np.ndarray:
 
 def _panel(ax, data: pd.DataFrame, methods: list[str], *, ylim: tuple[float, float]) -> None:
     lo, hi = ylim
+    top = min(hi, FORECAST_CEILING)
     for i, method in enumerate(methods):
         grp = data[data["method"].astype(str) == method]
         style = {"color": PALETTE[i % len(PALETTE)], "marker": _MARKERS[i % len(_MARKERS)]}
         dash = _DASHES[i % len(_DASHES)]
         fitted = grp[~grp["measured"]].sort_values("n_labels")
         if not fitted.empty:
-            ax.fill_between(fitted["n_labels"], _clip(fitted["low"], lo, hi),
-                            _clip(fitted["high"], lo, hi), color=style["color"], alpha=0.12,
+            # Forecasts above the ceiling are not drawn: the line ends there and the band is
+            # cut at it (the text says "at least 0.99" for them).
+            mean = fitted["mean"].astype(float).to_numpy()
+            ax.fill_between(fitted["n_labels"], _clip(fitted["low"], lo, top),
+                            _clip(fitted["high"], lo, top), color=style["color"], alpha=0.12,
                             linewidth=0)
-            ax.plot(fitted["n_labels"], _clip(fitted["mean"], lo, hi), color=style["color"],
-                    linestyle=dash, linewidth=1.6)
+            ax.plot(fitted["n_labels"], np.where(mean > FORECAST_CEILING, np.nan,
+                                                 np.clip(mean, lo, hi)),
+                    color=style["color"], linestyle=dash, linewidth=1.6)
         meas = grp[grp["measured"]].sort_values("n_labels")
         if not meas.empty:
             mean = meas["mean"].astype(float).to_numpy()
@@ -162,37 +183,71 @@ def _ylim(data: pd.DataFrame, target: float | None) -> tuple[float, float]:
     return max(0.0, lo - pad), min(1.0, hi + pad) + 0.005
 
 
-def _budget_axis(ax, data: pd.DataFrame, facts: BudgetFacts, *, top: bool) -> None:
+def tick_budgets(measured: Sequence[int], right_end: int | None, *,
+                 min_gap: float) -> tuple[list[int], list[int]]:
+    """Tick positions (every measured budget and the right end) and the ones that get a
+    label: the right end, the largest measured budget, then from the largest down every
+    budget at least ``min_gap`` (a share of the axis in log scale) from the labelled ones,
+    so no two labels overlap and none is dropped for a mere count."""
+    ticks = sorted({int(v) for v in measured} | ({int(right_end)} if right_end else set()))
+    if not ticks:
+        return [], []
+    span_log = max(np.log(ticks[-1] / ticks[0]), 1e-9)
+    first = [ticks[-1]] + ([max(int(v) for v in measured)] if len(measured) else [])
+    labelled: list[int] = []
+    for v in [*first, *reversed(ticks)]:
+        if v in labelled:
+            continue
+        if all(abs(np.log(v / u)) / span_log >= min_gap for u in labelled):
+            labelled.append(v)
+    return ticks, sorted(labelled)
+
+
+def _budget_axis(ax, data: pd.DataFrame, facts: BudgetFacts, *, top: bool,
+                 min_gap: float) -> None:
     ax.set_xscale("log")
     n_meas = data.loc[data["measured"], "n_labels"]
-    ticks = sorted({int(v) for v in n_meas})
-    if data["extrapolated"].any():
-        ticks.append(int(data["n_labels"].max()))
-    ticks = sorted(set(ticks))
-    if len(ticks) > 7:  # thin out, keeping the ends
-        keep = np.unique(np.round(np.linspace(0, len(ticks) - 1, 7)).astype(int))
-        ticks = [ticks[i] for i in keep]
+    right = int(data["n_labels"].max()) if data["extrapolated"].any() else None
+    ticks, labelled = tick_budgets(list(n_meas), right, min_gap=min_gap)
     if ticks:
         ax.xaxis.set_major_locator(FixedLocator(ticks))
-    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:,.0f}"))
+    shown = set(labelled)
+    ax.xaxis.set_major_formatter(FuncFormatter(
+        lambda v, _: f"{v:,.0f}" if int(round(v)) in shown else ""))
     ax.xaxis.set_minor_formatter(NullFormatter())
-    ax.tick_params(axis="x", labelsize=8, labelbottom=True)
+    ax.tick_params(axis="x", labelsize=MIN_TEXT_PT, labelbottom=True)
     if facts.n_holdout and top and ticks:
-        # The same positions, counted with the labels kept for evaluation.
+        # A fixed holdout only: the same positions, counted with the labels kept for
+        # evaluation (under cross-fitting no label is kept aside, so there is no such axis).
         sec = ax.secondary_xaxis("top")
         sec.xaxis.set_major_locator(FixedLocator(ticks))
         sec.xaxis.set_minor_locator(NullLocator())
-        sec.xaxis.set_major_formatter(
-            FuncFormatter(lambda v, _: f"{v + facts.n_holdout:,.0f}"))
-        sec.tick_params(labelsize=7, colors="#5b6570")
-        sec.set_xlabel(f"all labels: training + {facts.n_holdout:,} kept for evaluation",
-                       fontsize=7.5, color="#5b6570")
+        sec.xaxis.set_major_formatter(FuncFormatter(
+            lambda v, _: f"{v + facts.n_holdout:,.0f}" if int(round(v)) in shown else ""))
+        sec.tick_params(labelsize=MIN_TEXT_PT, colors="#5b6570")
+        sec.set_xlabel(f"all labels: training + {facts.n_holdout:,} of the fixed holdout",
+                       fontsize=MIN_TEXT_PT, color="#5b6570")
     ax.grid(True, which="major", alpha=0.25)
 
 
 def curve_figure(curves: pd.DataFrame, metric: str, **options) -> Rendered:
     """:func:`build_curve_figure` rendered as PNG and SVG (same keyword options)."""
     return _render(build_curve_figure(curves, metric, **options))
+
+
+def curve_panels(curves: pd.DataFrame, metric: str, **options) -> list[Rendered]:
+    """The same panels as :func:`curve_figure`, one narrow figure each (for phone screens)."""
+    data = curves[curves["metric"].astype(str) == metric]
+    keys = _panel_keys(data, options.get("families"))
+    return [_render(build_curve_figure(curves, metric, only=key, **options)) for key in keys]
+
+
+def _panel_keys(data: pd.DataFrame, families: Mapping[str, str] | None) -> list[tuple]:
+    strategies = sorted(data["strategy"].astype(str).unique(),
+                        key=lambda x: (x != "random", x)) or [""]
+    groups = _families(data["method"].astype(str).unique().tolist(), families or {}) \
+        or {"other": []}
+    return [(f, st) for f in groups for st in strategies]
 
 
 def build_curve_figure(
@@ -206,17 +261,20 @@ def build_curve_figure(
     measured_interval: str = "",
     fitted_interval: str = "",
     chosen_reached: bool = True,
+    only: tuple[str, str] | None = None,
 ) -> Figure:
     """Learning curves of one metric as small multiples: one panel per method family (and
     one row per selection strategy). Points are measured means with their interval; lines
     are the fitted curves with their band (a grey area where extrapolated); the
-    target is a horizontal line, the plan's choice a star with the labels to buy.
+    target is a horizontal line, the plan's choice a star (its labels, purchase and cost in
+    the panel's legend, below the panel, so nothing covers the data).
 
     ``curves`` has the columns of curves.csv (method, strategy, metric, n_labels, mean, low,
     high, measured; optionally extrapolated). ``families`` maps method names to their
     family; ``measured_interval`` / ``fitted_interval`` name the intervals in the legend.
     ``chosen_reached=False`` marks ``chosen`` as the best option that misses the target's
-    confidence (an open star) instead of the plan's choice.
+    confidence (an open star) instead of the plan's choice. ``only`` = (family, strategy)
+    draws that one panel alone, :data:`PANEL_WIDTH_IN` wide (the phone view).
     """
     facts = facts or BudgetFacts()
     data = curves[curves["metric"].astype(str) == metric].copy()
@@ -231,9 +289,14 @@ def build_curve_figure(
     # Panels: one per (family, strategy); strategies side by side, families down the page
     # (with one strategy, families wrap into two columns).
     panels = [(f, st) for f in groups for st in strategies]
-    ncols = len(strategies) if len(strategies) > 1 else min(2, len(groups))
-    nrows = -(-len(panels) // ncols)
-    fig = Figure(figsize=(0.8 + 4.7 * ncols, 1.2 + 3.1 * nrows), layout="constrained")
+    if only is not None:
+        panels = [only]
+        ncols, nrows = 1, 1
+        fig = Figure(figsize=(PANEL_WIDTH_IN, 4.3), layout="constrained")
+    else:
+        ncols = len(strategies) if len(strategies) > 1 else min(2, len(groups))
+        nrows = -(-len(panels) // ncols)
+        fig = Figure(figsize=(0.8 + 4.7 * ncols, 1.4 + 3.6 * nrows), layout="constrained")
     axes = fig.subplots(nrows, ncols, sharey=True, sharex=True, squeeze=False).ravel()
     for ax in axes[len(panels):]:
         ax.set_axis_off()
@@ -241,46 +304,50 @@ def build_curve_figure(
     ok_choice = chosen if chosen and chosen.get("n_labels") and (
         chosen.get("predicted") or {}).get("mean") is not None else None
     label = METRIC_LABELS.get(metric, metric)
+    min_gap = 0.1 if only is not None else 0.06
     for i, ((family, strategy), ax) in enumerate(zip(panels, axes, strict=False)):
-        methods = groups[family]
+        methods = groups.get(family, [])
         rows = data[data["strategy"] == strategy]
         _panel(ax, rows, methods, ylim=ylim)
         ax.set_ylim(*ylim)
-        _budget_axis(ax, data, facts, top=i < ncols)
+        _budget_axis(ax, data, facts, top=i < ncols, min_gap=min_gap)
         title = FAMILY_TITLES[family]
+        if only is not None:
+            title = title.replace(" (", "\n(")
         if len(strategies) > 1:
             title += f"\n{strategy} selection"
         ax.set_title(title, fontsize=9, loc="left")
         if target is not None:
             ax.axhline(target, color=_TARGET, linestyle=(0, (4, 2)), linewidth=1.1)
             ax.text(0.01, target, f" target {target:g}", transform=ax.get_yaxis_transform(),
-                    fontsize=7.5, color=_TARGET, va="bottom")
+                    fontsize=MIN_TEXT_PT, color=_TARGET, va="bottom")
         _extrapolated_area(ax, rows)
         if facts.labels_owned:
             ax.axvline(facts.labels_owned, color="#5b6570", linestyle=(0, (1, 2)),
                        linewidth=1.0)
-            ax.text(facts.labels_owned, 0.99, f" owned {facts.labels_owned:,}",
-                    transform=ax.get_xaxis_transform(), fontsize=7, color="#3d454d",
-                    va="top", ha="left")
         if ok_choice is not None and str(ok_choice.get("method")) in methods and str(
                 ok_choice.get("strategy")) == strategy:
             _mark_choice(ax, ok_choice, facts, reached=chosen_reached)
         handles, names = ax.get_legend_handles_labels()
         if handles:
-            ax.legend(handles, names, fontsize=7.5, loc="lower right", frameon=True,
-                      framealpha=0.85, borderpad=0.3, handlelength=2.6)
+            ax.legend(handles, names, fontsize=MIN_TEXT_PT, loc="upper center",
+                      bbox_to_anchor=(0.5, -0.13 if only is None else -0.16),
+                      ncols=1 if only is not None else 2, frameon=False, borderpad=0.2,
+                      handlelength=2.6)
         if i % ncols == 0:
             ax.set_ylabel(f"{label} on the evaluation rows", fontsize=9)
-        ax.tick_params(axis="y", labelsize=8)
-    fig.supxlabel("training labels (log scale)" + (
-        f"; dotted vertical line: the {facts.labels_owned:,} labels owned"
-        if facts.labels_owned else ""), fontsize=9)
-    notes = []
-    if measured_interval:
-        notes.append(f"points: measured mean; bars: {measured_interval}")
-    if fitted_interval and (~data["measured"]).any():
-        notes.append(f"lines: fitted curve; bands: {fitted_interval}; grey area: extrapolated")
-    fig.suptitle("\n".join([f"Learning curves: {label}", *notes]), fontsize=9.5)
+        ax.tick_params(axis="y", labelsize=MIN_TEXT_PT)
+    owned = (f"; dotted line: the {facts.labels_owned:,} labels owned"
+             if facts.labels_owned else "")
+    fig.supxlabel("training labels (log scale)" + owned, fontsize=9)
+    if only is None:
+        notes = []
+        if measured_interval:
+            notes.append(f"points: measured mean; bars: {measured_interval}")
+        if fitted_interval and (~data["measured"]).any():
+            notes.append(f"lines: forecast; bands: {fitted_interval}; grey area: "
+                         "extrapolated")
+        fig.suptitle("\n".join([f"Learning curves: {label}", *notes]), fontsize=9.5)
     return fig
 
 
@@ -290,24 +357,24 @@ def _extrapolated_area(ax, rows: pd.DataFrame) -> None:
         return
     start, stop = float(n_meas.max()), float(rows["n_labels"].max())
     ax.axvspan(start, stop, color="#8a9099", alpha=0.12, linewidth=0)
-    ax.text(stop, 0.91, "extrapolated ", transform=ax.get_xaxis_transform(), fontsize=7,
-            color="#3d454d", va="top", ha="right")
+    # at the foot of the grey area, away from the target line and the curves' tops
+    ax.text(stop, 0.02, "extrapolated ", transform=ax.get_xaxis_transform(),
+            fontsize=MIN_TEXT_PT, color="#3d454d", va="bottom", ha="right")
 
 
 def _mark_choice(ax, chosen: Mapping, facts: BudgetFacts, *, reached: bool = True) -> None:
+    """The star; what it stands for (labels, purchase, cost) goes in the legend."""
     pred = chosen.get("predicted") or {}
     n, mean = float(chosen["n_labels"]), float(pred["mean"])
-    ax.plot([n], [mean], marker="*", markersize=15, linestyle="none", zorder=6,
-            color="#111111" if reached else "white", markeredgecolor="#111111" if not reached
-            else "white", markeredgewidth=0.8 if reached else 1.2,
-            label="the plan's choice" if reached else "best option (too unsure)", clip_on=False)
-    n_new = chosen.get("n_new")
     text = f"{int(n):,} labels"
+    n_new = chosen.get("n_new")
     if n_new:
-        text += f"\n(buy {int(n_new):,})"
+        text += f", buy {int(n_new):,}"
     cost = chosen.get("cost")
     if cost is not None:
-        text += f"\ncost {_money(float(cost), facts.currency)}"
-    ax.annotate(text, (n, mean), xytext=(-8, -10), textcoords="offset points", ha="right",
-                va="top", fontsize=7.5, color="#111111",
-                bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": "#999999", "lw": 0.5})
+        text += f", cost {_money(float(cost), facts.currency)}"
+    name = "the plan's choice" if reached else "best option (too unsure)"
+    ax.plot([n], [min(mean, FORECAST_CEILING)], marker="*", markersize=15, linestyle="none",
+            zorder=6, color="#111111" if reached else "white",
+            markeredgecolor="#111111" if not reached else "white",
+            markeredgewidth=0.8 if reached else 1.2, label=f"{name}: {text}", clip_on=False)

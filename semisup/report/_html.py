@@ -37,15 +37,20 @@ th{background:#f1f3f5}td.num{text-align:right;font-variant-numeric:tabular-nums}
 tr.hl td{background:#fff7dc;font-weight:600}
 ul.warn li{color:#8a4b00}ul.caution li{color:#6b1f1f}
 figure{margin:12px 0 20px}figure img{max-width:100%;height:auto;border:1px solid #e3e6ea}
+figure .narrow{display:none}figure .narrow img{display:block;margin:0 0 8px}
+details{margin:4px 0 14px}summary{cursor:pointer;color:#1b6ca8}
+th{overflow-wrap:normal;word-break:normal;hyphens:manual}
 figcaption{font-size:.88em;color:#5b6570}
 code{background:#f1f3f5;padding:1px 4px;border-radius:3px}
 nav ul{list-style:none;padding:0;margin:0;display:flex;flex-wrap:wrap;gap:4px 14px}
 nav a{color:#1b6ca8}
-@media (max-width:600px){main{padding:14px 12px 32px}h1{font-size:1.3em}}
+@media (max-width:600px){main{padding:14px 12px 32px}h1{font-size:1.3em}
+ figure img.wide{display:none}figure .narrow{display:block}
+ td:first-child{min-width:0}th,td{padding:3px 5px}}
 """
 
 #: Text of a cell that reads as a number (right-aligned): 1,234 / 0.812 / 80% / -0.013.
-_NUMERIC = re.compile(r"[<>+\-−]?\d[\d,]*(\.\d+)?%?")
+_NUMERIC = re.compile(r"[<>+\-−]?\d[\d,]*(\.\d+)?[%+]?")
 
 
 def esc(value: object) -> str:
@@ -64,7 +69,8 @@ def fmt(value: object, digits: int = 3) -> str:
             return "\u2013"
         if value == int(value) and abs(value) >= 1000:
             return f"{int(value):,}"
-        return f"{value:.{digits}f}"
+        text = f"{value:.{digits}f}"
+        return text[1:] if text.startswith("-") and float(text) == 0 else text  # no "-0.000"
     return str(value)
 
 
@@ -76,13 +82,22 @@ class Table:
     caption: str = ""
     #: format spec per column index, e.g. {3: ",.2f"}; other numbers use :func:`fmt`
     formats: dict[int, str] = field(default_factory=dict)
+    #: the decisive columns (put first by the caller): marked class "key" so a check can
+    #: find them; they must be visible on a phone without scrolling
+    key_columns: set[int] = field(default_factory=set)
 
 
 @dataclass
 class Picture:
+    """A figure: the whole image for wide screens and, optionally, one image per panel
+    shown instead on narrow screens (CSS only). ``text_px`` is the size of the smallest
+    text in PNG pixels (``data-text-px``, so a check can compute its size as shown)."""
+
     png: bytes
     caption: str
     alt: str
+    panels: Sequence[tuple[bytes, float]] = ()
+    text_px: float | None = None
 
 
 @dataclass
@@ -113,6 +128,11 @@ class Section:
         self.blocks.append(("h3", text))
         return self
 
+    def details(self, summary: str, table: Table) -> Section:
+        """A table folded away under a one-line summary (HTML ``<details>``, no script)."""
+        self.blocks.append(("details", (summary, table)))
+        return self
+
     def decision(self, lines: Sequence[str], reached: bool) -> Section:
         self.blocks.append(("decision", (list(lines), reached)))
         return self
@@ -131,7 +151,10 @@ def _table_html(t: Table) -> str:
            "<table>"]
     if t.caption:
         out.append(f"<caption class=\"note\">{esc(t.caption)}</caption>")
-    out.append("<thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in t.headers)
+    def key(j: int) -> str:
+        return " class=\"key\"" if j in t.key_columns else ""
+    out.append("<thead><tr>" + "".join(f"<th{key(j)}>{esc(h)}</th>"
+                                       for j, h in enumerate(t.headers))
                + "</tr></thead><tbody>")
     for i, row in enumerate(t.rows):
         cls = " class=\"hl\"" if i in t.highlight else ""
@@ -143,8 +166,10 @@ def _table_html(t: Table) -> str:
             else:
                 text = fmt(v)
             num = num or (isinstance(v, str) and _NUMERIC.fullmatch(v.strip()) is not None)
-            cells.append(f"<td class=\"num\">{esc(text)}</td>" if num
-                         else f"<td>{esc(text)}</td>")
+            classes = " ".join(c for c in ("num" if num else "",
+                                           "key" if j in t.key_columns else "") if c)
+            attr = f" class=\"{classes}\"" if classes else ""
+            cells.append(f"<td{attr}>{esc(text)}</td>")
         out.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
     out.append("</tbody></table></div>")
     return "".join(out)
@@ -164,14 +189,34 @@ def _block_html(kind: str, payload: object) -> str:
         return _table_html(payload)  # type: ignore[arg-type]
     if kind == "figure":
         fig: Picture = payload  # type: ignore[assignment]
-        data = base64.b64encode(fig.png).decode("ascii")
-        return (f"<figure><img src=\"data:image/png;base64,{data}\" alt=\"{esc(fig.alt)}\">"
-                f"<figcaption>{esc(fig.caption)}</figcaption></figure>")
+        return _figure_html(fig)
+    if kind == "details":
+        summary, table = payload  # type: ignore[misc]
+        return f"<details><summary>{esc(summary)}</summary>{_table_html(table)}</details>"
     if kind == "decision":
         lines, reached = payload  # type: ignore[misc]
         cls = "decision" if reached else "decision none"
         return f"<div class=\"{cls}\">" + "".join(f"<p>{esc(x)}</p>" for x in lines) + "</div>"
     raise ValueError(f"unknown block kind {kind!r}")
+
+
+def _img(png: bytes, alt: str, cls: str, text_px: float | None) -> str:
+    data = base64.b64encode(png).decode("ascii")
+    size = f" data-text-px=\"{text_px:.2f}\"" if text_px else ""
+    return (f"<img class=\"{cls}\" src=\"data:image/png;base64,{data}\" alt=\"{esc(alt)}\""
+            f"{size}>")
+
+
+def _figure_html(fig: Picture) -> str:
+    """The whole figure; with panels, one image per panel for narrow screens beside it."""
+    if not fig.panels:
+        return (f"<figure>{_img(fig.png, fig.alt, 'whole', fig.text_px)}"
+                f"<figcaption>{esc(fig.caption)}</figcaption></figure>")
+    narrow = "".join(_img(png, f"{fig.alt}, panel {i + 1} of {len(fig.panels)}", "panel", px)
+                     for i, (png, px) in enumerate(fig.panels))
+    return (f"<figure>{_img(fig.png, fig.alt, 'wide', fig.text_px)}"
+            f"<div class=\"narrow\">{narrow}</div>"
+            f"<figcaption>{esc(fig.caption)}</figcaption></figure>")
 
 
 def render_html(content: ReportContent) -> str:

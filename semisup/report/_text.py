@@ -10,6 +10,8 @@ import math
 import re
 from collections.abc import Mapping, Sequence
 
+from ..plan._decision import DASH, money, percent
+from ..plan._decision import as_number as _number
 from ._html import Table
 
 __all__ = [
@@ -26,18 +28,6 @@ __all__ = [
     "warning_text",
 ]
 
-DASH = "\u2013"
-
-
-def _number(v: object) -> float | None:
-    if isinstance(v, bool) or v is None:
-        return None
-    try:
-        x = float(v)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        return None
-    return None if math.isnan(x) else x
-
 
 def num(v: object, digits: int = 3) -> str:
     """A metric or other real number with ``digits`` decimals; missing as an en dash."""
@@ -51,31 +41,12 @@ def count(v: object) -> str:
     return DASH if x is None else f"{round(x):,}"
 
 
-def percent(v: object, digits: int = 0) -> str:
-    """A probability or share as a percentage (0.8 -> "80%")."""
-    x = _number(v)
-    if x is None:
-        return DASH
-    text = f"{x:.{digits}%}"
-    if digits == 0 and 0 < x < 0.005:
-        text = "<1%"
-    return text
-
-
-def money(v: object, currency: str = "") -> str:
-    """A price with two decimals, after the currency when one is named."""
-    x = _number(v)
-    if x is None:
-        return DASH
-    text = f"{x:,.2f}"
-    return f"{currency} {text}" if currency else text
-
-
 def span(low: object, high: object, digits: int = 3) -> str:
-    """An interval as "low - high" (en dash)."""
+    """A measured interval as "0.947\u20130.994" (an en dash, the notation of every interval
+    in the report and the plan's text)."""
     if _number(low) is None and _number(high) is None:
         return DASH
-    return f"{num(low, digits)} {DASH} {num(high, digits)}"
+    return f"{num(low, digits)}{DASH}{num(high, digits)}"
 
 
 def _bytes(v: object) -> str:
@@ -103,7 +74,7 @@ def _plain(v: object, depth: int = 0) -> str:
     if isinstance(v, bool):
         return "yes" if v else "no"
     if isinstance(v, int):
-        return f"{v:,}" if abs(v) >= 10_000 else str(v)
+        return f"{v:,}"
     if isinstance(v, float):
         return DASH if math.isnan(v) else f"{v:.4g}"
     if isinstance(v, str):
@@ -157,7 +128,9 @@ def pairs(d: Mapping, limit: int = 30, prefix: str = "", depth: int = 0) -> list
             rows.append(["\u2026", "more in the JSON file"])
             break
         name = f"{prefix}{_label(key)}"
-        if isinstance(value, Mapping) and value and depth < 2:
+        if isinstance(value, int) and not isinstance(value, bool) and "seed" in str(key):
+            rows.append([name, str(value)])  # a seed is a name, not a quantity
+        elif isinstance(value, Mapping) and value and depth < 2:
             rows.extend(pairs(value, limit - len(rows), f"{name} \u203a ", depth + 1))
         else:
             rows.append([name, short(value, 300)])
@@ -174,7 +147,7 @@ _CARD = {
     "n_encoded_features": ("model inputs after encoding", count),
     "label_column": ("label column", str),
     "id_column": ("id column", lambda v: DASH if v is None else str(v)),
-    "n_labeled": ("labeled rows", count),
+    "n_labeled": ("labeled rows in the table", count),
     "labeled_fraction": ("labeled share of the rows", lambda v: percent(v, 1)),
     "imbalance_ratio": ("largest / smallest labeled class",
                         lambda v: f"{num(v, 2)} times"),

@@ -23,11 +23,16 @@ from .. import __version__
 from .._atomic import atomic_write_bytes, atomic_write_text
 from .._errors import ConfigError, PlanError, StoreError
 from ..plan import (
+    FORECAST_CEILING,
     METRICS,
     PlanStatus,
     current_state,
     data_warnings,
+    decision_lines,
+    forecast_span,
+    forecast_value,
     list_plans,
+    owned_option,
     read_forecast,
     read_json,
     read_measured,
@@ -36,7 +41,7 @@ from ..plan import (
 )
 from ..study._folder import StudyRecord
 from ..study._runner import summary_budget
-from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, interval_name
+from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, curve_panels, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
 from ._text import (
     card_rows,
@@ -65,7 +70,6 @@ CAUTIONS = (
     "the rules that apply where the model is used; this report does not replace that review.",
 )
 _MAX_LABEL_ROWS = 50
-_MAX_OPTIONS = 40
 _REASONS = (
     "Reasons: 'random draw' - picked at random; 'cluster C, rank R' - representative "
     "selection, the (R+1)-th row nearest the centre of k-means cluster C in the unsupervised "
@@ -187,14 +191,18 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
         s.para(f"No current plan. The latest {status.message('plan')}; it is shown below "
                "under 'Plan and backtest' as a stale plan only.", "warn")
     elif plan:
-        s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
+        s.decision(decision_lines(plan, currency=currency), plan.get("chosen") is not None)
     else:
         s.para("No plan has been made for this study yet. Make one with "
                f"'semisup plan {study_dir} --target accuracy=0.9 --cost-per-label 1' "
                "(your own target and price), then run 'semisup report' again.", "note")
     rows: list[list[object]] = []
+    rounds = int(getattr(facts, "n_round_rows", 0) or 0)
+    n_lab = facts.n_labeled
+    in_table = None if n_lab is None else n_lab - rounds
     for label, value in (("rows in the table", facts.n_rows),
-                         ("labeled rows", facts.n_labeled),
+                         ("labeled rows in the table", in_table),
+                         ("labeled rows returned by labeling rounds", rounds or None),
                          ("unlabeled rows", facts.n_unlabeled),
                          (_eval_rows_label(facts), facts.n_holdout)):
         if value is not None:
@@ -204,7 +212,7 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
         rows.append(["classes", ", ".join(str(c) for c in classes)])
     if cells is not None:
         rows.append(["methods", ", ".join(sorted(cells["method"].astype(str).unique()))])
-        rows.append(["training-label budgets", ", ".join(
+        rows.append(["training-label budgets measured", ", ".join(
             count(n) for n in sorted(cells["n_labels"].unique()))])
         rows.append(["selection strategies",
                      ", ".join(sorted(cells["strategy"].astype(str).unique()))])
@@ -212,64 +220,27 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
         rows.append(["cells (method x budget x repeat x strategy)",
                      ", ".join(f"{k}: {count(v)}" for k, v in status.items())])
     s.table(Table(["fact", "value"], rows))
-    if curves is not None and not curves.empty:
-        metric, why = recommended_metric(plan, card)
-        part = curves[curves["measured"] & (curves["metric"] == metric)]
-        budget, where = _summary_budget(study, curves)
-        if budget is not None and not part.empty:
-            at = part[part["n_labels"].astype(int) == budget].sort_values(
-                "mean", ascending=False)
-            level = _measured_level(curves, plan)
-            kind = interval_name(level, "repeat", _repeats(curves))
-            label = METRIC_LABELS.get(metric, metric)
-            s.heading(f"{label[:1].upper() + label[1:]} at {count(budget)} training labels")
-            s.para(f"Shown: {label} ({why}), at {count(budget)} labels ({where}). "
-                   f"Interval: {kind}.", "note")
-            s.table(Table(["method", "strategy", f"mean {label}",
-                           interval_name(level, "repeat", brief=True)],
-                          [[r.method, r.strategy, num(r.mean), span(r.low, r.high)]
-                           for r in at.itertuples(index=False)]))
     return s
 
 
-def _describe(o: Mapping, metric: str, currency: str, kind: str) -> str:
-    p = o.get("predicted") or {}
-    extra = " (extrapolated)" if o.get("extrapolated") else ""
-    return (f"{o.get('method')} with {o.get('strategy')} selection at "
-            f"{count(o.get('n_labels'))} training labels: predicted {metric} {num(p.get('mean'))}"
-            f" ({kind} {span(p.get('low'), p.get('high'))}){extra}, probability of meeting "
-            f"the target {percent(o.get('probability'))}, cost {money(o.get('cost'), currency)}")
-
-
-def _decision_lines(plan: Mapping, currency: str = "") -> list[str]:
-    target = plan.get("target") or {}
-    metric = METRIC_LABELS.get(str(target.get("metric")), str(target.get("metric", "metric")))
-    kind = interval_name(plan.get("interval"), "bootstrap")
-    price = plan.get("cost_per_label")
-    head = (f"Target: {metric} of at least {num(target.get('value'))} with probability at "
-            f"least {percent(plan.get('confidence'))}; price {money(price, currency)} per label"
-            + (f", {money(plan.get('cost_per_round'), currency)} per labeling round"
-               if plan.get("cost_per_round") else "") + ".")
-    owned = plan.get("labels_owned")
-    labels = plan.get("labels") or {}
-    if labels.get("text"):
-        head += f" Labels: {labels['text']}"
-    elif owned is not None:
-        head += f" Training labels owned: {count(owned)}."
-    chosen = plan.get("chosen")
-    if chosen:
-        n_new = chosen.get("n_new")
-        buy = f"buy {count(n_new)} labels and use " if n_new else "no labels to buy; use "
-        lines = [head, f"Decision: {buy}{_describe(chosen, metric, currency, kind)}."]
-        runner = plan.get("runner_up")
-        lines.append(f"Runner-up: {_describe(runner, metric, currency, kind)}." if runner else
-                     "Runner-up: none meets the target with this confidence.")
-    else:
-        best = plan.get("best")
-        tail = f"; the best is {_describe(best, metric, currency, kind)}." if best else "."
-        lines = [f"Decision: do not buy labels; the target is not reachable with these data "
-                 f"and methods{tail}", head]
-    return lines
+def _measured_table(s: Section, study: Mapping, curves, plan, card: Mapping) -> None:
+    """The measured metric of every method at the summary budget (the study's rule)."""
+    metric, why = recommended_metric(plan, card)
+    part = curves[curves["measured"] & (curves["metric"] == metric)]
+    budget, where = _summary_budget(study, curves)
+    if budget is None or part.empty:
+        return
+    at = part[part["n_labels"].astype(int) == budget].sort_values("mean", ascending=False)
+    level = _measured_level(curves, plan)
+    kind = interval_name(level, "repeat", _repeats(curves))
+    label = METRIC_LABELS.get(metric, metric)
+    s.heading(f"Measured {label} at {count(budget)} training labels")
+    s.para(f"Shown: {label} ({why}), at {count(budget)} labels ({where}). "
+           f"Interval: {kind}.", "note")
+    s.table(Table(["method", "strategy", f"mean {label}",
+                   interval_name(level, "repeat", brief=True)],
+                  [[r.method, r.strategy, num(r.mean), span(r.low, r.high)]
+                   for r in at.itertuples(index=False)]))
 
 
 def _card_section(card: Mapping, study: Mapping) -> Section:
@@ -313,7 +284,7 @@ def _card_section(card: Mapping, study: Mapping) -> Section:
     return s
 
 
-def _curves_section(curves, plan, study: Mapping, facts, figures_dir: Path,
+def _curves_section(curves, plan, study: Mapping, facts, card: Mapping, figures_dir: Path,
                     written: list[Path], currency: str) -> Section:
     s = Section("curves", "Learning curves")
     if curves is None or curves.empty:
@@ -326,29 +297,39 @@ def _curves_section(curves, plan, study: Mapping, facts, figures_dir: Path,
     if plan_metric in metrics:
         metrics.remove(plan_metric)
         metrics.insert(0, plan_metric)
+    _measured_table(s, study, curves, plan, card)
     measured_kind = interval_name(_measured_level(curves, plan), "repeat", _repeats(curves))
     fitted_kind = interval_name((plan or {}).get("interval"), "bootstrap")
     fitted = (~curves["measured"]).any()
+    # the upper axis (training + evaluation labels) only where a fixed holdout is set aside
+    holdout = getattr(facts, "protocol", "holdout") == "holdout"
+    s.heading("Figures")
     s.para(f"One panel per method family, on a shared scale. Points: measured mean on the "
            f"evaluation rows; bars: {measured_kind}."
-           + (f" Lines: the fitted learning curve (curve families weighted by their backtests; "
+           + (f" Lines: the forecast, a fitted learning curve (curve families weighted by their "
+              "backtests; "
               f"see 'Evidence behind the forecast'); bands: "
               f"{fitted_kind}; the grey area is extrapolated beyond the largest measured budget."
               if fitted else " No curves are fitted until a plan is made ('semisup plan').")
-           + " The lower axis counts training labels; the upper axis adds the labels kept for "
-           "evaluation. Bars cut by the axes end in an open triangle.", "note")
+           + " The axis counts training labels"
+           + ("; the upper axis adds the labels of the fixed holdout, kept for evaluation"
+              if holdout else "") + ". Bars cut by the axes end in an open triangle. "
+           f"Forecast lines stop at {FORECAST_CEILING:g} and their bands are cut there: a "
+           "few hundred evaluated labels cannot tell higher forecasts apart.", "note")
     families = _families(curves["method"].unique())
-    budget = BudgetFacts(n_holdout=facts.n_holdout,
+    budget = BudgetFacts(n_holdout=facts.n_holdout if holdout else None,
                          labels_owned=(plan or {}).get("labels_owned"), currency=currency)
     reached = bool((plan or {}).get("chosen"))
     mark = (plan or {}).get("chosen") or (plan or {}).get("best")
     figures_dir.mkdir(parents=True, exist_ok=True)
     for m in metrics:
         is_plan = m == plan_metric
-        fig = curve_figure(curves, m, target=target.get("value") if is_plan else None,
-                           chosen=mark if is_plan else None, chosen_reached=reached,
-                           families=families, facts=budget, measured_interval=measured_kind,
-                           fitted_interval=fitted_kind if fitted else "")
+        options = {"target": target.get("value") if is_plan else None,
+                   "chosen": mark if is_plan else None, "chosen_reached": reached,
+                   "families": families, "facts": budget, "measured_interval": measured_kind,
+                   "fitted_interval": fitted_kind if fitted else ""}
+        fig = curve_figure(curves, m, **options)
+        panels = curve_panels(curves, m, **options)
         for ext, payload in (("png", fig.png), ("svg", fig.svg)):
             path = figures_dir / f"curves_{m}.{ext}"
             atomic_write_bytes(path, payload)
@@ -362,7 +343,8 @@ def _curves_section(curves, plan, study: Mapping, facts, figures_dir: Path,
             caption += (f" (the plan's metric; dashed red line: the target "
                         f"{num(target.get('value'))}; {star})")
         caption += f". Also as figures/curves_{m}.svg."
-        s.figure(Picture(fig.png, caption, f"learning curves of {label} by method family"))
+        s.figure(Picture(fig.png, caption, f"learning curves of {label} by method family",
+                         panels=[(p.png, p.text_px) for p in panels], text_px=fig.text_px))
     return s
 
 
@@ -410,45 +392,20 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str,
     if status.stale:
         s.para(f"STALE: {status.message('plan.json')}. What it said, for the record only:",
                "warn")
-        s.bullets(_decision_lines(plan, currency))
+        s.bullets(decision_lines(plan, currency=currency))
         return s
     if plan.get("name"):
         s.para(f"Plan {plan['name']} (made {plan.get('made_at')}, kept in "
                f"plans/{plan['name']}.json) from the study's current state.", "note")
-    s.decision(_decision_lines(plan, currency), plan.get("chosen") is not None)
+    s.decision(decision_lines(plan, currency=currency), plan.get("chosen") is not None)
     kind = interval_name(plan.get("interval"), "bootstrap")
-    s.para(f"Predicted: the fitted curve at that budget, with its {kind}. Probability: "
-           "the share of calibrated bootstrap curves (repeats resampled; the sampling error of "
-           "evaluation rows shared by every repeat added) whose predicted metric meets the "
-           "target. Cost: "
-           "labels still to buy times the expected price per label, plus the price of each "
+    s.para(f"Predicted: the forecast at that budget, with its {kind}; forecasts above "
+           f"{FORECAST_CEILING:g} read 'at least {FORECAST_CEILING:g}'. Chance: the share of "
+           "calibrated bootstrap curves (repeats resampled; the sampling error of "
+           "evaluation rows shared by every repeat added) whose forecast meets the target. "
+           "Cost: labels still to buy times the price per label, plus the price of each "
            "labeling round" + (f", in {currency}" if currency else "") + ".", "note")
-    options = list(plan.get("options") or [])
-    chosen = plan.get("chosen") or {}
-    key = (chosen.get("method"), chosen.get("strategy"), chosen.get("n_labels"))
-    # In plan.json's order (semisup.plan.order_options): what reaches the target, cheapest
-    # first; then what buys labels, most likely first; last the budgets already owned. A plan
-    # file without that order (an older release) records no study state and is shown stale,
-    # above, never here.
-    rows, hl = [], set()
-    for i, o in enumerate(options[:_MAX_OPTIONS]):
-        p = o.get("predicted") or {}
-        if (o.get("method"), o.get("strategy"), o.get("n_labels")) == key:
-            hl.add(i)
-        rows.append([o.get("method"), o.get("strategy"), count(o.get("n_labels")),
-                     num(p.get("mean")), span(p.get("low"), p.get("high")),
-                     percent(o.get("probability")), money(o.get("cost"), currency),
-                     "yes" if o.get("extrapolated") else "no"])
-    if rows:
-        more = len(options) - len(rows)
-        brief = interval_name(plan.get("interval"), "bootstrap", brief=True)
-        s.table(Table(["method", "strategy", "training labels", "predicted", brief,
-                       "probability of meeting the target", "cost", "extrapolated"], rows, hl,
-                      caption="Options: those that reach the target with the confidence asked "
-                              "for, cheapest first, then those that buy labels, most likely "
-                              "first, then budgets already owned (the plan's choice "
-                              "highlighted)"
-                      + (f"; {more} more in plan.json" if more > 0 else "")))
+    _options_tables(s, plan, currency)
     bt = plan.get("backtest") or []
     if bt:
         s.heading("Backtest: refit without the largest budget, predict it")
@@ -458,7 +415,7 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str,
             covered = b.get("covered")
             err = b.get("error")
             brow.append([b.get("method"), b.get("strategy"), count(b.get("n_labels")),
-                         num(p.get("mean")), span(p.get("low"), p.get("high")),
+                         forecast_value(p.get("mean")), forecast_span(p.get("low"), p.get("high")),
                          num(b.get("measured")),
                          f"{float(err):+.3f}" if isinstance(err, (int, float)) else "\u2013",
                          "not possible: " + str(b.get("reason")) if covered is None
@@ -469,6 +426,55 @@ def _plan_section(plan: Mapping | None, study_dir: Path, currency: str,
         s.para("A curve whose interval did not cover its own held-back budget should not be "
                "trusted far beyond the measured range.", "note")
     return s
+
+
+#: Options shown before the fold: the choice, what the owned labels give, then this many more.
+_OPTIONS_SHOWN = 5
+
+
+def _options_tables(s: Section, plan: Mapping, currency: str) -> None:
+    """The options: the choice, what the labels owned give and the next few in the plan's
+    order (semisup.plan.order_options: what reaches the target, cheapest first; then what
+    buys labels, most likely first; last the budgets already owned), the rest folded away.
+    The decisive columns (the chance and the cost) come first, so a phone shows them."""
+    options = [o for o in plan.get("options") or [] if isinstance(o, Mapping)]
+    if not options:
+        return
+    def key(o: Mapping) -> tuple:
+        return (o.get("method"), o.get("strategy"), o.get("n_labels"))
+    chosen, owned = plan.get("chosen"), owned_option(options)
+    top: list[tuple[Mapping, str]] = []
+    for o, why in ((chosen, "the plan's choice"), (plan.get("best") if not chosen else None,
+                                                   "the best (not sure enough)"),
+                   (owned, "with the labels you own")):
+        if o and key(o) not in {key(t) for t, _ in top}:
+            top.append((o, why))
+    seen = {key(o) for o, _ in top}
+    rest = [o for o in options if key(o) not in seen]
+    shown = top + [(o, "") for o in rest[:_OPTIONS_SHOWN]]
+    folded = rest[_OPTIONS_SHOWN:]
+    level = plan.get("interval")
+    heads = ["option", "chance of reaching the target", "cost", "labels to buy",
+             "training labels", "predicted", interval_name(level, "bootstrap", brief=True),
+             "extrapolated"]
+
+    def row(o: Mapping, why: str) -> list[object]:
+        p = o.get("predicted") or {}
+        name = f"{o.get('method')} ({o.get('strategy')})" + (f": {why}" if why else "")
+        return [name, percent(o.get("probability")), money(o.get("cost"), currency),
+                count(o.get("n_new") or 0), count(o.get("n_labels")),
+                forecast_value(p.get("mean")), forecast_span(p.get("low"), p.get("high")),
+                "yes" if o.get("extrapolated") else "no"]
+
+    hl = {i for i, (o, _) in enumerate(shown) if chosen and key(o) == key(chosen)}
+    s.table(Table(heads, [row(o, why) for o, why in shown], hl, key_columns={0, 1, 2},
+                  caption="Options: the plan's choice (highlighted), what the labels you own "
+                          f"give, and the next {_OPTIONS_SHOWN} in the plan's order (sure "
+                          "enough, cheapest first; then most likely first)"))
+    if folded:
+        s.details(f"{len(folded)} more options", Table(
+            heads, [row(o, "") for o in folded], key_columns={0, 1, 2},
+            caption="The other options, in the plan's order (all are in plan.json)"))
 
 
 def _rounds_section(plan: Mapping | None, plans: list[dict], state: Mapping) -> Section:
@@ -508,7 +514,8 @@ def _rounds_section(plan: Mapping | None, plans: list[dict], state: Mapping) -> 
             if r.get("plan_choice"):
                 hl.add(len(rows))
             rows.append([p.get("plan"), r["method"], r["strategy"], count(r["n_labels"]),
-                         num(pred["mean"]), span(pred["low"], pred["high"]), num(got["mean"]),
+                         forecast_value(pred["mean"]), forecast_span(pred["low"], pred["high"]),
+                         num(got["mean"]),
                          f"{float(r['error']):+.3f}", "hit" if r["hit"] else "MISS"])
     level = interval_name(scored[0].get("interval"), "bootstrap", brief=True)
     s.table(Table(["plan", "method", "strategy", "training labels", "predicted", level,
@@ -601,12 +608,25 @@ def _protocol_section(study: Mapping) -> Section:
         s.para("study.json does not describe the protocol.", "note")
     spec = study.get("spec")
     if isinstance(spec, Mapping) and spec:
+        protocol = str(spec.get("evaluation") or "").replace("_", "-")
+        # a setting the chosen evaluation does not use is left out (the holdout share under
+        # cross-fitting, the folds under a holdout)
+        unused = {"cross-fit": {"holdout"}, "holdout": {"folds"},
+                  "test-file": {"holdout", "folds"}}.get(protocol, set())
         s.heading("Study settings")
-        s.table(Table(["setting", "value"], pairs(spec, limit=40)))
+        s.table(Table(["setting", "value"], pairs({k: v for k, v in spec.items()
+                                                   if k not in unused}, limit=40)))
     record = StudyRecord.from_dict(study)
     diag, errors = record.representation, record.representation_errors
     if diag or errors:
         s.heading("Unsupervised stage diagnostics")
+        s.para("How well the unsupervised stage fits the table, on rows it was not trained "
+               "on. ELBO: the VAE's evidence lower bound per row (higher is better). "
+               "Reconstruction: how well the VAE rebuilds each row from its latent code: "
+               "numeric RMSE in standard deviations of the column, and for categorical "
+               "columns the share of cells rebuilt as another category (0 is perfect; "
+               "guessing scores about 1 - 1/levels). Active units: latent dimensions the VAE "
+               "uses. Mixture: the number of Gaussian components BIC selected.", "note")
         if diag:
             s.table(Table(["item", "value"], pairs(diag, limit=60)))
         if isinstance(errors, Mapping) and errors:
@@ -675,7 +695,8 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
     sections = [
         _summary_section(study_dir, study, facts, cells, curves, plan, card, currency, status),
         _card_section(card, study),
-        _curves_section(curves, live, study, facts, study_dir / "figures", figures, currency),
+        _curves_section(curves, live, study, facts, card, study_dir / "figures", figures,
+                        currency),
         _methods_section(cells, curves, live, study, card),
         _plan_section(plan, study_dir, currency, status),
         *([evidence] if evidence is not None else []),
