@@ -217,6 +217,16 @@ class Plan:
 def _forecast_lines(evidence: dict, *, verbose: bool) -> list[str]:
     """How the forecast's intervals were checked: in plain words, or (``verbose``) with the
     calibration's numbers and the winning curve families."""
+    cont = evidence.get("continuation")
+    if cont:
+        lines = [f"Forecast: within the measured budgets, curves fitted to the study's cells; "
+                 f"beyond them, how the curves of {cont['tables']} real tables continued "
+                 "(their level, recent slope and fitted power law weighed as those tables "
+                 "taught), with intervals as wide as those tables' errors."]
+        if verbose:
+            lines.append(f"  Continuation learned from {cont['curves']} curves "
+                         f"({cont.get('source', '')}).")
+        return lines
     cal = evidence.get("calibration") or {}
     if not cal:
         return []

@@ -268,9 +268,9 @@ def forecast_all(
             om = prepare_curve(sub["n_labels"].to_numpy(float), 1.0 - sub[other].to_numpy(float),
                                sub["repeat"].astype(str).to_numpy(), seed=0, backtest=False)
             plan_model = models.get(k)
-            prior = ({f: (v, 1) for f, v in plan_model.mse.items()}
+            fam_prior = ({f: (v, 1) for f, v in plan_model.mse.items()}
                      if plan_model is not None and plan_model.mse else pooled)
-            weigh_curve(om, prior)
+            weigh_curve(om, fam_prior)
             grid, display = _grid(om.levels, [])
             band, _ = forecast_band(om, grid, cal, n_boot=max(n_boot // 2, 1),
                                     seed=derive_seed(seed, "plan", "bootstrap", k[0], k[1],
