@@ -249,8 +249,9 @@ def test_registry_modules_import_one_way():
 
 def test_svm_temperature_calibration_keeps_the_svms_own_classes():
     # Source: scikit-learn's OneVsRestClassifier(SVC) fitted directly (its decision_function
-    # arg-max is the class), cross_val_predict for the out-of-fold scores and sklearn.metrics.log_loss for the loss
-    # the temperature minimises (Guo et al. 2017 temperature scaling), on scikit-learn's
+    # arg-max is the class), cross_val_predict for the out-of-fold scores and
+    # sklearn.metrics.log_loss for the loss the temperature minimises (Guo et al. 2017
+    # temperature scaling), on scikit-learn's
     # bundled digits with 2 labels per class (the few-label, many-class case).
     from scipy.special import softmax
     from sklearn.metrics import log_loss
