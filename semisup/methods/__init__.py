@@ -11,6 +11,7 @@ from ._base import PartiallyLabeledClassifier, labeled_mask
 from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
 from ._density_self_training import DensitySelfTrainingGBT
+from ._keep_raw import KeepRawFeatures, raw_and_latent
 from ._m2 import M2Classifier
 from ._m2_spreading import M2SpreadingBlend
 from ._mixture_em import MixtureEMClassifier
@@ -23,6 +24,7 @@ from ._registry import (
     list_methods,
     register,
 )
+from ._spec import stage_kind
 from ._supervised import LabeledGBT, LabeledKNN, LabeledLogReg, LabeledSVM
 
 __all__ = [
@@ -30,6 +32,7 @@ __all__ = [
     "DensitySelfTrainingGBT",
     "FewLabelCalibratedClassifier",
     "KNNLabelSpreading",
+    "KeepRawFeatures",
     "LabeledGBT",
     "LabeledKNN",
     "LabeledLogReg",
@@ -45,5 +48,7 @@ __all__ = [
     "get_method",
     "labeled_mask",
     "list_methods",
+    "raw_and_latent",
     "register",
+    "stage_kind",
 ]

@@ -194,6 +194,8 @@ register_variants(
     vae=Variant("latent-logreg", "Logistic regression on the VAE latent means (M1)",
                 default=True),
     mixture=Variant("mixture-logreg", "Logistic regression on the Gaussian-mixture features"),
+    vae_raw=Variant("latent-plus-raw-logreg", "Logistic regression on the encoded table with "
+                    "the VAE latent means appended (M1, raw features kept)"),
 )
 register_variants(
     LabeledGBT,
@@ -202,6 +204,8 @@ register_variants(
     # keeps its time.
     raw=Variant("supervised-gbt", "Histogram gradient-boosted trees on the labeled rows of the "
                 "encoded table", default=GBT_DEFAULT_LABELED),
+    vae_raw=Variant("latent-plus-raw-gbt", "Histogram gradient-boosted trees on the encoded "
+                    "table with the VAE latent means appended (M1, raw features kept)"),
 )
 register_variants(
     LabeledKNN,

@@ -301,7 +301,7 @@ def fit_model(
         ``.model`` (save it with ``.model.save(path)``), ``.report``, ``.pseudo_labels`` (the
         table's unlabeled rows: class, probabilities, flag, and ``accepted`` at the cut).
     """
-    from ..methods import get_method
+    from ..methods import KeepRawFeatures, get_method, stage_kind
     from ..study import StudySpec
     from ..study._tuning import fit_method, tune_params
 
@@ -336,10 +336,12 @@ def fit_model(
     stage_note = None
     X_enc = np.asarray(ds.X, dtype=np.float32)
     if m.representation != "raw":
-        representation, stage_note = _unsupervised_stage(m.representation, ds, spec, folder,
-                                                         info, own_y)
+        stage = stage_kind(m.representation)
+        representation, stage_note = _unsupervised_stage(stage, ds, spec, folder, info, own_y)
+        density, density_kind = representation, stage
+        if m.representation != stage:  # "vae+raw": the encoded table, latent means appended
+            representation = KeepRawFeatures(representation).fit(X_enc)
         X = np.asarray(representation.transform(X_enc), dtype=np.float32)
-        density, density_kind = representation, m.representation
     else:
         X = X_enc
         diags = StudyRecord.from_dict(info).representation

@@ -229,7 +229,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     Raises :class:`DataError` / :class:`ConfigError` with one line for data or options the
     study cannot use.
     """
-    from ..methods import get_method
+    from ..methods import get_method, stage_kind
 
     ds = dataset if dataset is not None else _load_dataset(spec)
     data_digest = _data_digest(ds)  # of the table as given: added labels are not in it
@@ -308,7 +308,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
             f"use budgets up to {n_pool}"
         )
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets))
-    kinds = {m.representation for m in methods.values()} - {"raw"}
+    kinds = {stage_kind(m.representation) for m in methods.values()} - {"raw"}
     settings = _settings_fingerprint(resolved, kinds, data_digest, injected_representation,
                                      test)
     grown = {k: resolved.to_dict()[k] for k in GROWING_KEYS}

@@ -23,7 +23,7 @@ import numpy as np
 
 from .._seeding import derive_seed
 
-__all__ = ["fit_representations", "repeat_key", "representation_seed"]
+__all__ = ["fit_representations", "method_features", "repeat_key", "representation_seed"]
 
 log = logging.getLogger(__name__)
 
@@ -38,6 +38,20 @@ def representation_seed(study_seed: int, kind: str, repeat: int = 0) -> int:
 def repeat_key(kind: str, repeat: int) -> str:
     """Key of repeat ``repeat``'s features in the features mapping (repeat 0: ``kind``)."""
     return kind if repeat == 0 else f"{kind}@{repeat}"
+
+
+def method_features(features: dict[str, np.ndarray], representation: str,
+                    repeat: int = 0) -> np.ndarray:
+    """The features a method of ``representation`` is handed in repeat ``repeat`` (its own
+    draw of the stage when there is one, else repeat 0's); ``"vae+raw"`` is the encoded
+    table with that draw's latent means appended."""
+    from ..methods import raw_and_latent, stage_kind
+
+    kind = stage_kind(representation)
+    own = features.get(repeat_key(kind, repeat), features[kind])
+    if representation != kind:
+        return raw_and_latent(features["raw"], own)
+    return own
 
 
 def _fit_one(kind, X_all, fit_rows, blocks, params, seed, cache_dir, representation_fn=None):
