@@ -16,6 +16,7 @@ import pandas as pd
 
 from .._errors import ConfigError
 from .._progress import Progress
+from ..data._shift import shift_warning
 from ..methods import stage_kind
 from ._backends import run_cells
 from ._candidates import refit_candidates
@@ -206,6 +207,11 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         if leak:  # a near-perfect score from a leaking column must not pass without a word
             log.warning("%s", leak)
             info["warnings"].insert(0, leak)
+        shift = card.labeled_vs_pool if card is not None else {
+            "checked": False, "reason": "no data card (dataset given directly)"}
+        info["labeled_vs_pool"] = shift
+        if shift_warning(shift):  # the plan carries study.json's warnings
+            info["warnings"].insert(0, shift_warning(shift))
         info["timing"]["this_run_total_seconds"] = time.perf_counter() - t_start
         write_exports(out, cells, resolved.metrics, info)
     finally:
