@@ -176,18 +176,21 @@ def _means(table: dict) -> dict[int, dict[str, float]]:
     return {b: {m: float(np.mean(v)) for m, v in d.items()} for b, d in out.items()}
 
 
+def _by_budget(tables: list[dict]):
+    """``(budget, [per-table {method: mean accuracy}])`` for every budget, tables measured."""
+    for b in BUDGETS:
+        yield b, [m for t in tables if (m := _means(t).get(b))]
+
+
 def regret_report(tables: list[dict], sets: dict[str, object]) -> list[str]:
     """Per named method set (a list, or a function of the budget giving one) and budget:
     mean / worst regret against the best method measured, share of tables within 0.01."""
     lines = []
     for label, members in sets.items():
         lines.append(f"set {label}:")
-        for b in BUDGETS:
+        for b, per_table in _by_budget(tables):
             regrets = []
-            for t in tables:
-                m = _means(t).get(b)
-                if not m:
-                    continue
+            for m in per_table:
                 names = members(b) if callable(members) else members
                 inside = [m[n] for n in names if n in m]
                 if inside:
@@ -204,12 +207,9 @@ def generative_report(tables: list[dict]) -> list[str]:
     from semisup.methods import get_method
 
     lines = ["best generative-stage method minus best supervised baseline, per budget:"]
-    for b in BUDGETS:
+    for b, per_table in _by_budget(tables):
         diffs = []
-        for t in tables:
-            m = _means(t).get(b)
-            if not m:
-                continue
+        for m in per_table:
             gen = [v for n, v in m.items() if get_method(n).family in GENERATIVE_FAMILIES]
             sup = [v for n, v in m.items() if get_method(n).family == "supervised"]
             if gen and sup:
@@ -224,12 +224,9 @@ def generative_report(tables: list[dict]) -> list[str]:
 
 def wins_report(tables: list[dict]) -> list[str]:
     lines = ["methods best (or within 0.005 of the best) per budget, tables counted:"]
-    for b in BUDGETS:
+    for b, per_table in _by_budget(tables):
         wins: dict[str, int] = {}
-        for t in tables:
-            m = _means(t).get(b)
-            if not m:
-                continue
+        for m in per_table:
             top = max(m.values())
             for n, v in m.items():
                 if v >= top - 0.005:
@@ -254,6 +251,14 @@ def report(tables: list[dict]) -> str:
     lines += regret_report(tables, sets)
     lines += generative_report(tables)
     lines += wins_report(tables)
+    lines.append(f"per table at {MEASURED} labels: best default method (set at 200 labeled rows) "
+                 "/ best checked method / majority-class baseline on the evaluation rows:")
+    for t in tables:
+        m = _means(t).get(MEASURED, {})
+        inside = [m[n] for n in at_200 if n in m]
+        if m and inside:
+            lines.append(f"  {t['table']:<24} {max(inside):.3f} / {max(m.values()):.3f} / "
+                         f"{t['majority_baseline']:.3f}  ({t['n_classes']} classes)")
     secs = [t["seconds"] for t in tables]
     lines.append(f"seconds per table: median {np.median(secs):.0f}, total {np.sum(secs):.0f}")
     return "\n".join(lines)
