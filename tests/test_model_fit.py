@@ -142,6 +142,26 @@ def test_pseudo_labels_are_the_unlabeled_rows_predicted(study, tmp_path):
     assert acc >= row["accuracy_low"] - 0.1
 
 
+def test_latent_plus_raw_logreg_is_logistic_regression_on_raw_and_latent(study, tmp_path):
+    # Reference: scikit-learn's LogisticRegression (tuned C, max_iter=500) on the encoded
+    # labeled rows with the study's VAE latent means appended; the saved model predicts the
+    # same after loading.
+    from sklearn.linear_model import LogisticRegression
+
+    result = fit_model(study, method="latent-plus-raw-logreg")
+    assert result.report["unsupervised_stage"] == "reused from the study's cache"
+    frame, _ = wine_frame()
+    X, rows, codes = _encoded(result.model, frame)
+    latent = result.model.density.transform(X)
+    both = np.concatenate([X, latent], axis=1).astype(np.float64)
+    ref = LogisticRegression(C=result.report["params"]["C"], max_iter=500).fit(both[rows], codes)
+    np.testing.assert_allclose(result.model.predict_proba(frame), ref.predict_proba(both),
+                               rtol=0, atol=1e-6)
+    result.model.save(tmp_path / "m")
+    np.testing.assert_array_equal(load_model(tmp_path / "m").predict_proba(frame),
+                                  result.model.predict_proba(frame))
+
+
 def test_out_of_distribution_flag(study):
     result = fit_model(study, method="supervised-logreg")
     model = result.model
@@ -155,7 +175,7 @@ def test_out_of_distribution_flag(study):
 
 
 def test_supervised_svm_matches_scikit_learn(study):
-    # Reference: scikit-learn's SVC with the wrapper's gamma rule
+    # Reference: scikit-learn's OneVsRestClassifier(SVC) with the wrapper's gamma rule
     # gamma_factor / (n_features * X.var()), fitted on every label; its out-of-fold
     # decision values from scikit-learn's cross_val_predict (stratified folds =
     # min(3, smallest class count)); one temperature minimising their log-loss, searched
@@ -164,6 +184,7 @@ def test_supervised_svm_matches_scikit_learn(study):
     from scipy.optimize import minimize_scalar
     from scipy.special import log_softmax, softmax
     from sklearn.model_selection import StratifiedKFold, cross_val_predict
+    from sklearn.multiclass import OneVsRestClassifier
     from sklearn.svm import SVC
 
     result = fit_model(study, method="supervised-svm")
@@ -173,7 +194,7 @@ def test_supervised_svm_matches_scikit_learn(study):
     X_lab = X[rows].astype(np.float64)
     gamma = p["gamma_factor"] / (X_lab.shape[1] * X_lab.var())
     folds = int(min(3, np.bincount(codes).min()))
-    svc = SVC(C=p["C"], kernel="rbf", gamma=gamma)
+    svc = OneVsRestClassifier(SVC(C=p["C"], kernel="rbf", gamma=gamma))
     held = cross_val_predict(svc, X_lab, codes, cv=StratifiedKFold(folds),
                              method="decision_function")
     idx = np.arange(len(codes))

@@ -1,5 +1,5 @@
 """Evaluation options through the command line: a separate labeled test file, and bad input
-(too few labels for the folds, a test file that does not fit the table) as one line, exit 2."""
+(a test file that does not fit the table) as one line, exit 2."""
 
 from __future__ import annotations
 
@@ -158,10 +158,6 @@ def _bad_test_file(test: pd.DataFrame, case: str) -> pd.DataFrame:
 
 # case -> (extra CLI arguments, substrings the one-line error must contain)
 BAD = {
-    "too few labels for the folds": (
-        ["--folds", "30"], ["table.csv", "class 'versicolor' has 20",
-                            "fewer than the 30 cross-fit folds",
-                            "lower --folds to", "--evaluation holdout"]),
     "missing column": (["--test-file", "bad.csv"],
                        ["bad.csv", "column 'pw' of the table is missing", "same columns"]),
     "extra column": (["--test-file", "bad.csv"],

@@ -8,6 +8,7 @@ from ._dataset import UNLABELED, Dataset, FeatureBlock
 from ._demo import DEMO_ID_COLUMN, DEMO_LABEL_COLUMN, demo_table, write_demo_table
 from ._load import dataset_from_frame, load_dataset
 from ._read import is_text_table, read_kind_overrides, read_table, read_table_chunks
+from ._shift import labeled_pool_shift
 
 
 def __getattr__(name: str):
@@ -32,6 +33,7 @@ __all__ = [
     "demo_table",
     "infer_column_kinds",
     "is_text_table",
+    "labeled_pool_shift",
     "load_dataset",
     "make_card",
     "read_kind_overrides",

@@ -21,6 +21,7 @@ from .._escape import markdown_text
 from .._seeding import derive_rng
 from ._dataset import UNLABELED
 from ._load import _load
+from ._shift import labeled_pool_shift, shift_warning
 
 __all__ = ["DataCard", "USER_FIELDS", "find_leakage", "make_card", "write_card"]
 
@@ -46,6 +47,9 @@ _SCREEN_BLOCK = 256
 #: Largest/smallest labeled class count at or above which the card notes an imbalance
 #: (common practice, no source).
 IMBALANCE_RATIO = 3.0
+#: The study's default number of cross-fit folds (``StudySpec.folds``): a class with fewer
+#: labels is evaluated in fewer repeats, a class of one label never.
+DEFAULT_FOLDS = 5
 
 
 def imbalance_ratio(counts) -> float:
@@ -95,6 +99,13 @@ class DataCard:
     leakage_note: str
     notes: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    #: classifier two-sample test of the labeled rows against the unlabeled ones
+    #: (:func:`semisup.data.labeled_pool_shift`)
+    labeled_vs_pool: dict[str, Any] = field(default_factory=dict)
+    #: ``single_label``: classes with one label (trained on, never evaluated);
+    #: ``fewer_than_folds``: classes with 2 .. DEFAULT_FOLDS - 1 labels (evaluated in as many
+    #: of the default cross-fit repeats as they have labels)
+    rare_classes: dict[str, dict[str, int]] = field(default_factory=dict)
     user_fields: dict[str, str | None] = field(
         default_factory=lambda: dict.fromkeys(USER_FIELDS)
     )
@@ -174,6 +185,20 @@ class DataCard:
         ]
         for label, count in self.class_counts.items():
             lines.append(f"| {m(label)} | {count:,} | {count / max(self.n_labeled, 1):.1%} |")
+        single = (self.rare_classes or {}).get("single_label") or {}
+        few = (self.rare_classes or {}).get("fewer_than_folds") or {}
+        if single or few:
+            lines.append("")
+        if single:
+            lines.append(f"- never evaluated (one label each: trained on in every repeat, but "
+                         f"no metric says anything about them): "
+                         f"{', '.join(m(c) for c in single)}")
+        if few:
+            lines.append(f"- fewer labels than the {DEFAULT_FOLDS} default cross-fit folds "
+                         f"(evaluated only in as many repeats as they have labels): "
+                         f"{', '.join(f'{m(c)} ({n})' for c, n in few.items())}")
+        lines += ["", "## Labeled rows against the unlabeled pool", ""]
+        lines += _shift_lines(self.labeled_vs_pool, m)
         lines += [
             "", "## Duplicates", "",
             f"- rows that repeat an earlier row (all columns except the id): "
@@ -205,6 +230,35 @@ class DataCard:
             lines.append(f"- **{titles[key]}**: {m(value) if value else '_(fill in)_'}")
         lines.append("")
         return "\n".join(lines)
+
+
+def _shift_lines(shift: dict[str, Any], m) -> list[str]:
+    if not shift:
+        return ["Not checked."]
+    if not shift.get("checked"):
+        return [f"Not checked: {m(shift.get('reason', ''))}."]
+    verdict = ("The labeled rows are clearly unlike the pool: estimates measured on them may "
+               "not hold for the rows still to be labeled." if shift["clearly_different"] else
+               "No clear difference: the labeled rows look like a fair sample of the pool "
+               "(the check cannot prove it).")
+    lines = [
+        f"- AUC {shift['auc']:.3f} (95% interval {shift['low']:.3f} to {shift['high']:.3f}; "
+        f"0.5 = alike, 1 = fully separable), {shift['n_labeled']:,} labeled against "
+        f"{shift['n_unlabeled_used']:,} unlabeled rows",
+        f"- {verdict}",
+        f"- how: {m(shift['method'])}",
+    ]
+    if shift.get("columns"):
+        lines += ["", "| column | AUC lost when permuted |", "|---|---:|"]
+        lines += [f"| {m(c['column'])} | {c['auc_drop']:.4f} |" for c in shift["columns"]]
+    return lines
+
+
+def _rare_classes(class_counts: Mapping[str, int]) -> dict[str, dict[str, int]]:
+    return {
+        "single_label": {c: n for c, n in class_counts.items() if n == 1},
+        "fewer_than_folds": {c: n for c, n in class_counts.items() if 2 <= n < DEFAULT_FOLDS},
+    }
 
 
 def _json_default(value: Any) -> Any:
@@ -428,6 +482,17 @@ def make_card(
     pairs = pd.DataFrame({"h": feature_hash[labeled], "y": y[labeled]})
     conflicting = pairs.groupby("h", sort=False)["y"].transform("nunique").to_numpy() > 1
     leakage, leakage_note = find_leakage(loaded.features, column_kinds, y)
+    shift = labeled_pool_shift(dataset.X, labeled, blocks=dataset.blocks,
+                               seed=derive_rng(0, "data-card", "shift").integers(2**31))
+    rare = _rare_classes(class_counts)
+    card_warnings = list(data_warnings)
+    if shift_warning(shift):
+        card_warnings.append(shift_warning(shift))
+    if rare["single_label"]:
+        card_warnings.append(
+            f"{len(rare['single_label'])} class(es) have a single label "
+            f"({', '.join(repr(c) for c in list(rare['single_label'])[:5])}): the study trains "
+            "on them but cannot evaluate them; label a second row of each")
 
     path = Path(path)
     card = DataCard(
@@ -452,7 +517,9 @@ def make_card(
         leakage=leakage,
         leakage_note=leakage_note,
         notes=list(dataset.notes),
-        warnings=data_warnings,
+        warnings=card_warnings,
+        labeled_vs_pool=shift,
+        rare_classes=rare,
     )
     return card
 

@@ -136,9 +136,9 @@ def encode_labels(
         shown = ", ".join(repr(s) for s in singles[:5]) + (" ..." if len(singles) > 5 else "")
         warnings.warn(
             f"{where.source}: label column {column!r}: {len(singles)} class(es) have a single "
-            f"labeled row ({shown}); the default cross-fit evaluation needs at least one per "
-            "fold (5 folds by default) and a holdout at least 2 per class, so label more "
-            "rows of them or merge them into another class",
+            f"labeled row ({shown}); such a class is trained on but cannot be evaluated (the "
+            "study scores a class only with two labels or more), so label more rows of them or "
+            "merge them into another class",
             DataWarning,
             stacklevel=2,
         )

@@ -12,6 +12,7 @@ from ._base import PartiallyLabeledClassifier, labeled_mask
 from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
 from ._density_self_training import DensitySelfTrainingGBT
+from ._keep_raw import KeepRawFeatures, raw_and_latent
 from ._m2 import M2Classifier
 from ._m2_config import M2Config
 from ._m2_spreading import M2SpreadingBlend
@@ -25,6 +26,7 @@ from ._registry import (
     list_methods,
     register,
 )
+from ._spec import stage_kind
 from ._supervised import LabeledGBT, LabeledKNN, LabeledLogReg, LabeledSVM
 
 __all__ = [
@@ -32,6 +34,7 @@ __all__ = [
     "DensitySelfTrainingGBT",
     "FewLabelCalibratedClassifier",
     "KNNLabelSpreading",
+    "KeepRawFeatures",
     "LabeledGBT",
     "LabeledKNN",
     "LabeledLogReg",
@@ -48,5 +51,7 @@ __all__ = [
     "get_method",
     "labeled_mask",
     "list_methods",
+    "raw_and_latent",
     "register",
+    "stage_kind",
 ]

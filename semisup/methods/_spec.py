@@ -26,10 +26,24 @@ __all__ = [
     "register",
     "register_variants",
     "registered",
+    "stage_kind",
 ]
 
-Representation = Literal["raw", "vae", "mixture"]
-REPRESENTATIONS: tuple[str, ...] = ("raw", "vae", "mixture")
+Representation = Literal["raw", "vae", "mixture", "vae+raw"]
+REPRESENTATIONS: tuple[str, ...] = ("raw", "vae", "mixture", "vae+raw")
+#: Representations built from a fitted stage and the encoded table: the stage they need.
+_STAGE_OF = {"vae+raw": "vae"}
+#: ``register_variants`` keywords that are not representation names.
+_KEYWORDS = {"vae_raw": "vae+raw"}
+
+
+def stage_kind(representation: str) -> str:
+    """The unsupervised stage a representation needs (``"raw"``: none).
+
+    ``"vae+raw"`` is the encoded table with the VAE latent means appended (Kingma et al.
+    2014's M1 with the raw features kept): it needs the ``"vae"`` stage.
+    """
+    return _STAGE_OF.get(representation, representation)
 
 
 class MethodUnavailable(SemisupError, ValueError):
@@ -50,9 +64,9 @@ class MethodSpec:
         Lowercase with dashes, says what the method does (``latent-logreg``).
     description : str
         One line for reports and ``--help``.
-    representation : {"raw", "vae", "mixture"}
-        Which features the method is fitted on: the encoded table, the VAE latent means, or the
-        Gaussian-mixture features.
+    representation : {"raw", "vae", "mixture", "vae+raw"}
+        Which features the method is fitted on: the encoded table, the VAE latent means, the
+        Gaussian-mixture features, or the encoded table with the latent means appended.
     semi_supervised : bool
         True when the method learns from unlabeled rows (directly or through its
         representation); False for supervised-only baselines.
@@ -150,7 +164,8 @@ def _builder(cls: type, fixed: dict[str, Any]) -> Callable[[dict[str, Any], int]
 
 
 def register_variants(cls: type, **variants: Variant) -> list[MethodSpec]:
-    """Register ``cls`` once per representation keyword (``raw=``, ``vae=``, ``mixture=``).
+    """Register ``cls`` once per representation keyword (``raw=``, ``vae=``, ``mixture=``,
+    ``vae_raw=`` for ``"vae+raw"``).
 
     ``cls`` declares ``tuning_defaults`` (dict) and ``tuning_space(trial)`` (static); each
     variant may override either. ``build(params, seed)`` is ``cls(**{defaults, **params})``
@@ -159,7 +174,8 @@ def register_variants(cls: type, **variants: Variant) -> list[MethodSpec]:
     unlabeled rows).
     """
     specs = []
-    for representation, variant in variants.items():
+    for keyword, variant in variants.items():
+        representation = _KEYWORDS.get(keyword, keyword)
         if representation not in REPRESENTATIONS:
             raise ConfigError(
                 f"register_variants({cls.__name__}): representation {representation!r} is not "

@@ -363,14 +363,19 @@ def _all_labels(study: _Study, data: str | os.PathLike[str] | None) -> _Labels:
 def _features(study: _Study, labels: _Labels) -> _Features:
     """The method's representation (when it reads one) and the stage that flags rows unlike
     the training rows: the representation itself, else the study's VAE (or mixture)."""
+    from ..methods import KeepRawFeatures, stage_kind
+
     ds, m = labels.ds, study.method
     args = (ds, study.spec, study.folder, study.info, labels.own_y)
     X_enc = np.asarray(ds.X, dtype=np.float32)
     if m.representation != "raw":
-        representation, stage_note = _unsupervised_stage(m.representation, *args)
+        stage = stage_kind(m.representation)
+        representation, stage_note = _unsupervised_stage(stage, *args)
+        density = representation
+        if m.representation != stage:  # "vae+raw": the encoded table, latent means appended
+            representation = KeepRawFeatures(representation).fit(X_enc)
         X = np.asarray(representation.transform(X_enc), dtype=np.float32)
-        return _Features(X_enc, X, representation, stage_note, representation,
-                         m.representation)
+        return _Features(X_enc, X, representation, stage_note, density, stage)
     diags = StudyRecord.from_dict(study.info).representation
     density_kind = "vae" if "vae" in diags else "mixture"
     log.info("fitting/reading the %s stage for the out-of-distribution flag", density_kind)

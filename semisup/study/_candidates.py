@@ -12,6 +12,7 @@ import pandas as pd
 
 from .._seeding import derive_seed
 from ._exports import write_candidates
+from ._representations import method_features
 from ._tuning import fit_method
 
 __all__ = ["refit_candidates"]
@@ -44,7 +45,7 @@ def refit_candidates(out: Path, ds: Any, ctx: Any, methods: dict[str, Any], cell
         method = methods[best_name]
         row = ok[(ok["method"] == best_name) & (ok["n_labels"] == top)].iloc[0]
         params = json.loads(row["params"]) if isinstance(row["params"], str) else {}
-        X = features[method.representation]
+        X = method_features(features, method.representation)
         seed = derive_seed(spec.seed, "candidates", best_name)
         X_unl = None
         if method.semi_supervised and len(unl):

@@ -21,7 +21,7 @@ import numpy as np
 from .._seeding import derive_seed
 from ..methods import align_proba
 from ._metrics import holdout_metrics
-from ._representations import repeat_key
+from ._representations import method_features
 from ._tuning import fit_method, tune_params
 
 __all__ = ["CELL_CODE_VERSION", "Cell", "CellContext", "cell_key", "cell_seed", "run_cell"]
@@ -183,8 +183,7 @@ def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
         row["fold"], row["n_eval"] = int(fold), int(len(eval_idx))
         method = ctx.methods[cell.method]
         # the repeat's own draw of the unsupervised stage (study/_representations.py)
-        X = ctx.features.get(repeat_key(method.representation, cell.repeat),
-                             ctx.features[method.representation])
+        X = method_features(ctx.features, method.representation, cell.repeat)
         draw = _draw(ctx, cell, fold)
         X_lab, y_lab = X[draw], ctx.y[draw]
         if method.semi_supervised:

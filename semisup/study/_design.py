@@ -21,7 +21,7 @@ import pandas as pd
 
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
-from ._draws import crossfit_folds, default_budgets, split_holdout
+from ._draws import crossfit_folds, default_budgets, evaluable_folds, split_holdout
 from ._representations import choose_stage, stage_sample
 from ._spec import StudySpec
 from ._testfile import load_test_rows
@@ -166,28 +166,28 @@ def _representation_keys(resolved: StudySpec, kinds: set[str], data_digest: str,
     return keys
 
 
-def _check_folds(spec: StudySpec, y_lab: np.ndarray, class_names: list[str]) -> None:
-    k = spec.folds
-    counts = np.bincount(y_lab, minlength=len(class_names))
-    present = np.flatnonzero(counts > 0)
-    worst = int(present[np.argmin(counts[present])])
-    n = int(counts[worst])
-    if n >= k:
-        return
-    name = class_names[worst]
-    lower = f"lower --folds to {n}, " if n >= 2 else ""
+def _check_folds(spec: StudySpec, y_lab: np.ndarray, class_names: list[str]) -> int:
+    """The folds the study uses: ``spec.folds``, fewer when the evaluable rows are fewer.
+
+    A class with fewer labels than folds is evaluated in as many repeats as it has labels and
+    a single-label class trains in every repeat and is never evaluated
+    (:func:`crossfit_folds`); only a table with no class of two labels is refused.
+    """
+    k = evaluable_folds(y_lab, spec.folds)
+    if k >= 2:
+        return k
     raise DataError(
-        f"{spec.data}: class {name!r} has {n} labeled row(s), fewer than the {k} cross-fit "
-        f"folds (every fold must hold every class); label at least {k - n} more row(s) of "
-        f"{name!r}, {lower}or use --evaluation holdout"
+        f"{spec.data}: no class has two labeled rows, so no row can be evaluated while its "
+        "class is trained on; label a second row of at least one class (better: of every "
+        "class), or score on separately labeled rows with --test-file"
     )
 
 
 def _crossfit(spec: StudySpec, ds, y, labeled):
     """Fold assignments of the table's own labeled rows: repeat r uses fold r % K of cycle
-    r // K (a fresh seeded assignment)."""
-    k = spec.folds
-    _check_folds(spec, y[labeled], list(ds.class_names))
+    r // K (a fresh seeded assignment). Rows of single-label classes are in every pool and no
+    evaluation fold. Returns ``(evals, pools, repeat_fold, folds used)``."""
+    k = _check_folds(spec, y[labeled], list(ds.class_names))
     keys = np.asarray(ds.row_ids, dtype=str)[labeled]
     evals: dict[int, np.ndarray] = {}
     pools: dict[int, np.ndarray] = {}
@@ -196,7 +196,7 @@ def _crossfit(spec: StudySpec, ds, y, labeled):
         for j in range(k):
             evals[cycle * k + j] = labeled[fold == j]
             pools[cycle * k + j] = labeled[fold != j]
-    return evals, pools, list(range(spec.repeats))
+    return evals, pools, list(range(spec.repeats)), k
 
 
 def _round_rows(ds, added: Any, own_labeled: np.ndarray) -> list[tuple[int, np.ndarray]]:
@@ -233,7 +233,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     Raises :class:`DataError` / :class:`ConfigError` with one line for data or options the
     study cannot use.
     """
-    from ..methods import get_method
+    from ..methods import get_method, stage_kind
 
     ds = dataset if dataset is not None else _load_dataset(spec)
     data_digest = _data_digest(ds)  # of the table as given: added labels are not in it
@@ -250,9 +250,11 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     labeled = np.flatnonzero(y >= 0)
     unlabeled_idx = np.flatnonzero(y < 0)
     if n_classes < 2 or len(np.unique(y[labeled])) < 2:
+        only = (f" (every labeled row is {ds.class_names[int(y[labeled][0])]!r})"
+                if len(labeled) else " (no row is labeled)")
         raise DataError(
             f"{spec.data}: label column {spec.label_column!r} needs labeled rows of at least "
-            "two classes for a study"
+            f"two classes for a study{only}; label some rows of another class"
         )
     names = list(spec.methods) if spec.methods else _default_method_names(len(labeled))
     methods = {n: get_method(n) for n in names}
@@ -261,11 +263,10 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
     protocol = spec.evaluation
     where = "labeled rows of the smallest training pool"
     if protocol == "cross-fit":
-        evals, pools, repeat_fold = _crossfit(spec, ds, y, own_labeled)
+        evals, pools, repeat_fold, n_folds = _crossfit(spec, ds, y, own_labeled)
         # Features of every row, never a label: see DEVELOPERS.md "The study protocol".
         rep_rows = np.sort(np.concatenate([unlabeled_idx, labeled]))
         final = labeled
-        n_folds = spec.folds
     elif protocol == "holdout":
         hold_pos, pool_pos = split_holdout(y[own_labeled], spec.holdout,
                                            derive_seed(spec.seed, "holdout"))
@@ -315,7 +316,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         )
     resolved = spec.replace(methods=tuple(names), budgets=tuple(budgets),
                             stage_draws=stage.draws)
-    kinds = {m.representation for m in methods.values()} - {"raw"}
+    kinds = {stage_kind(m.representation) for m in methods.values()} - {"raw"}
     settings = _settings_fingerprint(resolved, kinds, data_digest, injected_representation,
                                      test)
     grown = {k: resolved.to_dict()[k] for k in GROWING_KEYS}

@@ -19,8 +19,8 @@ from .._seeding import derive_seed
 from ..selection import acquisition_order, stratified_order
 
 __all__ = [
-    "acquisition_orders", "crossfit_folds", "default_budgets", "grown_order", "nested_draws",
-    "split_holdout",
+    "NEVER_EVALUATED", "acquisition_orders", "crossfit_folds", "default_budgets",
+    "evaluable_folds", "grown_order", "nested_draws", "split_holdout",
 ]
 
 
@@ -32,6 +32,11 @@ def _row_key_order(keys: Sequence[str], seed: int) -> np.ndarray:
     return np.array(sorted(range(len(digests)), key=lambda i: (digests[i], i)), dtype=np.int64)
 
 
+#: Fold of a labeled row that is never evaluated (its class has a single label): it is a
+#: training row of every repeat.
+NEVER_EVALUATED = -1
+
+
 def crossfit_folds(y: np.ndarray, keys: Sequence[str], n_folds: int, seed: int) -> np.ndarray:
     """Stratified fold of every labeled row (``0 .. n_folds - 1``), keyed by row id.
 
@@ -40,6 +45,12 @@ def crossfit_folds(y: np.ndarray, keys: Sequence[str], n_folds: int, seed: int) 
     differs by at most one between folds, and so do the fold sizes (the allocation of
     scikit-learn's ``StratifiedKFold``). Ranking by id rather than by position keeps a row's
     fold when the table's rows are reordered.
+
+    Rare classes: a class with fewer rows than folds lands in as many folds as it has rows
+    (at most one row per fold), so it is evaluated in those repeats and keeps at least one
+    training row in every repeat. A class with a single row cannot be both trained on and
+    evaluated: its row gets :data:`NEVER_EVALUATED` (``-1``), trains in every repeat and is
+    left out of the dealing (the other rows' allocation is ``StratifiedKFold``'s on them).
     """
     y = np.asarray(y)
     if len(keys) != len(y):
@@ -48,13 +59,22 @@ def crossfit_folds(y: np.ndarray, keys: Sequence[str], n_folds: int, seed: int) 
         raise ConfigError(f"study option 'folds' must be >= 2; got {n_folds}")
     keys = np.asarray(keys, dtype=object)
     dealt: list[np.ndarray] = []
+    folds = np.full(len(y), NEVER_EVALUATED, dtype=np.int64)
     for c in np.unique(y):
         idx = np.flatnonzero(y == c)
-        dealt.append(idx[_row_key_order(keys[idx], seed)])
+        if len(idx) >= 2:
+            dealt.append(idx[_row_key_order(keys[idx], seed)])
     order = np.concatenate(dealt) if dealt else np.zeros(0, dtype=np.int64)
-    folds = np.empty(len(y), dtype=np.int64)
     folds[order] = np.arange(len(order)) % n_folds
     return folds
+
+
+def evaluable_folds(y: np.ndarray, n_folds: int) -> int:
+    """How many cross-fit folds the labeled rows ``y`` can fill: ``n_folds``, or fewer when
+    the rows of classes with two labels or more are fewer than that (each fold then holds one
+    row). Zero when no class has two labels (nothing can be evaluated)."""
+    counts = np.unique(np.asarray(y), return_counts=True)[1]
+    return int(min(n_folds, counts[counts >= 2].sum()))
 
 
 def split_holdout(y: np.ndarray, holdout: float | int, seed: int) -> tuple[np.ndarray, np.ndarray]:

@@ -10,7 +10,8 @@ import numpy as np
 import pandas as pd
 
 __all__ = [
-    "MIN_HOLDOUT_PER_CLASS", "PROTOCOL_NOTES", "evaluation_facts", "protocol_notes", "study_info",
+    "MIN_HOLDOUT_PER_CLASS", "PROTOCOL_NOTES", "evaluation_facts", "protocol_notes",
+    "rare_class_warnings", "study_info",
 ]
 
 #: Below this many holdout labels in a class, estimates are called loose (common practice,
@@ -128,6 +129,7 @@ def evaluation_facts(design: Any) -> dict[str, Any]:
                         "n_pool": n_pool[r]} for r in repeats],
         "evaluated_class_counts": _counts(
             y, np.unique(np.concatenate([design.eval_idx(r) for r in repeats])), names),
+        **_rare_classes(design, names),
         "representation_fit": {
             "n_rows": int(len(rep_rows)),
             "includes_evaluation_features": bool(np.isin(
@@ -147,6 +149,49 @@ def _sample_rows(design: Any) -> int | None:
     if not design.kinds or stage is None or stage.fit_rows >= stage.n_rows:
         return None
     return int(stage.fit_rows)
+
+
+def _rare_classes(design: Any, names: list[str]) -> dict[str, Any]:
+    """Which classes the evaluation cannot score, or scores in only some repeats."""
+    y = design.y
+    repeats = range(len(design.repeat_fold))
+    labeled = np.bincount(y[design.labeled], minlength=len(names))
+    not_evaluated = {}
+    some = {}
+    for i, name in enumerate(names):
+        seen = sum(bool(np.any(y[design.eval_idx(r)] == i)) for r in repeats)
+        if seen == 0:
+            not_evaluated[name] = int(labeled[i])
+        elif seen < len(design.repeat_fold):
+            some[name] = {"n_labeled": int(labeled[i]), "repeats_evaluated": int(seen)}
+    return {"classes_not_evaluated": not_evaluated, "classes_evaluated_in_some_repeats": some}
+
+
+def rare_class_warnings(evaluation: dict[str, Any]) -> list[str]:
+    """study.json's warnings on classes that are never, or not always, evaluated."""
+    out = []
+    missing = evaluation.get("classes_not_evaluated") or {}
+    if missing:
+        listed = ", ".join(f"{name!r} ({n} label{'s' if n != 1 else ''})"
+                           for name, n in missing.items())
+        out.append(
+            f"class(es) {listed} are never evaluated: a class needs two labeled rows of the "
+            "table to be trained on and scored in the same repeat (rows labeled in rounds are "
+            "training rows only); they train in every repeat, but accuracy, balanced accuracy "
+            "and macro-F1 are measured on the other classes' rows and say nothing about them. "
+            "Label a second row of each to evaluate it"
+        )
+    some = evaluation.get("classes_evaluated_in_some_repeats") or {}
+    if some:
+        repeats = len(evaluation.get("per_repeat") or []) or None
+        listed = ", ".join(f"{name!r} ({v['n_labeled']} labels, {v['repeats_evaluated']} of "
+                           f"{repeats} repeats)" for name, v in some.items())
+        out.append(
+            f"class(es) {listed} have fewer labels than the folds and are evaluated only in "
+            "the repeats whose fold holds one of their rows (they train in every repeat); "
+            "balanced accuracy and macro-F1 of the other repeats average over fewer classes"
+        )
+    return out
 
 
 def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: dict,
@@ -179,10 +224,7 @@ def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: 
             f"{MIN_HOLDOUT_PER_CLASS} {what} (smallest {int(eval_counts.min())}, "
             f"{evaluation['n_rows_evaluated']} rows evaluated in all){w}"
         )
-    missing = [names[i] for i, n in enumerate(eval_counts) if n == 0]
-    if missing:
-        warnings_.append(f"class(es) {', '.join(missing)} have no evaluation rows and are not "
-                         "evaluated; label more rows of them")
+    warnings_.extend(rare_class_warnings(evaluation))
     if min(budgets) < len(names):
         warnings_.append(f"budget {min(budgets)} is below the class count {len(names)}: those "
                          "draws cannot hold every class")

@@ -27,8 +27,8 @@ from .._seeding import derive_seed
 from ._shared import open_shared, remove_shared, shared_folder, write_shared
 
 __all__ = [
-    "STAGE_SAMPLE_ROWS", "StageChoice", "choose_stage", "fit_representations", "repeat_key",
-    "representation_seed", "stage_sample",
+    "STAGE_SAMPLE_ROWS", "StageChoice", "choose_stage", "fit_representations", "method_features",
+    "repeat_key", "representation_seed", "stage_sample",
 ]
 
 log = logging.getLogger(__name__)
@@ -115,6 +115,20 @@ def stage_sample(rows: np.ndarray, n_rows: int, study_seed: int) -> np.ndarray:
 def repeat_key(kind: str, repeat: int) -> str:
     """Key of repeat ``repeat``'s features in the features mapping (repeat 0: ``kind``)."""
     return kind if repeat == 0 else f"{kind}@{repeat}"
+
+
+def method_features(features: dict[str, np.ndarray], representation: str,
+                    repeat: int = 0) -> np.ndarray:
+    """The features a method of ``representation`` is handed in repeat ``repeat`` (its own
+    draw of the stage when there is one, else repeat 0's); ``"vae+raw"`` is the encoded
+    table with that draw's latent means appended."""
+    from ..methods import raw_and_latent, stage_kind
+
+    kind = stage_kind(representation)
+    own = features.get(repeat_key(kind, repeat), features[kind])
+    if representation != kind:
+        return raw_and_latent(features["raw"], own)
+    return own
 
 
 def _accepts_on_step(fn: Any) -> bool:

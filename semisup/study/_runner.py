@@ -16,6 +16,8 @@ import pandas as pd
 
 from .._errors import ConfigError
 from .._progress import Progress
+from ..data._shift import shift_warning
+from ..methods import stage_kind
 from ._backends import run_cells
 from ._candidates import refit_candidates
 from ._cell import Cell, CellContext, cell_key, cell_seed
@@ -183,7 +185,8 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
             features=features, y=y, pools=design.pools, evals=design.evals,
             repeat_fold=dict(enumerate(design.repeat_fold)),
             unlabeled_idx=design.unlabeled_idx, orders=orders,
-            methods={n: m for n, m in methods.items() if m.representation not in rep_errors},
+            methods={n: m for n, m in methods.items()
+                     if stage_kind(m.representation) not in rep_errors},
             n_classes=design.n_classes, seed=resolved.seed, trials=resolved.trials,
             cv_folds=resolved.cv_folds, max_unlabeled=resolved.max_unlabeled,
             transductive=resolved.transductive,
@@ -205,6 +208,11 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         if leak:  # a near-perfect score from a leaking column must not pass without a word
             log.warning("%s", leak)
             info["warnings"].insert(0, leak)
+        shift = card.labeled_vs_pool if card is not None else {
+            "checked": False, "reason": "no data card (dataset given directly)"}
+        info["labeled_vs_pool"] = shift
+        if shift_warning(shift):  # the plan carries study.json's warnings
+            info["warnings"].insert(0, shift_warning(shift))
         info["timing"]["this_run_total_seconds"] = time.perf_counter() - t_start
         write_exports(out, cells, resolved.metrics, info)
     finally:
@@ -222,7 +230,7 @@ def _cell_keys(ctx: CellContext, design) -> dict[Cell, str]:
     def representation(cell: Cell) -> str:
         # repeat r's own draw of a fitted stage (study/_representations.py); raw is shared
         kind = design.methods[cell.method].representation
-        key = design.representation_keys[kind]
+        key = design.representation_keys[stage_kind(kind)]
         if kind == "raw":
             return key
         draw = cell.repeat if resolved.stage_draws == "per-repeat" else 0
@@ -262,7 +270,7 @@ def _run_all_cells(ctx, design, keys, store, rep_errors, jobs, cluster, rerun_fa
 
     runnable = []
     for cell in todo:
-        kind = design.methods[cell.method].representation
+        kind = stage_kind(design.methods[cell.method].representation)
         if kind in rep_errors:
             on_result({
                 "method": cell.method, "n_labels": cell.n_labels, "repeat": cell.repeat,
