@@ -157,7 +157,7 @@ def test_latent_plus_raw_logreg_is_logistic_regression_on_raw_and_latent(study, 
     ref = LogisticRegression(C=result.report["params"]["C"], max_iter=500).fit(both[rows], codes)
     np.testing.assert_allclose(result.model.predict_proba(frame), ref.predict_proba(both),
                                rtol=0, atol=1e-6)
-    result.model.save(tmp_path / "m")
+    save_model(result.model, tmp_path / "m")
     np.testing.assert_array_equal(load_model(tmp_path / "m").predict_proba(frame),
                                   result.model.predict_proba(frame))
 

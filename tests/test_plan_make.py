@@ -190,7 +190,7 @@ def test_uncertainty_choice_ranks_rows_by_margin(tmp_path):
     # here with numpy from the probabilities the study stored in candidates.npz), smallest
     # first.
     folder = write_study(tmp_path / "s", strategies=("uncertainty",))
-    plan = _plan(folder, labels_owned=0, n_next=5)
+    plan = _plan(folder, labels_owned=0, n_next=5, target=0.8)
     assert plan.chosen is not None and plan.chosen.strategy == "uncertainty"
     nxt = plan.label_next
     assert len(nxt) == 5 and nxt["reason"].str.startswith("margin").all()

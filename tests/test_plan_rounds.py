@@ -77,7 +77,7 @@ def test_two_rounds_keep_plans_and_score_the_first_forecast(tmp_path):
     track = second["track_record"]
     scored = track["plans"][0]
     assert scored["plan"] == first["name"] and scored["n_compared"] >= 1
-    assert "Track record of 1 earlier plan(s)" in text
+    assert "Track record of 1 earlier plan:" in text
     forecast = pd.read_csv(out / first["forecast_file"])
     ok = cells[cells["status"] == "ok"]
     for row in scored["rows"]:

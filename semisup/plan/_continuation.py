@@ -306,7 +306,8 @@ def track_sentence(prior: ContinuationPrior, ratio: float) -> str:
     t = prior.track[r]
     where = ("at the largest budget measured" if float(r) == 1.0
              else f"at {float(r):g} times the largest budget measured")
-    return (f"Track record: on {prior.n_tasks} real tables, each left out of the fit it was "
-            f"judged by, forecasts like this one {where} were off by {t['mae']:.3f} on "
+    return (f"How such forecasts held up: on {prior.n_tasks} real tables, each left out of "
+            f"the fit it was judged by, forecasts like this one {where} were off by "
+            f"{t['mae']:.3f} on "
             f"average (assuming the curve stays flat: {t['mae_last']:.3f}), and their 90% "
             f"intervals held the truth {t['coverage']:.0%} of the time.")
