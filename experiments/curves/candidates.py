@@ -294,8 +294,8 @@ CANDIDATES = [
       "an id"),
     T("lme4-InstEval", "lme4", "InstEval", "y",
       ["s", "d"],
-      "course rating 1-5, 5 classes, from student age, lecture age, service and department; "
-      "s and d are student and lecturer ids"),
+      "course rating 1-5, 5 classes, from student age, course age, service and department; "
+      "s and d are student and instructor ids"),
     T("carData-SLID", "carData", "SLID", "language", [],
       "first language (English/French/Other), 3 classes, from wages, education, age, sex"),
     T("mlmRev-Hsb82", "mlmRev", "Hsb82", "minrty", ["school"],
