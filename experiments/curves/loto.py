@@ -71,12 +71,6 @@ def predict_power(c: Curve, eval_rows: float) -> Prediction:
     return Prediction.normal(mean, [s.last_se] * len(RATIOS), [Z90] * len(RATIOS))
 
 
-def predict_corpus(c: Curve, eval_rows: float, prior) -> Prediction:
-    s = summary(c, eval_rows)
-    mean, sd, scale = continue_curve(s, prior, np.log2(np.array(RATIOS)))
-    return Prediction.normal(mean, sd, scale)
-
-
 def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True) -> dict[str, Prediction]:
     """The package's forecast of every method of one user study: the continuation, then the
     winner's-curse step of ``semisup.plan._pipeline._shrink`` (each method's level at the

@@ -100,11 +100,14 @@ class CurveSummary:
 
 
 def summarize_curve(n_labels: np.ndarray, metric: np.ndarray, *,
-                    eval_rows: float | None = None) -> CurveSummary:
+                    eval_rows: float | None = None, power_fit=None) -> CurveSummary:
     """Summarise a curve's cells: ``n_labels`` and ``metric`` of each (budget, repeat).
 
     ``eval_rows``: rows the largest budget's repeats were scored on in all (under cross-fit
     every labeled row once); the binomial error of that many rows floors ``last_se``.
+    ``power_fit``: the power law already fitted to these cells' error rates
+    (``fit_learning_curve(n_labels, 1 - metric, kind="power_law")``, as the plan's curve
+    model holds it); None fits it here.
     """
     n_labels = np.asarray(n_labels, dtype=float)
     metric = np.asarray(metric, dtype=float)
@@ -142,7 +145,8 @@ def summarize_curve(n_labels: np.ndarray, metric: np.ndarray, *,
         from ._curves import fit_learning_curve
 
         try:
-            fit = fit_learning_curve(n_labels, 1.0 - metric, kind="power_law")
+            fit = power_fit if power_fit is not None else fit_learning_curve(
+                n_labels, 1.0 - metric, kind="power_law")
             if fit.kind == "power_law" and np.all(np.isfinite(fit.params)):
                 power = tuple(float(v) for v in fit.params)
         except Exception:  # noqa: BLE001  (a curve a power law cannot fit has no rise)

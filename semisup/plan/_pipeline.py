@@ -117,13 +117,15 @@ def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: i
 
 
 def _continue(band: CurveBand, own_var: np.ndarray, n: np.ndarray, metric: np.ndarray,
-              prior: ContinuationPrior, *, eval_rows: float | None, seed: int
-              ) -> tuple[CurveBand, np.ndarray, dict]:
+              prior: ContinuationPrior, *, model: CurveModel, eval_rows: float | None,
+              seed: int) -> tuple[CurveBand, np.ndarray, dict]:
     """Replace the band from the largest measured budget on by the corpus's continuation
     (``_continuation``): its mean, and samples from one normal draw per resample scaled so
     that the interval is the prior's (``scale * sd`` either side). ``own_var`` there becomes
     the measurement noise of the curve's level, what the winner's-curse step shrinks by."""
-    summary = summarize_curve(n, metric, eval_rows=eval_rows)
+    # the curve model fitted the power law to these cells already
+    summary = summarize_curve(n, metric, eval_rows=eval_rows,
+                              power_fit=model.fits.get("power_law"))
     beyond = band.grid >= summary.n_max * (1 - 1e-9)
     u = np.log2(band.grid[beyond] / summary.n_max)
     mean, sd, scale = continue_curve(summary, prior, u)
@@ -252,7 +254,7 @@ def forecast_all(
             sub = groups[k][groups[k][metric].notna()]
             band, var, continued[(*k, metric)] = _continue(
                 band, var, sub["n_labels"].to_numpy(float), sub[metric].to_numpy(float), p,
-                eval_rows=level_rows,
+                model=m, eval_rows=level_rows,
                 seed=derive_seed(seed, "plan", "continuation", k[0], k[1], metric))
         bands[(*k, metric)], own_var[k], displays[(*k, metric)] = band, var, display
     bands, factors = _shrink(bands, own_var, keys, metric,
@@ -269,7 +271,7 @@ def forecast_all(
                                sub["repeat"].astype(str).to_numpy(), seed=0, backtest=False)
             plan_model = models.get(k)
             fam_prior = ({f: (v, 1) for f, v in plan_model.mse.items()}
-                     if plan_model is not None and plan_model.mse else pooled)
+                         if plan_model is not None and plan_model.mse else pooled)
             weigh_curve(om, fam_prior)
             grid, display = _grid(om.levels, [])
             band, _ = forecast_band(om, grid, cal, n_boot=max(n_boot // 2, 1),
@@ -281,7 +283,7 @@ def forecast_all(
             if p is not None:
                 band, _, continued[(*k, other)] = _continue(
                     band, np.var(band.samples, axis=0), sub["n_labels"].to_numpy(float),
-                    sub[other].to_numpy(float), p, eval_rows=level_rows,
+                    sub[other].to_numpy(float), p, model=om, eval_rows=level_rows,
                     seed=derive_seed(seed, "plan", "continuation", k[0], k[1], other))
             bands[(*k, other)], displays[(*k, other)] = band, display
 
