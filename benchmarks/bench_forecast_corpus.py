@@ -8,8 +8,9 @@ measured budget, for every method of the user's study:
 - ``last``: the last measured value (the naive baseline; its interval is the measured mean's
   own t-interval at the largest budget);
 - ``power``: a plain power law fitted to the curve (its interval as ``last``'s);
-- ``today``: the forecast of semisup 0.1's plan before the corpus (curve families weighted by
-  backtests, calibrated by the study's own backtests, James-Stein shrinkage of the methods);
+- ``today``: the plan's forecast without the corpus (``forecast_all(prior=None)``: curve
+  families weighted by backtests and calibrated by the study's own backtests, then the
+  level-only James-Stein shrinkage of the methods, as this code has it);
 - ``corpus``: the continuation learned from the OTHER tables of the corpus
   (``semisup.plan._continuation``: shift, gain on the measured slope, spread and interval
   scale per ratio), fitted again for every left-out table.

@@ -91,19 +91,21 @@ def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True) -> dict[str, 
 
 
 def today_forecasts(us: UserStudy, work: Path | None) -> dict[str, Prediction]:
-    """The plan's pre-corpus forecast of every method of one user study (cached in work)."""
+    """The plan's forecast without the corpus prior (the curve families, ``prior=None``) of
+    every method of one user study (cached in work)."""
     from semisup.plan import probability_meets
     from semisup.plan._pipeline import forecast_all
 
     key = hashlib.sha256(us.cells.to_csv(index=False).encode()).hexdigest()[:16]
-    cache = work / f"today-{us.task}-{us.user}-{key}.npz" if work else None
+    cache = work / f"families-{us.task}-{us.user}-{key}.npz" if work else None
     if cache is not None and cache.exists():
         z = np.load(cache, allow_pickle=False)
         methods = [str(m) for m in z["methods"]]
         arr = {m: (z["mean"][i], z["low"][i], z["high"][i], z["samples"][i])
                for i, m in enumerate(methods)}
     else:
-        fc = forecast_all(us.cells, "accuracy", ["accuracy"], seed=0, interval=INTERVAL,
+        fc = forecast_all(us.cells, "accuracy", ["accuracy"], prior=None, seed=0,
+                          interval=INTERVAL,
                           n_boot=200, eval_rows=None, eval_floor_rows=us.user,
                           labels_owned=us.user,
                           option_args={"target": 0.5, "confidence": CONFIDENCE,
