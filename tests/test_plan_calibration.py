@@ -21,7 +21,7 @@ from semisup.plan import (
     shrink_toward_mean,
     small_sample_factor,
 )
-from semisup.plan._inputs import study_facts
+from semisup.study import StudyRecord
 
 
 def test_paule_mandel_matches_statsmodels_random_effects():
@@ -175,7 +175,7 @@ def test_shared_evaluation_rows_per_protocol(evaluation, expected):
     # Cross-fitting with at most one repeat per fold shares no evaluation rows; with R > K
     # repeats the shared variance p(1-p)/n * (R-K)/(R-1) is the study's own formula (hand
     # values); a holdout or a test file is shared by every repeat.
-    facts = study_facts({"evaluation": evaluation})
+    facts = StudyRecord.from_dict({"evaluation": evaluation})
     assert facts.shared_eval_rows == (pytest.approx(expected) if expected else None)
 
 

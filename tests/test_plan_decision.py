@@ -90,20 +90,23 @@ def test_decision_lines_order_ceiling_and_why_the_goal_moved():
 
 
 def test_the_small_evaluation_warning_is_said_plainly():
-    from semisup.plan import StudyFacts, data_warnings
+    from semisup.plan import data_warnings
+    from semisup.study import StudyRecord
 
     # the study's own warning (semisup/study/_info.py) for 250 labeled rows, 50 per fold
     study_text = ("evaluation rows too small for tight estimates: 9 class(es) have fewer than "
                   "30 labeled rows (every one is evaluated once per fold cycle) (smallest 22, "
                   "250 rows evaluated in all); median Wilson 95% interval width on accuracy "
                   "of one cell 0.202")
-    facts = StudyFacts(protocol="cross_fit", n_rows_evaluated=250, n_eval=50,
-                       warnings=[study_text])
+    facts = StudyRecord.from_dict({"evaluation": {"protocol": "cross-fit",
+                                                  "n_rows_evaluated": 250, "n_eval_min": 50},
+                                   "warnings": [study_text]})
     out = data_warnings(facts)[0]
     assert out.startswith("only 250 labeled rows to test on (50 per repeat): one repeat's "
                           "accuracy is uncertain by about \u00b10.10 (9 class(es)")
     # a warning it does not know passes unchanged
-    facts = StudyFacts(protocol="cross_fit", warnings=["something else"])
+    facts = StudyRecord.from_dict({"evaluation": {"protocol": "cross-fit"},
+                                   "warnings": ["something else"]})
     assert data_warnings(facts)[0] == "something else"
 
 

@@ -154,10 +154,14 @@ def test_decision_counts_every_label(study, tmp_path):
     assert ("You own 250 training labels and 150 kept aside for evaluation (the holdout)."
             in plan.summary().splitlines())
     # Under cross-fitting every labeled row trains and is evaluated, in different repeats.
-    from semisup.plan._inputs import StudyFacts
+    from semisup.study import StudyRecord
     from semisup.plan._make import label_counts
 
-    facts = StudyFacts(n_labeled=200, protocol="cross_fit", folds=5)
+    def facts_of(n_labeled, round_rows=0, **evaluation):
+        return StudyRecord.from_dict({"data": {"n_labeled": n_labeled}, "evaluation": {
+            "protocol": "cross-fit", "folds": 5, "n_round_rows": round_rows, **evaluation}})
+
+    facts = facts_of(200)
     lab = label_counts(facts, 200, 40)
     assert lab["owned_for_training"] == 200 and lab["kept_for_evaluation"] == 0
     assert lab["evaluated_by_cross_fit"] == 200 and lab["in_all"] == 240
@@ -165,7 +169,7 @@ def test_decision_counts_every_label(study, tmp_path):
     assert lab["text"] == "You own 200 labels, all in the table; all train the final model."
     # Rows returned by a labeling round only train (DEVELOPERS.md, "Studies that grow"): the
     # folds are dealt from the table's 200, the 50 returned rows are owned but never evaluated.
-    facts = StudyFacts(n_labeled=250, protocol="cross_fit", folds=5, n_round_rows=50)
+    facts = facts_of(250, 50)
     lab = label_counts(facts, 250, 10)
     assert lab["owned_for_training"] == 250 and lab["evaluated_by_cross_fit"] == 200
     assert lab["returned_by_rounds"] == 50 and lab["in_all"] == 260
@@ -173,8 +177,7 @@ def test_decision_counts_every_label(study, tmp_path):
                            "all train the final model.")
     assert "160 train and 40 are evaluated" in lab["evaluation_text"]
     assert "the 50 returned by labeling rounds only train" in lab["evaluation_text"]
-    facts = StudyFacts(n_labeled=250, protocol="cross_fit", folds=5, n_round_rows=50,
-                       evaluation={"rounds": [{"round": 1, "n_rows": 50}]})
+    facts = facts_of(250, 50, rounds=[{"round": 1, "n_rows": 50}])
     assert "+ 50 from round 1;" in label_counts(facts, 250, 10)["text"]
 
 

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import pandas as pd
 
-from semisup.study._runner import StudyResult, summary_budget, summary_metric
+from semisup.study import StudyRecord
+from semisup.study._runner import StudyResult
 
 
 def _info(counts, shared, pool):
@@ -12,19 +13,23 @@ def _info(counts, shared, pool):
             "evaluation": {"shared_across_repeats": shared, "n_pool_min": pool}}
 
 
+def _lead(info):
+    return StudyRecord.from_dict(info).lead_metric
+
+
 def test_imbalanced_classes_lead_with_balanced_accuracy():
     # The card's own rule (largest / smallest labeled class >= 3 is imbalanced; common
     # practice, no source): accuracy hides a minority class there.
-    assert summary_metric(_info({"a": 90, "b": 10}, False, 80)) == "balanced_accuracy"
-    assert summary_metric(_info({"a": 50, "b": 40}, False, 80)) == "accuracy"
+    assert _lead(_info({"a": 90, "b": 10}, False, 80)) == "balanced_accuracy"
+    assert _lead(_info({"a": 50, "b": 40}, False, 80)) == "accuracy"
 
 
 def test_shared_evaluation_skips_the_whole_pool_budget():
     budgets = pd.Series([10, 50, 100, 100])
     # holdout: at 100 = the pool every repeat trains on the same rows, so 50 is shown
-    assert summary_budget(_info({}, True, 100), budgets) == 50
+    assert StudyRecord.from_dict(_info({}, True, 100)).summary_budget(budgets) == 50
     # cross-fit: each repeat has its own pool, so the largest budget already differs
-    assert summary_budget(_info({}, False, 100), budgets) == 100
+    assert StudyRecord.from_dict(_info({}, False, 100)).summary_budget(budgets) == 100
 
 
 def test_summary_prints_the_chosen_metric_and_budget(tmp_path):

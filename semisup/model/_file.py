@@ -32,8 +32,8 @@ from typing import Any
 
 from .. import __version__
 from .._atomic import _current_umask, atomic_write_bytes, atomic_write_text
+from .._jsonio import read_json_object
 from ._errors import ModelFileError
-from ._json import read_json
 from ._model import FittedModel
 from ._persist import dump_estimator, load_estimator
 
@@ -204,11 +204,11 @@ def read_manifest(path: str | os.PathLike[str]) -> dict[str, Any]:
         raise ModelFileError(f"{folder} is a file, not a semisup model folder; give the folder "
                              "that 'semisup fit --out' wrote")
     manifest_path = folder / "manifest.json"
-    manifest = read_json(
-        manifest_path, ModelFileError, damaged="the folder is damaged, fit the model again",
+    manifest = read_json_object(
+        manifest_path, ModelFileError, fix="the folder is damaged, fit the model again",
         missing=f"{folder} is not a semisup model folder (no manifest.json); give the folder "
                 "that 'semisup fit --out' wrote")
-    if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:
+    if manifest.get("format") != FORMAT:
         raise ModelFileError(f"{manifest_path} is not a semisup model manifest; give the folder "
                              "that 'semisup fit --out' wrote")
     version = manifest.get("format_version")

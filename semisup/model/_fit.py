@@ -19,7 +19,6 @@ import os
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
-from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -27,10 +26,10 @@ import pandas as pd
 
 from .. import __version__
 from .._errors import ConfigError, DataError, StoreError
+from .._jsonio import read_json_object
 from .._seeding import derive_seed
 from ..study._folder import StudyRecord, read_curves
 from ._crossfit import DEFAULT_CUTS, confidence_table, crossfit_proba
-from ._json import read_json
 from ._model import FittedModel
 
 __all__ = ["FLAG_QUANTILE", "FitResult", "fit_model", "read_study"]
@@ -119,39 +118,16 @@ def read_study(study_dir: str | os.PathLike[str]) -> tuple[dict, dict | None]:
         raise StoreError(f"{folder}: no such study folder; give the folder 'semisup study --out' "
                          "wrote")
     path = folder / "study.json"
-    info = read_json(path, StoreError, damaged="run the study again to rewrite it",
-                     missing=f"{folder} has no study.json; run 'semisup study' into it first (or "
-                             "give the study's folder)")
-    if not isinstance(info, dict) or not isinstance(info.get("spec"), dict):
+    info = read_json_object(path, StoreError, fix="run the study again to rewrite it",
+                            missing=f"{folder} has no study.json; run 'semisup study' into it "
+                                    "first (or give the study's folder)")
+    if not isinstance(info.get("spec"), dict):
         raise StoreError(f"{path} lacks the study spec; run the study again to rewrite it")
     plan = None
     plan_path = folder / "plan.json"
     if plan_path.is_file():
-        plan = read_json(plan_path, StoreError, missing="", damaged="run 'semisup plan' again")
+        plan = read_json_object(plan_path, StoreError, fix="run 'semisup plan' again")
     return info, plan
-
-
-def _spec_view(values: dict, folder: Path, spec_cls: Any) -> SimpleNamespace:
-    """The study's resolved spec as recorded in study.json (already checked when the study
-    ran), with the spec's defaults for keys an older study did not record. Not re-validated:
-    a spec's ``to_dict`` need not be accepted by a later release's checks."""
-    import dataclasses
-
-    out: dict[str, Any] = {}
-    for f in dataclasses.fields(spec_cls):
-        if f.default is not dataclasses.MISSING:
-            out[f.name] = f.default
-        elif f.default_factory is not dataclasses.MISSING:  # type: ignore[misc]
-            out[f.name] = f.default_factory()  # type: ignore[misc]
-    out.update(values)
-    for key in ("data", "label_column"):
-        if not out.get(key):
-            raise StoreError(f"{folder}/study.json: the spec lacks {key!r}; run the study again "
-                             "to rewrite it")
-    out["unlabeled_markers"] = tuple(out.get("unlabeled_markers") or ())
-    out["kinds"] = dict(out.get("kinds") or {})
-    out["pretrain"] = {k: dict(v) for k, v in (out.get("pretrain") or {}).items()}
-    return SimpleNamespace(**out)
 
 
 def _current_plan(folder: Path, plan: dict | None, method: str | None) -> dict | None:
@@ -224,7 +200,7 @@ def _stage_rows(spec: Any, y: np.ndarray) -> np.ndarray:
     from ..study import split_holdout
 
     labeled = np.flatnonzero(y >= 0)
-    if spec.transductive or getattr(spec, "evaluation", "holdout") != "holdout":
+    if spec.transductive or spec.evaluation != "holdout":
         return np.arange(len(y))
     hold_pos, _ = split_holdout(y[labeled], spec.holdout, derive_seed(spec.seed, "holdout"))
     keep = np.ones(len(y), dtype=bool)
@@ -328,13 +304,16 @@ class _Classifier:
 
 def _open_study(study_dir: str | os.PathLike[str], method: str | None) -> _Study:
     from ..methods import get_method
-    from ..study import StudySpec
     from ..study._integrity import check_exports
 
     folder = Path(study_dir)
     info, plan = read_study(folder)
     check_exports(folder, command="fit")
-    spec = _spec_view(info["spec"], folder, StudySpec)
+    for key in ("data", "label_column"):
+        if not info["spec"].get(key):
+            raise StoreError(f"{folder}/study.json: the spec lacks {key!r}; run the study again "
+                             "to rewrite it")
+    spec = StudyRecord.from_dict(info).resolved_spec()
     plan = _current_plan(folder, plan, method)
     name = _choose_method(folder, plan, method)
     m = get_method(name)

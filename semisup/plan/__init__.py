@@ -52,7 +52,7 @@ from ._history import (
     study_state,
 )
 from ._honest import overlapping, shrink_toward_mean
-from ._inputs import StudyFacts, data_warnings, read_json, study_facts, tidy_cells
+from ._inputs import data_warnings, read_json, tidy_cells
 from ._make import CURVE_COLUMNS, Plan, PlanInputs, build_plan, make_plan, read_inputs, write_plan
 from ._request import METRICS, PlanRequest
 from ._sheet import SHEET_FORMATS
@@ -80,7 +80,6 @@ __all__ = [
     "PlanRequest",
     "PlanStatus",
     "SHEET_FORMATS",
-    "StudyFacts",
     "backtest_curve",
     "best_effort",
     "bootstrap_curve",
@@ -125,7 +124,6 @@ __all__ = [
     "score_plan",
     "shrink_toward_mean",
     "small_sample_factor",
-    "study_facts",
     "study_state",
     "tidy_cells",
     "track_record",

@@ -25,6 +25,7 @@ import pandas as pd
 from .._atomic import atomic_write_text
 from .._errors import PlanError
 from .._seeding import derive_seed
+from ..study import StudyRecord
 from ._bootstrap import CurveBand
 from ._choose import Option, best_effort, choose
 from ._continuation import track_sentence
@@ -36,20 +37,19 @@ from ._history import (
     FORECAST_SUFFIX,
     PLANS_FOLDER,
     PlanStatus,
-    current_state,
     list_plans,
     plan_name,
     read_forecast,
     read_measured,
+    study_state,
 )
 from ._honest import overlapping
 from ._inputs import (
-    StudyFacts,
     data_warnings,
     read_candidates,
     read_cells,
+    read_cells_file,
     read_json,
-    study_facts,
 )
 from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
 from ._pipeline import Forecasts, forecast_all
@@ -262,22 +262,22 @@ def _fitted_rows(band: CurveBand, display: np.ndarray, method: str, strategy: st
     return rows
 
 
-def _owned(request: PlanRequest, facts: StudyFacts, warnings: list[str]) -> int:
+def _owned(request: PlanRequest, record: StudyRecord, warnings: list[str]) -> int:
     if request.labels_owned is not None:
         return int(request.labels_owned)
-    if facts.n_labeled is not None:
+    if record.n_labeled is not None:
         # A budget counts training labels. A fixed holdout's labels are spent on evaluation
         # and stay there, so they do not count towards any budget; under cross-fitting (or
         # with a separate test file) every labeled row of the table can train the model.
-        if facts.protocol in ("cross_fit", "test_file"):
-            return int(facts.n_labeled)
-        return max(0, int(facts.n_labeled) - int(facts.n_holdout or 0))
+        if record.evaluation_protocol in ("cross_fit", "test_file"):
+            return int(record.n_labeled)
+        return max(0, int(record.n_labeled) - int(record.holdout_rows or 0))
     warnings.append("the number of labels owned is unknown (no n_labeled in study.json); "
                     "assumed 0, pass --labels-owned to set it")
     return 0
 
 
-def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
+def label_counts(record: StudyRecord, labels_owned: int, to_buy: int, *,
                  owned_given: bool = False) -> dict:
     """Every label of the decision: owned for training, kept for evaluation, to buy.
 
@@ -287,13 +287,13 @@ def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
     trains the model in some repeats and is evaluated in the others; rows returned by
     labeling rounds only train.
     """
-    n_lab = facts.n_labeled
-    out: dict = {"protocol": facts.protocol, "owned_for_training": int(labels_owned),
+    n_lab = record.n_labeled
+    out: dict = {"protocol": record.evaluation_protocol, "owned_for_training": int(labels_owned),
                  "to_buy": int(to_buy), "kept_for_evaluation": 0}
     source = " (from --labels-owned)" if owned_given else ""
-    if facts.protocol == "cross_fit" and n_lab is not None and not owned_given:
-        k = facts.folds
-        rounds = min(int(facts.n_round_rows or 0), int(n_lab))
+    if record.evaluation_protocol == "cross_fit" and n_lab is not None and not owned_given:
+        k = record.folds
+        rounds = min(int(record.n_round_rows or 0), int(n_lab))
         table = n_lab - rounds  # the rows the folds are dealt from
         out["evaluated_by_cross_fit"] = int(table)
         folds = (f" ({k} folds: in each repeat about {table - table // k:,} train and "
@@ -305,17 +305,17 @@ def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
         if rounds:
             out["returned_by_rounds"] = rounds
             out["text"] = (f"You own {n_lab:,} labels: {table:,} in the table + {rounds:,} "
-                           f"from {_round_names(facts)}; all train the final model.")
+                           f"from {_round_names(record)}; all train the final model.")
         else:
             out["text"] = (f"You own {n_lab:,} labels, all in the table; all train the final "
                            "model.")
-    elif facts.protocol == "test_file":
-        n_eval = int(facts.n_eval or 0)
+    elif record.evaluation_protocol == "test_file":
+        n_eval = int(record.n_eval or 0)
         out["kept_for_evaluation"] = n_eval
         out["text"] = (f"You own {labels_owned:,} training labels{source}; the test file's "
                        f"{n_eval:,} labels are for evaluation only.")
     else:
-        kept = int(facts.n_holdout or 0) if facts.protocol != "cross_fit" else 0
+        kept = int(record.holdout_rows or 0) if record.evaluation_protocol != "cross_fit" else 0
         out["kept_for_evaluation"] = kept
         out["text"] = (f"You own {labels_owned:,} training labels{source}"
                        + (f" and {kept:,} kept aside for evaluation (the holdout)" if kept
@@ -324,9 +324,9 @@ def label_counts(facts: StudyFacts, labels_owned: int, to_buy: int, *,
     return out
 
 
-def _round_names(facts: StudyFacts) -> str:
+def _round_names(record: StudyRecord) -> str:
     """"round 1" or "rounds 1-3": the labeling rounds recorded in study.json."""
-    rounds = (facts.evaluation or {}).get("rounds") or []
+    rounds = (record.evaluation_block or {}).get("rounds") or []
     numbers = sorted({int(r["round"]) for r in rounds
                       if isinstance(r, dict) and isinstance(r.get("round"), int)})
     if not numbers:
@@ -386,17 +386,17 @@ def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
                else ""))
 
 
-def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
+def _evaluation_note(record: StudyRecord, eval_rows: float | None) -> str:
     """One sentence on how the evaluation rows' sampling error enters the intervals."""
-    if facts.protocol == "cross_fit":
+    if record.evaluation_protocol == "cross_fit":
         text = ("each repeat was scored on its own fold, so the spread over repeats holds the "
                 "evaluation rows' sampling error")
         if eval_rows:
             text += (f"; repeats of the same fold share rows, an effective {eval_rows:.0f} "
                      "shared rows' binomial error is added")
-        if facts.eval_floor_rows:
+        if record.eval_floor_rows:
             text += (f"; where the spread is below the binomial error of the "
-                     f"{facts.eval_floor_rows} rows evaluated in all (few folds underestimate "
+                     f"{record.eval_floor_rows} rows evaluated in all (few folds underestimate "
                      "it), the band is widened to it")
         return text
     if eval_rows:
@@ -406,7 +406,7 @@ def _evaluation_note(facts: StudyFacts, eval_rows: float | None) -> str:
             "is added beyond the spread over repeats")
 
 
-def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals: list[Option],
+def _evidence(fc: Forecasts, record: StudyRecord, eval_rows: float | None, rivals: list[Option],
               note: str, pick: Option | None) -> dict:
     """The plan's evidence: backtests per ratio, calibration, curve families, the choice."""
     cal = fc.calibration.to_dict()
@@ -434,10 +434,10 @@ def _evidence(fc: Forecasts, facts: StudyFacts, eval_rows: float | None, rivals:
         "continuation": continuation,
         "track_sentence": sentence,
         "evaluation": {
-            "protocol": facts.protocol,
+            "protocol": record.evaluation_protocol,
             "shared_eval_rows": eval_rows,
-            "eval_floor_rows": facts.eval_floor_rows,
-            "note": _evaluation_note(facts, eval_rows),
+            "eval_floor_rows": record.eval_floor_rows,
+            "note": _evaluation_note(record, eval_rows),
         },
         "calibration": cal,
         "backtest_by_ratio": fc.by_ratio,
@@ -468,7 +468,7 @@ class PlanInputs:
     cells: pd.DataFrame = field(repr=False)
     state: dict
     study: dict = field(repr=False)
-    facts: StudyFacts
+    record: StudyRecord
     candidates: dict | None = field(repr=False)
     #: earlier plans (oldest first) with their forecast points
     earlier: tuple[tuple[dict, pd.DataFrame | None], ...] = field(repr=False)
@@ -484,12 +484,13 @@ def read_inputs(study_dir: str | os.PathLike[str]) -> PlanInputs:
 
     study_dir = Path(study_dir)
     check_exports(study_dir, command="plan")  # a hand-edited cells.csv / curves.csv: one line
-    cells = read_cells(study_dir, METRICS)
-    state = current_state(study_dir)
+    raw = read_cells_file(study_dir)
+    cells = read_cells(study_dir, METRICS, raw)
     study = read_json(study_dir / "study.json")
-    facts = study_facts(study, read_json(study_dir / "data_card.json"))
+    state = study_state(study, raw)  # cells.csv and study.json are read once
+    record = StudyRecord.with_card(study, read_json(study_dir / "data_card.json"))
     earlier = tuple((p, read_forecast(study_dir, p)) for p in list_plans(study_dir))
-    return PlanInputs(study_dir=study_dir, cells=cells, state=state, study=study, facts=facts,
+    return PlanInputs(study_dir=study_dir, cells=cells, state=state, study=study, record=record,
                       candidates=read_candidates(study_dir), earlier=earlier,
                       measured=read_measured(study_dir),
                       previous=read_json(study_dir / "plan.json"))
@@ -543,7 +544,7 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
     ``select_rows``, ``n_boot`` and ``now`` as for :func:`make_plan`; returns the frozen
     :class:`Plan` that :func:`write_plan` writes.
     """
-    study_dir, facts, cells_all = inputs.study_dir, inputs.facts, inputs.cells
+    study_dir, record, cells_all = inputs.study_dir, inputs.record, inputs.cells
     made_at = (now or datetime.now(timezone.utc)).astimezone(timezone.utc)
     warnings: list[str] = []
     metric = request.metric
@@ -562,10 +563,10 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
                         f"{metric!r}; run or repair the study first "
                         "('semisup study ... --rerun-failed')")
 
-    labels_owned = _owned(request, facts, warnings)
+    labels_owned = _owned(request, record, warnings)
     label_price = expected_label_price(request.cost_per_label, request.class_costs,
-                                       facts.class_counts if request.class_costs else None)
-    warnings.extend(data_warnings(facts))
+                                       record.class_counts if request.class_costs else None)
+    warnings.extend(data_warnings(record))
 
     metrics_present = [m for m in METRICS if m in cells.columns and cells[m].notna().any()]
     for m in metrics_present:
@@ -574,10 +575,10 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
             bad = cells.loc[vals.index[(vals < 0) | (vals > 1)][0], "method"]
             raise PlanError(f"{study_dir / 'cells.csv'} column {m!r} has values outside "
                             f"[0, 1] for method {bad!r}; rerun the study")
-    eval_rows = facts.shared_eval_rows
+    eval_rows = record.shared_eval_rows
     fc = forecast_all(
-        cells, metric, metrics_present, seed=facts.seed, interval=INTERVAL, n_boot=n_boot,
-        eval_rows=eval_rows, eval_floor_rows=facts.eval_floor_rows, labels_owned=labels_owned,
+        cells, metric, metrics_present, seed=record.seed or 0, interval=INTERVAL, n_boot=n_boot,
+        eval_rows=eval_rows, eval_floor_rows=record.eval_floor_rows, labels_owned=labels_owned,
         option_args={"target": request.target, "confidence": request.confidence,
                      "label_price": label_price, "labels_owned": labels_owned,
                      "cost_per_round": request.cost_per_round})
@@ -616,7 +617,7 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
     select = select_rows if select_rows is not None else default_select_rows()
     label_next, strategy_used, lw = rank_rows(
         inputs.candidates, strategy, n_rows,
-        seed=derive_seed(facts.seed, "plan", "label_next", strategy), select_rows=select)
+        seed=derive_seed(record.seed or 0, "plan", "label_next", strategy), select_rows=select)
     warnings.extend(lw)
 
     state = inputs.state
@@ -628,8 +629,8 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
         labels_owned=labels_owned, label_price=label_price,
         label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
         curves=curves, n_max=n_max,
-        evidence=_evidence(fc, facts, eval_rows, rivals, note, pick),
-        labels=label_counts(facts, labels_owned, chosen.n_new if chosen is not None else 0,
+        evidence=_evidence(fc, record, eval_rows, rivals, note, pick),
+        labels=label_counts(record, labels_owned, chosen.n_new if chosen is not None else 0,
                             owned_given=request.labels_owned is not None),
         label_next_written=chosen is not None or request.n_next is not None,
         name=plan_name(made_at, state), made_at=made_at.isoformat(), state=dict(state),

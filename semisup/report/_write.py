@@ -9,9 +9,6 @@ study state than the folder's current one is shown as stale, never as the curren
 
 from __future__ import annotations
 
-import importlib
-import importlib.util
-import inspect
 import logging
 import os
 from collections.abc import Mapping
@@ -26,7 +23,6 @@ from ..plan import (
     FORECAST_CEILING,
     METRICS,
     PlanStatus,
-    current_state,
     data_warnings,
     decision_lines,
     forecast_span,
@@ -36,11 +32,11 @@ from ..plan import (
     read_forecast,
     read_json,
     read_measured,
-    study_facts,
+    study_state,
     tidy_cells,
 )
-from ..study._folder import StudyRecord
-from ..study._runner import summary_budget
+from ..study import MEASURED_INTERVAL, StudyRecord
+from ._evidence import evidence_section
 from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, curve_panels, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
 from ._text import (
@@ -115,9 +111,7 @@ def _measured_level(curves: pd.DataFrame | None, plan: Mapping | None) -> float:
         vals = vals.dropna()
         if not vals.empty:
             return float(vals.iloc[0])
-    from ..study import summarize_curves
-
-    return float(inspect.signature(summarize_curves).parameters["confidence"].default)
+    return MEASURED_INTERVAL
 
 
 def _repeats(curves: pd.DataFrame | None) -> list[int]:
@@ -157,13 +151,14 @@ def recommended_metric(plan: Mapping | None, card: Mapping) -> tuple[str, str]:
     return "accuracy", "the classes are roughly balanced"
 
 
-def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, str]:
-    """The budget the summary shows (the study's rule, ``summary_budget``) and why."""
+def _summary_budget(record: StudyRecord, curves: pd.DataFrame) -> tuple[int | None, str]:
+    """The budget the summary shows (the study's rule, ``StudyRecord.summary_budget``) and
+    why."""
     budgets = curves.loc[curves["measured"], "n_labels"]
     if budgets.empty:
         return None, ""
-    budget = summary_budget(dict(study), budgets)
-    evaluation = study.get("evaluation") if isinstance(study.get("evaluation"), Mapping) else {}
+    budget = record.summary_budget(budgets)
+    evaluation = record.evaluation_block or {}
     largest = int(budgets.max())
     if budget < largest:
         return budget, (f"the largest budget below the pool of "
@@ -176,16 +171,16 @@ def _summary_budget(study: Mapping, curves: pd.DataFrame) -> tuple[int | None, s
                     else "the largest measured budget")
 
 
-def _eval_rows_label(facts) -> str:
+def _eval_rows_label(record: StudyRecord) -> str:
     """What the evaluation-row count means under the study's protocol."""
-    if getattr(facts, "protocol", "holdout") == "cross_fit":
+    if record.evaluation_protocol == "cross_fit":
         return ("evaluation rows per repeat (cross-fit: each of the table's labeled rows is "
                 "evaluated in turn; rows returned by labeling rounds only train)")
     return "holdout rows (evaluation only)"
 
 
-def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan,
-                     card: Mapping, currency: str, status: PlanStatus) -> Section:
+def _summary_section(study_dir: Path, record: StudyRecord, cells, curves, plan,
+                     currency: str, status: PlanStatus) -> Section:
     s = Section("summary", "Job summary")
     if plan and status.stale:
         s.para(f"No current plan. The latest {status.message('plan')}; it is shown below "
@@ -197,17 +192,17 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
                f"'semisup plan {study_dir} --target accuracy=0.9 --cost-per-label 1' "
                "(your own target and price), then run 'semisup report' again.", "note")
     rows: list[list[object]] = []
-    rounds = int(getattr(facts, "n_round_rows", 0) or 0)
-    n_lab = facts.n_labeled
+    rounds = record.n_round_rows
+    n_lab = record.n_labeled
     in_table = None if n_lab is None else n_lab - rounds
-    for label, value in (("rows in the table", facts.n_rows),
+    for label, value in (("rows in the table", record.n_rows),
                          ("labeled rows in the table", in_table),
                          ("labeled rows returned by labeling rounds", rounds or None),
-                         ("unlabeled rows", facts.n_unlabeled),
-                         (_eval_rows_label(facts), facts.n_holdout)):
+                         ("unlabeled rows", record.n_unlabeled),
+                         (_eval_rows_label(record), record.holdout_rows)):
         if value is not None:
             rows.append([label, count(value)])
-    classes = StudyRecord.from_dict(study).data.class_names
+    classes = record.data.class_names
     if classes:
         rows.append(["classes", ", ".join(str(c) for c in classes)])
     if cells is not None:
@@ -223,11 +218,11 @@ def _summary_section(study_dir: Path, study: Mapping, facts, cells, curves, plan
     return s
 
 
-def _measured_table(s: Section, study: Mapping, curves, plan, card: Mapping) -> None:
+def _measured_table(s: Section, record: StudyRecord, curves, plan, card: Mapping) -> None:
     """The measured metric of every method at the summary budget (the study's rule)."""
     metric, why = recommended_metric(plan, card)
     part = curves[curves["measured"] & (curves["metric"] == metric)]
-    budget, where = _summary_budget(study, curves)
+    budget, where = _summary_budget(record, curves)
     if budget is None or part.empty:
         return
     at = part[part["n_labels"].astype(int) == budget].sort_values("mean", ascending=False)
@@ -243,7 +238,7 @@ def _measured_table(s: Section, study: Mapping, curves, plan, card: Mapping) -> 
                    for r in at.itertuples(index=False)]))
 
 
-def _card_section(card: Mapping, study: Mapping) -> Section:
+def _card_section(card: Mapping, record: StudyRecord) -> Section:
     s = Section("data", "Data card highlights")
     if not card:
         s.para("No data_card.json in the study folder; 'semisup card' writes one.", "note")
@@ -253,7 +248,7 @@ def _card_section(card: Mapping, study: Mapping) -> Section:
     text = imbalance_text(card)
     if text:
         s.para(text)
-    counts = card.get("class_counts") or StudyRecord.from_dict(study).data.class_counts
+    counts = card.get("class_counts") or record.class_counts
     shares = card.get("labeled_class_shares")
     if isinstance(counts, Mapping) and counts:
         rows = [[str(k), count(v)] + ([percent((shares or {}).get(k))]
@@ -284,7 +279,7 @@ def _card_section(card: Mapping, study: Mapping) -> Section:
     return s
 
 
-def _curves_section(curves, plan, study: Mapping, facts, card: Mapping, figures_dir: Path,
+def _curves_section(curves, plan, record: StudyRecord, card: Mapping, figures_dir: Path,
                     written: list[Path], currency: str) -> Section:
     s = Section("curves", "Learning curves")
     if curves is None or curves.empty:
@@ -297,12 +292,12 @@ def _curves_section(curves, plan, study: Mapping, facts, card: Mapping, figures_
     if plan_metric in metrics:
         metrics.remove(plan_metric)
         metrics.insert(0, plan_metric)
-    _measured_table(s, study, curves, plan, card)
+    _measured_table(s, record, curves, plan, card)
     measured_kind = interval_name(_measured_level(curves, plan), "repeat", _repeats(curves))
     fitted_kind = interval_name((plan or {}).get("interval"), "bootstrap")
     fitted = (~curves["measured"]).any()
     # the upper axis (training + evaluation labels) only where a fixed holdout is set aside
-    holdout = getattr(facts, "protocol", "holdout") == "holdout"
+    holdout = record.evaluation_protocol == "holdout"
     s.heading("Figures")
     s.para(f"One panel per method family, on a shared scale. Points: measured mean on the "
            f"evaluation rows; bars: {measured_kind}."
@@ -317,7 +312,7 @@ def _curves_section(curves, plan, study: Mapping, facts, card: Mapping, figures_
            f"Forecast lines stop at {FORECAST_CEILING:g} and their bands are cut there: a "
            "few hundred evaluated labels cannot tell higher forecasts apart.", "note")
     families = _families(curves["method"].unique())
-    budget = BudgetFacts(n_holdout=facts.n_holdout if holdout else None,
+    budget = BudgetFacts(n_holdout=record.holdout_rows if holdout else None,
                          labels_owned=(plan or {}).get("labels_owned"), currency=currency)
     reached = bool((plan or {}).get("chosen"))
     mark = (plan or {}).get("chosen") or (plan or {}).get("best")
@@ -348,7 +343,7 @@ def _curves_section(curves, plan, study: Mapping, facts, card: Mapping, figures_
     return s
 
 
-def _methods_section(cells, curves, plan, study: Mapping, card: Mapping) -> Section:
+def _methods_section(cells, curves, plan, record: StudyRecord, card: Mapping) -> Section:
     s = Section("methods", "Methods")
     if cells is None:
         s.para("No cells.csv in the study folder.", "note")
@@ -367,7 +362,7 @@ def _methods_section(cells, curves, plan, study: Mapping, card: Mapping) -> Sect
             s.table(Table(["method", "strategy", *[f"{count(b)} labels" for b in budgets]],
                           rows, caption=f"Mean {label} on the evaluation rows over repeats, by "
                                         "training-label budget (from curves.csv)"))
-    timing = study.get("timing") if isinstance(study.get("timing"), Mapping) else {}
+    timing = record.raw.get("timing") if isinstance(record.raw.get("timing"), Mapping) else {}
     if timing.get("cells_seconds_total") is not None:
         s.para(f"Compute time of all cells: {num(timing['cells_seconds_total'], 0)} s "
                "(summed over workers, from study.json).", "note")
@@ -530,17 +525,6 @@ def _rounds_section(plan: Mapping | None, plans: list[dict], state: Mapping) -> 
     return s
 
 
-def _evidence_section(plan: Mapping | None, study: Mapping, study_dir: Path) -> Section | None:
-    """The plan's evidence, when ``semisup.report._evidence`` is installed: its
-    ``evidence_section(plan, study, study_dir)`` returns a :class:`Section` (or None)."""
-    name = f"{__package__}._evidence"
-    if not plan or importlib.util.find_spec(name) is None:
-        return None
-    module = importlib.import_module(name)
-    builder = getattr(module, "evidence_section", None)
-    return builder(plan, study, study_dir) if callable(builder) else None
-
-
 def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None,
                    status: PlanStatus) -> Section:
     s = Section("label-next", "Rows to label next")
@@ -595,9 +579,9 @@ def _cell(v: object) -> object:
     return v
 
 
-def _protocol_section(study: Mapping) -> Section:
+def _protocol_section(record: StudyRecord) -> Section:
     s = Section("protocol", "Protocol")
-    protocol = study.get("protocol")
+    protocol = record.raw.get("protocol")
     if isinstance(protocol, (list, tuple)) and protocol:
         s.bullets([short(p, 600) for p in protocol])
     elif isinstance(protocol, Mapping) and protocol:
@@ -606,8 +590,8 @@ def _protocol_section(study: Mapping) -> Section:
         s.para(protocol)
     else:
         s.para("study.json does not describe the protocol.", "note")
-    spec = study.get("spec")
-    if isinstance(spec, Mapping) and spec:
+    spec = record.spec
+    if spec:
         protocol = str(spec.get("evaluation") or "").replace("_", "-")
         # a setting the chosen evaluation does not use is left out (the holdout share under
         # cross-fitting, the folds under a holdout)
@@ -616,7 +600,6 @@ def _protocol_section(study: Mapping) -> Section:
         s.heading("Study settings")
         s.table(Table(["setting", "value"], pairs({k: v for k, v in spec.items()
                                                    if k not in unused}, limit=40)))
-    record = StudyRecord.from_dict(study)
     diag, errors = record.representation, record.representation_errors
     if diag or errors:
         s.heading("Unsupervised stage diagnostics")
@@ -634,8 +617,7 @@ def _protocol_section(study: Mapping) -> Section:
     return s
 
 
-def _title(study: Mapping, study_dir: Path) -> str:
-    record = StudyRecord.from_dict(study)
+def _title(record: StudyRecord, study_dir: Path) -> str:
     source = record.data.source or record.spec.get("data")
     if source:
         return f"Label-budget study of {Path(str(source)).name}"
@@ -656,30 +638,28 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
     check_exports(study_dir, command="report")  # a hand-edited cells.csv / curves.csv
     cells = _read_csv(study_dir / "cells.csv")
     try:
-        if cells is not None:
-            cells = tidy_cells(cells, study_dir / "cells.csv", ("method", "n_labels", "status"))
         study = read_json(study_dir / "study.json")
         card = read_json(study_dir / "data_card.json")
         plan = read_json(study_dir / "plan.json") or None
+        # the study state from the files as read (cells.csv and study.json are read once)
+        state = study_state(study, cells if cells is not None else pd.DataFrame())
+        if cells is not None:
+            cells = tidy_cells(cells, study_dir / "cells.csv", ("method", "n_labels", "status"))
+        plans = list_plans(study_dir)
     except PlanError as exc:
         raise StoreError(str(exc)) from None
     if cells is None and not study:
         raise StoreError(f"{study_dir} has neither cells.csv nor study.json; run "
                          "'semisup study' first")
     currency = currency.strip()
-    facts = study_facts(study, card)
-    try:
-        state = current_state(study_dir)
-        plans = list_plans(study_dir)
-    except PlanError as exc:
-        raise StoreError(str(exc)) from None
+    record = StudyRecord.with_card(study, card)
     status = PlanStatus(plan, state)
     live = None if status.stale else plan  # a stale plan is never shown as current
     curves = _curves_table(study_dir, live)
     label_next = _read_sheet(study_dir, plan)
 
     figures: list[Path] = []
-    warnings = data_warnings(facts)
+    warnings = data_warnings(record)
     for w in (live or {}).get("warnings") or []:
         if w not in warnings:
             warnings.append(str(w))
@@ -691,24 +671,24 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
             warnings.append(note)
     if status.stale:
         warnings.insert(0, status.message("plan.json"))
-    evidence = None if status.stale else _evidence_section(plan, study, study_dir)
+    evidence = None if status.stale else evidence_section(plan, study, study_dir)
     sections = [
-        _summary_section(study_dir, study, facts, cells, curves, plan, card, currency, status),
-        _card_section(card, study),
-        _curves_section(curves, live, study, facts, card, study_dir / "figures", figures,
+        _summary_section(study_dir, record, cells, curves, plan, currency, status),
+        _card_section(card, record),
+        _curves_section(curves, live, record, card, study_dir / "figures", figures,
                         currency),
-        _methods_section(cells, curves, live, study, card),
+        _methods_section(cells, curves, live, record, card),
         _plan_section(plan, study_dir, currency, status),
         *([evidence] if evidence is not None else []),
         _rounds_section(plan, plans, state),
         _label_section(label_next, plan, status),
-        _protocol_section(study),
+        _protocol_section(record),
         Section("warnings", "Warnings").bullets([warning_text(w) for w in warnings]
                                                 or ["None."], "warn"),
         Section("cautions", "Cautions").bullets(CAUTIONS, "caution"),
     ]
     content = ReportContent(
-        title=_title(study, study_dir),
+        title=_title(record, study_dir),
         subtitle=f"semisup {__version__} report of the study folder {study_dir}",
         sections=sections,
     )

@@ -13,15 +13,17 @@ wrote by hand, lacks some blocks, and what depends on them is turned off by the 
 
 from __future__ import annotations
 
-import json
 import math
 import os
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import pandas as pd
+
+from .._jsonio import read_json_object
 
 __all__ = ["CURVE_REQUIRED", "DataFacts", "EvaluationFacts", "StudyRecord", "as_int",
            "read_curves", "read_study_record", "truthy"]
@@ -173,26 +175,174 @@ class StudyRecord:
             raw=dict(d),
         )
 
+    @classmethod
+    def with_card(cls, study: Mapping | None, card: Mapping | None) -> StudyRecord:
+        """The record of ``study``, with data_card.json's row counts and class counts filling
+        in the ones study.json lacks (a folder whose study.json is older or absent)."""
+        record = cls.from_dict(study)
+        card = card if isinstance(card, Mapping) else {}
+        data = record.data
+        fill = {}
+        for name in ("n_rows", "n_labeled"):
+            if getattr(data, name) is None and as_int(card.get(name)) is not None:
+                fill[name] = as_int(card.get(name))
+        if not data.class_counts and _counts(card.get("class_counts")):
+            fill["class_counts"] = _counts(card.get("class_counts"))
+        return replace(record, data=replace(data, **fill)) if fill else record
+
+    def resolved_spec(self) -> SimpleNamespace:
+        """The study's spec as recorded (checked when the study ran), with this release's
+        :class:`StudySpec` defaults for keys an older study did not record. Not re-validated:
+        a spec's ``to_dict`` need not be accepted by a later release's checks."""
+        import dataclasses
+
+        from ._spec import StudySpec
+
+        out: dict[str, Any] = {}
+        for f in dataclasses.fields(StudySpec):
+            if f.default is not dataclasses.MISSING:
+                out[f.name] = f.default
+            elif f.default_factory is not dataclasses.MISSING:  # type: ignore[misc]
+                out[f.name] = f.default_factory()  # type: ignore[misc]
+        out.update(self.spec)
+        out["unlabeled_markers"] = tuple(out.get("unlabeled_markers") or ())
+        out["kinds"] = dict(out.get("kinds") or {})
+        out["pretrain"] = {k: dict(v) for k, v in (out.get("pretrain") or {}).items()}
+        return SimpleNamespace(**out)
+
     @property
     def seed(self) -> int | None:
         return as_int(self.spec.get("seed"))
+
+    # -- the table ------------------------------------------------------------------------
+    @property
+    def n_rows(self) -> int | None:
+        return self.data.n_rows
+
+    @property
+    def n_labeled(self) -> int | None:
+        return self.data.n_labeled
+
+    @property
+    def n_unlabeled(self) -> int | None:
+        """Unlabeled rows: as recorded, else rows minus labeled rows."""
+        if self.data.n_unlabeled is not None:
+            return self.data.n_unlabeled
+        if self.data.n_rows is not None and self.data.n_labeled is not None:
+            return self.data.n_rows - self.data.n_labeled
+        return None
+
+    @property
+    def class_counts(self) -> dict[str, int]:
+        return dict(self.data.class_counts)
+
+    @property
+    def imbalance_ratio(self) -> float | None:
+        """Largest / smallest labeled class count (the card's rule); None below two classes."""
+        counts = list(self.data.class_counts.values())
+        if len(counts) < 2:
+            return None
+        from ..data._card import imbalance_ratio
+
+        return imbalance_ratio(counts)
+
+    @property
+    def imbalanced(self) -> bool:
+        """Whether the labeled classes are imbalanced by the data card's one rule."""
+        from ..data._card import is_imbalanced
+
+        ratio = self.imbalance_ratio
+        return ratio is not None and is_imbalanced(ratio)
+
+    @property
+    def lead_metric(self) -> str:
+        """The metric a summary leads with: balanced accuracy when the labeled classes are
+        imbalanced (the data card's rule), else accuracy."""
+        return "balanced_accuracy" if self.imbalanced else "accuracy"
+
+    # -- the evaluation protocol ----------------------------------------------------------
+    @property
+    def evaluation_protocol(self) -> str:
+        """"cross_fit", "holdout" or "test_file" ("holdout" when study.json does not say)."""
+        if self.evaluation is None:
+            return "holdout"
+        return str(self.evaluation.protocol or "holdout").strip().lower().replace("-", "_")
+
+    @property
+    def n_eval(self) -> int | None:
+        """The smallest evaluation set of one repeat."""
+        return None if self.evaluation is None else self.evaluation.n_eval_min
+
+    @property
+    def n_rows_evaluated(self) -> int | None:
+        return None if self.evaluation is None else self.evaluation.n_rows_evaluated
+
+    @property
+    def folds(self) -> int | None:
+        return None if self.evaluation is None else self.evaluation.folds
+
+    @property
+    def n_repeats(self) -> int | None:
+        if self.evaluation is None:
+            return None
+        return self.evaluation.n_repeats or as_int(self.spec.get("repeats"))
+
+    @property
+    def n_round_rows(self) -> int:
+        """Labeled rows returned by labeling rounds: they train, never evaluate."""
+        return 0 if self.evaluation is None else int(self.evaluation.n_round_rows or 0)
+
+    @property
+    def evaluation_block(self) -> dict | None:
+        """study.json's evaluation block as written (None when absent)."""
+        return None if self.evaluation is None else dict(self.evaluation.raw)
+
+    @property
+    def shared_eval_rows(self) -> float | None:
+        """Effective size of the evaluation rows that all repeats share.
+
+        Their sampling error moves every repeat together, so the spread over repeats cannot
+        contain it and the plan adds it as ``p (1 - p) / shared_eval_rows``. A fixed holdout
+        or a test file: its size. Cross-fitting with at most one repeat per fold: None (each
+        repeat is scored on its own fold; the spread already holds that error). With more
+        repeats than folds the repeats of one fold share rows: the study's own
+        ``p (1 - p) / n_rows_evaluated * (R - folds) / (R - 1)`` as an effective size.
+        """
+        if self.evaluation_protocol == "cross_fit":
+            r, k, n = self.n_repeats, self.folds, self.n_rows_evaluated
+            if not (r and k and n) or r <= k:
+                return None
+            return n * (r - 1) / (r - k)
+        return self.n_eval if self.n_eval is not None else self.holdout_rows
+
+    @property
+    def eval_floor_rows(self) -> int | None:
+        """Under cross-fitting, the labeled rows evaluated over the whole study: the binomial
+        error of a proportion on that many rows is the least evaluation error the curve's
+        level can have (a floor for the spread over few folds); None otherwise."""
+        return self.n_rows_evaluated if self.evaluation_protocol == "cross_fit" else None
+
+    def summary_budget(self, budgets) -> int:
+        """The largest budget at which the repeats train on different rows.
+
+        With one evaluation set shared by every repeat (holdout, test file), a budget equal to
+        the whole pool gives every repeat the same training rows, so its range says nothing.
+        """
+        levels = sorted({int(b) for b in budgets})
+        ev = self.evaluation
+        pool = None if ev is None else ev.n_pool_min
+        if ev is not None and ev.shared_across_repeats and pool is not None and len(levels) > 1:
+            below = [b for b in levels if b < int(pool)]
+            if below:
+                return below[-1]
+        return levels[-1]
 
 
 def read_study_record(path: str | os.PathLike[str], error: type[Exception]) -> StudyRecord:
     """study.json at ``path`` (an empty record when the file is absent); a damaged file is
     one ``error`` line."""
-    path = Path(path)
-    if not path.is_file():
-        return StudyRecord()
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (ValueError, UnicodeDecodeError, OSError) as exc:
-        raise error(f"{path} is not valid JSON ({exc}); run the study again to rewrite it") \
-            from None
-    if not isinstance(data, dict):
-        raise error(f"{path} should hold a JSON object, found {type(data).__name__}; run the "
-                    "study again to rewrite it")
-    return StudyRecord.from_dict(data)
+    return StudyRecord.from_dict(read_json_object(path, error,
+                                                  fix="run the study again to rewrite it"))
 
 
 def read_curves(path: str | os.PathLike[str], error: type[Exception], *,

@@ -24,6 +24,7 @@ from ._cell import Cell, CellContext, cell_key, cell_seed
 from ._design import make_design
 from ._draws import acquisition_orders
 from ._exports import cells_frame, write_data_card, write_exports
+from ._folder import StudyRecord
 from ._info import PROTOCOL_NOTES, study_info
 from ._layout import check_input_outside_outputs, check_out_folder, remove_outputs
 from ._lock import study_lock
@@ -57,7 +58,8 @@ class StudyResult:
         ]
         ok = c[(c["status"] == "ok") & (c["strategy"] == "random")] if len(c) else c
         if len(ok):
-            metric, at_n = summary_metric(self.info), summary_budget(self.info, ok["n_labels"])
+            record = StudyRecord.from_dict(self.info)
+            metric, at_n = record.lead_metric, record.summary_budget(ok["n_labels"])
             at = ok[ok["n_labels"] == at_n].groupby("method")[metric].agg(["mean", "min", "max",
                                                                           "size"])
             at = at.sort_values("mean", ascending=False)
@@ -74,33 +76,6 @@ class StudyResult:
                          f"evaluation rows and settings), {run['run']} run now")
         lines.append(f"wrote cells.csv, curves.csv, study.json, candidates.npz in {self.out_dir}")
         return "\n".join(lines)
-
-
-def summary_metric(info: dict) -> str:
-    """Balanced accuracy when the labeled classes are imbalanced (the data card's rule), else
-    accuracy."""
-    from ..data._card import imbalance_ratio, is_imbalanced
-
-    counts = list(((info.get("data") or {}).get("class_counts") or {}).values())
-    if counts and is_imbalanced(imbalance_ratio(counts)):
-        return "balanced_accuracy"
-    return "accuracy"
-
-
-def summary_budget(info: dict, budgets: pd.Series) -> int:
-    """The largest budget at which the repeats train on different rows.
-
-    With one evaluation set shared by every repeat (holdout, test file), a budget equal to the
-    whole pool gives every repeat the same training rows, so its range says nothing.
-    """
-    levels = sorted({int(b) for b in budgets})
-    evaluation = info.get("evaluation") or {}
-    pool = evaluation.get("n_pool_min")
-    if evaluation.get("shared_across_repeats") and pool is not None and len(levels) > 1:
-        below = [b for b in levels if b < int(pool)]
-        if below:
-            return below[-1]
-    return levels[-1]
 
 
 def run_study(
