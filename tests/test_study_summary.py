@@ -43,3 +43,19 @@ def test_summary_prints_the_chosen_metric_and_budget(tmp_path):
     text = result.summary()
     assert "balanced accuracy on the evaluation rows at 10 labels" in text
     assert "0.550  (0.500-0.600, 2 repeats)" in text
+
+
+def test_card_plan_and_summary_share_one_imbalance_rule():
+    # A 4:1 table: the card's rule (ratio >= 3, common practice, no source) calls it
+    # imbalanced, so the summary leads with balanced accuracy and the plan warns; before the
+    # one record the plan used 5 and stayed silent here.
+    from semisup.data._card import imbalance_ratio, is_imbalanced
+    from semisup.plan import data_warnings
+
+    counts = {"a": 80, "b": 20}
+    assert is_imbalanced(imbalance_ratio(counts.values()))
+    record = StudyRecord.from_dict(_info(counts, False, 80))
+    assert record.lead_metric == "balanced_accuracy"
+    assert any("imbalanced (largest/smallest = 4.0)" in w for w in data_warnings(record))
+    balanced = StudyRecord.from_dict(_info({"a": 55, "b": 45}, False, 80))
+    assert balanced.lead_metric == "accuracy" and not data_warnings(balanced)
