@@ -181,3 +181,25 @@ def test_track_sentence_picks_nearest_ratio():
     assert "42 real tables" in text and "0.025" in text and "0.031" in text and "88%" in text
     assert "4 times" in track_sentence(p, 3.5)
     assert track_sentence(ContinuationPrior((0.0,), (0,), (0,), (0,), (1.6,), 1, 1), 2) == ""
+
+
+def test_fitted_curve_meets_the_continuation_without_a_jump():
+    # On a real curve (scikit-learn's breast cancer, corpus user of 200 labels) the curve
+    # fitted within the measured budgets is phased into the continuation over the last
+    # measured step: between neighbouring grid points (about 2-5% apart in budget) at the
+    # largest measured budget the forecast moves by under 0.003 (a learning curve rises far
+    # less over so small a step; common practice, no source). Without the phasing the line
+    # jumped there by the gap between the fitted curve and the continuation's level.
+    cells = _real_curve().assign(strategy="random")
+    prior = ContinuationPrior((0.0, 1.0, 2.0), (-0.03, 0.0, 0.005), (0.3, 0.8, 1.2),
+                              (0.01, 0.015, 0.02), (1.645, 1.645, 1.645), 10, 30)
+    kw = dict(seed=0, interval=0.9, n_boot=60, eval_rows=None, eval_floor_rows=200,
+              labels_owned=200, option_args={"target": 0.95, "confidence": 0.8,
+                                             "label_price": 1.0, "labels_owned": 200,
+                                             "cost_per_round": 0.0})
+    fc = forecast_all(cells, "accuracy", ["accuracy"], prior=prior, **kw)
+    n_max = cells["n_labels"].max()
+    for key, band in fc.bands.items():
+        a = int(np.searchsorted(band.grid, n_max))
+        assert band.grid[a] == n_max
+        assert abs(band.point[a] - band.point[a - 1]) < 0.003, key

@@ -176,14 +176,18 @@ class Plan:
         evaluated = self.labels.get("evaluation_text")
         if evaluated:
             lines.append(f"How the labels are evaluated: {evaluated}")
+        # with the corpus continuation, the check is of the curve fitted within the measured
+        # budgets; the continuation beyond them has its own track record (below)
+        check = ("Check of the fitted curve of" if self.evidence.get("continuation")
+                 else "Check of")
         for b in self.backtest:
             if b.get("covered") is None:
-                lines.append(f"Check of {b['method']} ({b['strategy']}): not possible, "
+                lines.append(f"{check} {b['method']} ({b['strategy']}): not possible, "
                              f"{b.get('reason', '')}.")
             else:
                 pred = b["predicted"]
                 lines.append(
-                    f"Check of {b['method']} ({b['strategy']}): refitted without its "
+                    f"{check} {b['method']} ({b['strategy']}): refitted without its "
                     f"{b['n_labels']:,}-label budget it predicted {m} "
                     f"{forecast_value(pred['mean'])} ({INTERVAL:.0%} interval "
                     f"{forecast_span(pred['low'], pred['high'])}) there; measured "

@@ -132,6 +132,17 @@ def _continue(band: CurveBand, own_var: np.ndarray, n: np.ndarray, metric: np.nd
     eff = sd * scale / _Z90
     z = np.random.default_rng(seed).standard_normal((band.samples.shape[0], 1))
     point, samples = band.point.copy(), band.samples.copy()
+    # The fitted curve meets the continuation at n_max: its offset there is phased in over
+    # the last measured step (linear in log budget), so the line has no jump at n_max.
+    budgets = np.unique(np.asarray(n, dtype=float))
+    below = budgets[budgets < summary.n_max * (1 - 1e-9)]
+    if below.size and beyond.any():
+        at = int(np.argmax(beyond))
+        offset = (1.0 - mean[0]) - point[at]
+        step = (band.grid > below[-1]) & ~beyond
+        w = np.log(band.grid[step] / below[-1]) / np.log(summary.n_max / below[-1])
+        point[step] += offset * w
+        samples[:, step] += offset * w
     point[beyond] = 1.0 - mean
     samples[:, beyond] = 1.0 - (mean + eff * z)
     own = own_var.copy()

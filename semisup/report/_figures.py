@@ -86,7 +86,8 @@ class BudgetFacts:
 def interval_name(level: float | None, kind: str, n_repeats: Sequence[int] = (), *,
                   brief: bool = False) -> str:
     """``"95% interval of the measured mean over 5 repeats (Student-t)"`` or ``"90% interval
-    of the forecast (bootstrap)"``; ``brief`` gives the short form for a table header
+    of the forecast (bootstrap)"`` (kind ``"continued"``: the plan continued the curves
+    beyond the largest measured budget with the corpus prior); ``brief`` gives the short form for a table header
     (``"90% interval"``)."""
     lvl = f"{level:.0%} " if level else ""
     if brief:
@@ -96,6 +97,9 @@ def interval_name(level: float | None, kind: str, n_repeats: Sequence[int] = (),
         over = ("" if not reps else f" over {reps[0]} repeats" if len(reps) == 1
                 else f" over {reps[0]}\u2013{reps[-1]} repeats")
         return f"{lvl}interval of the measured mean{over} (Student-t)"
+    if kind == "continued":
+        return (f"{lvl}interval of the forecast (bootstrap up to the largest measured budget; "
+                "beyond it, how real curves continued)")
     return f"{lvl}interval of the forecast (bootstrap)"
 
 

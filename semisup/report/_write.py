@@ -294,7 +294,8 @@ def _curves_section(curves, plan, record: StudyRecord, card: Mapping, figures_di
         metrics.insert(0, plan_metric)
     _measured_table(s, record, curves, plan, card)
     measured_kind = interval_name(_measured_level(curves, plan), "repeat", _repeats(curves))
-    fitted_kind = interval_name((plan or {}).get("interval"), "bootstrap")
+    fitted_kind = interval_name((plan or {}).get("interval"),
+                                "continued" if (plan or {}).get("continuation") else "bootstrap")
     fitted = (~curves["measured"]).any()
     # the upper axis (training + evaluation labels) only where a fixed holdout is set aside
     holdout = record.evaluation_protocol == "holdout"
