@@ -119,8 +119,8 @@ class Plan:
     #: the last plan made from an earlier study state: what it expected at its choice and
     #: what this plan forecasts there ({} when there is none)
     previous: dict = field(default_factory=dict)
-    #: study.json as read (the annotator sheet reads the table it names)
-    study: dict = field(default_factory=dict, repr=False, compare=False)
+    #: the study's record (the annotator sheet reads the table it names)
+    record: StudyRecord = field(default_factory=StudyRecord, repr=False, compare=False)
 
     @property
     def reached(self) -> bool:
@@ -471,8 +471,7 @@ class PlanInputs:
     study_dir: Path
     cells: pd.DataFrame = field(repr=False)
     state: dict
-    study: dict = field(repr=False)
-    record: StudyRecord
+    record: StudyRecord = field(repr=False)
     candidates: dict | None = field(repr=False)
     #: earlier plans (oldest first) with their forecast points
     earlier: tuple[tuple[dict, pd.DataFrame | None], ...] = field(repr=False)
@@ -494,7 +493,7 @@ def read_inputs(study_dir: str | os.PathLike[str]) -> PlanInputs:
     state = study_state(study, raw)  # cells.csv and study.json are read once
     record = StudyRecord.with_card(study, read_json(study_dir / "data_card.json"))
     earlier = tuple((p, read_forecast(study_dir, p)) for p in list_plans(study_dir))
-    return PlanInputs(study_dir=study_dir, cells=cells, state=state, study=study, record=record,
+    return PlanInputs(study_dir=study_dir, cells=cells, state=state, record=record,
                       candidates=read_candidates(study_dir), earlier=earlier,
                       measured=read_measured(study_dir),
                       previous=read_json(study_dir / "plan.json"))
@@ -644,7 +643,7 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
                         f"study: {prev_status.reason}"
                         if prev_status is not None and prev_status.stale else ""),
         previous=previous_choice(earlier_plans, state, curves, options, metric),
-        study=dict(inputs.study))
+        record=inputs.record)
 
 
 def write_plan(plan: Plan, *, sheet_format: str = "csv") -> Plan:
@@ -658,9 +657,9 @@ def write_plan(plan: Plan, *, sheet_format: str = "csv") -> Plan:
     kept = study_dir / PLANS_FOLDER
     atomic_write_text(kept / f"{plan.name}{FORECAST_SUFFIX}", plan.curves.to_csv(index=False))
     if plan.label_next_written:
-        table, id_column, label_column, sw = read_study_table(plan.study)
+        table, id_column, label_column, sw = read_study_table(plan.record)
         sheet, more = annotator_sheet(plan.label_next, table, id_column=id_column,
-                                      label_column=label_column, study=plan.study)
+                                      label_column=label_column, record=plan.record)
         if sw or more:
             plan = replace(plan, warnings=(*plan.warnings, *sw, *more))
         write_sheet(sheet, study_dir, plan.sheet_format)

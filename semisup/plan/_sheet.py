@@ -10,7 +10,6 @@ every cell a spreadsheet would run as a formula (:func:`semisup._escape.neutrali
 from __future__ import annotations
 
 import logging
-from collections.abc import Mapping
 from pathlib import Path
 
 import pandas as pd
@@ -19,7 +18,7 @@ from .._atomic import atomic_path
 from .._errors import PlanError, SemisupError
 from .._escape import neutralise_frame, restore_cell
 from .._tables_out import write_table
-from ..study import SHEET_STUDY_COLUMN, study_id
+from ..study import SHEET_STUDY_COLUMN, StudyRecord, study_id
 from ._label_next import LABEL_NEXT_COLUMNS
 
 __all__ = ["SHEET_FORMATS", "annotator_sheet", "check_sheet_format", "read_study_table",
@@ -28,7 +27,7 @@ __all__ = ["SHEET_FORMATS", "annotator_sheet", "check_sheet_format", "read_study
 log = logging.getLogger(__name__)
 
 
-def read_study_table(study: Mapping) -> tuple[pd.DataFrame | None, str | None, str | None,
+def read_study_table(record: StudyRecord) -> tuple[pd.DataFrame | None, str | None, str | None,
                                                 list[str]]:
     """The study's own table, indexed by row id, with its id and label column names.
 
@@ -38,7 +37,7 @@ def read_study_table(study: Mapping) -> tuple[pd.DataFrame | None, str | None, s
     from ..data import read_table
     from ..study._integrity import recorded_table, study_table
 
-    spec = study.get("spec") if isinstance(study.get("spec"), Mapping) else {}
+    spec, study = record.spec, record.raw
     path = recorded_table(study, ".")[0]  # by its absolute path, whatever the current folder
     label_column = spec.get("label_column")
     id_column = spec.get("id_column")
@@ -71,7 +70,7 @@ def read_study_table(study: Mapping) -> tuple[pd.DataFrame | None, str | None, s
 
 def annotator_sheet(ranked: pd.DataFrame, table: pd.DataFrame | None, *,
                     id_column: str | None, label_column: str | None,
-                    study: Mapping) -> tuple[pd.DataFrame, list[str]]:
+                    record: StudyRecord) -> tuple[pd.DataFrame, list[str]]:
     """The sheet an annotator fills in, neutralised for spreadsheets.
 
     Columns: ``rank, row_id, reason``, the label column (empty, named after the study's label
@@ -100,7 +99,7 @@ def annotator_sheet(ranked: pd.DataFrame, table: pd.DataFrame | None, *,
                             "table any more; their data columns are left empty")
         rows = table.reindex(ids.to_numpy())[own].reset_index(drop=True)
         sheet = pd.concat([sheet.reset_index(drop=True), rows], axis=1)
-    sheet[SHEET_STUDY_COLUMN] = study_id(study) or ""
+    sheet[SHEET_STUDY_COLUMN] = study_id(record) or ""
     # Ids, values and column names like "=HYPERLINK(...)" would run as formulas when an
     # annotator opens the sheet (OWASP, "CSV Injection").
     return neutralise_frame(sheet), warnings
