@@ -7,7 +7,10 @@ points), ``plan.json`` (the latest plan, with the earlier plans' track record) a
 annotator sheet ``label_next.csv`` (or ``.xlsx``); the maths underneath is exposed as pure
 functions (the curve families and their fits, the bootstrap, the rolling-origin backtests,
 the family weights, the calibration, the shrinkage, the cost helpers and ``choose``) so it
-can be checked on its own.
+can be checked on its own. What the plan knows of the study comes from the study folder's one
+record, :class:`semisup.study.StudyRecord`; beyond the largest measured budget the curves are
+continued with the prior learned from real curves (``_continuation.py``,
+``continuation.json``, built by ``experiments/curves``).
 """
 
 from __future__ import annotations
