@@ -167,6 +167,15 @@ def test_forecast_all_with_prior_on_a_real_curve():
     half = (band.high[j] - band.low[j]) / 2
     assert half == pytest.approx(stats.norm.ppf(0.95) * sd[0], rel=0.35)
     assert key in fc.continued and fc.prior is prior
+    # the chance of reaching a target is the normal's (scipy) up to the 1/60 of the samples'
+    # grid: the draws sit at the normal's quantiles, not at 60 random points
+    from semisup.plan._bootstrap import probability_meets
+
+    eff = half / stats.norm.ppf(0.95)
+    for gap in (-0.02, 0.0, 0.01):
+        target = 1 - band.point[j] + gap
+        p = probability_meets(1 - band.samples[:, j], target)
+        assert p == pytest.approx(stats.norm.sf(gap / eff), abs=0.03)
 
 
 def test_track_sentence_picks_nearest_ratio():
