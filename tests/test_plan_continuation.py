@@ -146,15 +146,21 @@ def test_shrink_moves_levels_not_shapes():
 
 
 @pytest.mark.slow
-def test_forecast_all_with_prior_on_a_real_curve():
+def _forecast_real_curve(shift0: float):
+    """The plan's forecasts of the real curve's study with a hand-made prior (shift ``shift0``
+    at 1x): the cells, the prior and the forecasts."""
     cells = _real_curve().assign(strategy="random")
-    prior = ContinuationPrior((0.0, 1.0, 2.0), (-0.01, 0.0, 0.005), (0.3, 0.8, 1.2),
+    prior = ContinuationPrior((0.0, 1.0, 2.0), (shift0, 0.0, 0.005), (0.3, 0.8, 1.2),
                               (0.01, 0.015, 0.02), (1.645, 1.645, 1.645), 10, 30)
     kw = dict(seed=0, interval=0.9, n_boot=60, eval_rows=None, eval_floor_rows=200,
               labels_owned=200, option_args={"target": 0.95, "confidence": 0.8,
                                              "label_price": 1.0, "labels_owned": 200,
                                              "cost_per_round": 0.0})
-    fc = forecast_all(cells, "accuracy", ["accuracy"], prior=prior, **kw)
+    return cells, prior, forecast_all(cells, "accuracy", ["accuracy"], prior=prior, **kw)
+
+
+def test_forecast_all_with_prior_on_a_real_curve():
+    cells, prior, fc = _forecast_real_curve(-0.01)
     key = ("supervised-logreg", "random", "accuracy")
     band = fc.bands[key]
     c = cells[cells["method"] == "supervised-logreg"]
@@ -199,14 +205,7 @@ def test_fitted_curve_meets_the_continuation_without_a_jump():
     # largest measured budget the forecast moves by under 0.003 (a learning curve rises far
     # less over so small a step; common practice, no source). Without the phasing the line
     # jumped there by the gap between the fitted curve and the continuation's level.
-    cells = _real_curve().assign(strategy="random")
-    prior = ContinuationPrior((0.0, 1.0, 2.0), (-0.03, 0.0, 0.005), (0.3, 0.8, 1.2),
-                              (0.01, 0.015, 0.02), (1.645, 1.645, 1.645), 10, 30)
-    kw = dict(seed=0, interval=0.9, n_boot=60, eval_rows=None, eval_floor_rows=200,
-              labels_owned=200, option_args={"target": 0.95, "confidence": 0.8,
-                                             "label_price": 1.0, "labels_owned": 200,
-                                             "cost_per_round": 0.0})
-    fc = forecast_all(cells, "accuracy", ["accuracy"], prior=prior, **kw)
+    cells, _, fc = _forecast_real_curve(-0.03)
     n_max = cells["n_labels"].max()
     for key, band in fc.bands.items():
         a = int(np.searchsorted(band.grid, n_max))
