@@ -86,8 +86,8 @@ def test_tuning_a_large_cell_searches_once_per_scaling_and_picks_the_same():
 
 def test_large_cell_rule_and_the_cells_that_follow_it():
     # The rule: the rows a cell may see unlabeled, less its draw, are more than the cap.
-    assert large_cell(20_051, 50, 20_000) is True
-    assert large_cell(20_050, 50, 20_000) is False
+    assert large_cell(5_051, 50, 5_000) is True
+    assert large_cell(5_050, 50, 5_000) is False
     X, y = load_breast_cancer(return_X_y=True)
     features = {"raw": X.astype(np.float32)}
     labeled = np.arange(0, 100)
