@@ -16,7 +16,12 @@ second and prints:
   million rows (goal: predict under 2 minutes).
 
 ``--stop-after S`` ends the study with SIGTERM after S seconds (as a scheduler's time limit
-would) and reports how far it got. The load average is printed: the machine may be shared.
+would) and reports how far it got: cells done, seconds per cell by method (wall and, from the
+store, each cell's own clock) and the progress lines' interval. The load average is printed,
+and the CPU seconds (user + sys) of the whole process tree beside the wall time: the machine
+may be shared. ``--reuse-stage FOLDER`` copies an earlier study's ``cache/`` (the fitted
+unsupervised stage of the same table and settings) into the new study folder first, so a run
+that measures the cells does not fit the stage again (its own time is in the earlier run).
 
     nice -n 5 env PYTHONPATH=. python benchmarks/bench_large_study.py --after
     PYTHONPATH=. python benchmarks/bench_large_study.py --rows 30000      # a smoke run
@@ -27,6 +32,8 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import resource
+import shutil
 import signal
 import subprocess
 import sys
@@ -137,6 +144,7 @@ def run_logged(cmd: list[str], log_path: Path, stop_after: float | None = None) 
     gaps between its log lines."""
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
     stamps: list[float] = []
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.monotonic()
     with log_path.open("w", encoding="utf-8") as log:
         proc = subprocess.Popen(cmd, stdout=log, stderr=subprocess.STDOUT, env=env,
@@ -158,13 +166,38 @@ def run_logged(cmd: list[str], log_path: Path, stop_after: float | None = None) 
         wall = time.monotonic() - t0
         monitor.stop.set()
         monitor.join()
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)  # the tree, once every process ended
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     points = [0.0, *stamps, wall]
     gaps = [b - a for a, b in zip(points, points[1:], strict=False)]
-    return {"seconds": wall, "exit": proc.returncode, "stopped": stopped,
+    return {"seconds": wall, "cpu_seconds": cpu, "exit": proc.returncode, "stopped": stopped,
             "peak_rss_bytes": monitor.peak_rss, "peak_pss_bytes": monitor.peak_pss,
             "peak_processes": monitor.peak_procs, "log_lines": len(stamps),
             "longest_silence_seconds": max(gaps),
             "log_tail": log_path.read_text(encoding="utf-8", errors="replace")[-2500:]}
+
+
+def _cells_done(out: Path) -> dict:
+    """Cells stored so far and each method's mean seconds per cell (the cells' own clocks)."""
+    import sqlite3
+
+    path = out / "study.sqlite"
+    if not path.exists():
+        return {}
+    con = sqlite3.connect(path)
+    try:
+        rows = con.execute("select method, status, seconds from cells").fetchall()
+    except sqlite3.Error:
+        return {}
+    finally:
+        con.close()
+    per: dict[str, list[float]] = {}
+    for method, _, seconds in rows:
+        per.setdefault(method, []).append(float(seconds or 0.0))
+    return {"cells_stored": len(rows),
+            "cells_ok": sum(1 for r in rows if r[1] == "ok"),
+            "seconds_per_cell": {m: round(sum(v) / len(v), 1) for m, v in sorted(per.items())},
+            "cells_per_method": {m: len(v) for m, v in sorted(per.items())}}
 
 
 def main() -> None:
@@ -174,6 +207,8 @@ def main() -> None:
     ap.add_argument("--workdir", type=Path, default=None)
     ap.add_argument("--stop-after", type=float, default=None, metavar="S")
     ap.add_argument("--after", action="store_true", help="plan, report, fit, predict too")
+    ap.add_argument("--reuse-stage", type=Path, default=None, metavar="FOLDER",
+                    help="copy FOLDER/cache (an earlier study of the same table) first")
     ap.add_argument("--extra", nargs=argparse.REMAINDER, default=[],
                     help="more arguments for semisup study")
     args = ap.parse_args()
@@ -183,9 +218,14 @@ def main() -> None:
           f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores", flush=True)
     py = sys.executable
     out = work / "study"
+    start = ["--restart"]
+    if args.reuse_stage:
+        shutil.rmtree(out, ignore_errors=True)
+        shutil.copytree(args.reuse_stage / "cache", out / "cache")
+        start = []  # a new folder holding only the stage's cache: nothing to restart
     study = run_logged([py, "-m", "semisup", "study", str(table), "--label-column", "y",
                         "--id-column", "rid", "--jobs", str(args.jobs), "--out", str(out),
-                        "--restart", *args.extra], work / "study.log", args.stop_after)
+                        *start, *args.extra], work / "study.log", args.stop_after)
     info_path = out / "study.json"
     n_cols = None
     if info_path.exists():
@@ -195,6 +235,7 @@ def main() -> None:
         study["pretrain_seconds"] = info["timing"]["pretrain_seconds"]
         study["status_counts"] = info["status_counts"]
     matrix = args.rows * (n_cols or 0) * 4
+    study.update(_cells_done(out))
     print(json.dumps({k: v for k, v in study.items() if k != "log_tail"}, indent=1))
     print(study["log_tail"])
     gb = 1024**3
@@ -206,6 +247,8 @@ def main() -> None:
              f"({matrix / gb:.2f} GB, {n_cols} columns)" if matrix else ""))
     print(f"longest silence of the log: {study['longest_silence_seconds']:.0f}s "
           f"(goal {GOAL_GAP:.0f}s), {study['log_lines']} lines")
+    print(f"CPU seconds of the process tree (user + sys): {study['cpu_seconds']:.0f} "
+          f"({study['cpu_seconds'] / study['seconds']:.2f} cores busy on average)")
     if args.after and study["exit"] == 0:
         steps = {
             "plan": [py, "-m", "semisup", "plan", str(out), "--target", "accuracy=0.8",

@@ -18,6 +18,10 @@ shared with other jobs wall time mostly measures the queue for a core.
 
     PYTHONPATH=. nice -n 10 python benchmarks/bench_predict.py                 # 1,000,000 rows
     PYTHONPATH=. python benchmarks/bench_predict.py --rows 100000 --formats parquet
+
+``--methods`` picks other models (the graph methods predict through a k-nearest-neighbour
+search over the rows they were fitted on: the labeled rows plus ``--unlabeled`` unlabeled
+rows, the final model's cap); ``--steps`` the steps run.
 """
 
 from __future__ import annotations
@@ -91,7 +95,8 @@ def make_table(n_rows: int, seed: int) -> tuple[pd.DataFrame, np.ndarray]:
     return frame, y
 
 
-def build_models(folder: Path) -> dict[str, Path]:
+def build_models(folder: Path, names=("supervised-logreg", "latent-logreg"),
+                 n_unlabeled: int = 18_000) -> dict[str, Path]:
     import warnings
 
     from semisup.data import dataset_from_frame
@@ -103,11 +108,12 @@ def build_models(folder: Path) -> dict[str, Path]:
     frame, y = make_table(20_000, seed=1)
     frame["outcome"] = np.asarray(list("pqr"), dtype=object)[y]
     frame.loc[2_000:, "outcome"] = None
+    frame = frame.iloc[:2_000 + n_unlabeled]
     ds = dataset_from_frame(frame, label_column="outcome", id_column="record_id")
     vae, _ = fit_representation("vae", ds.X, blocks=ds.blocks, params={"max_epochs": 10})
     threshold = float(np.quantile(vae.score_samples(ds.X), FLAG_QUANTILE))
     paths = {}
-    for name in ("supervised-logreg", "latent-logreg"):
+    for name in names:
         m = get_method(name)
         stage = vae if m.representation == "vae" else None
         X = ds.X if stage is None else np.asarray(stage.transform(ds.X), dtype=np.float32)
@@ -141,15 +147,20 @@ def main() -> None:
     parser.add_argument("--chunk-rows", type=int, default=100_000)
     parser.add_argument("--formats", default="parquet,csv")
     parser.add_argument("--workdir", type=Path, default=None)
+    parser.add_argument("--methods", default="supervised-logreg,latent-logreg")
+    parser.add_argument("--unlabeled", type=int, default=18_000,
+                        help="unlabeled rows the models are fitted with (at most 18,000)")
+    parser.add_argument("--steps", default="bare,in-memory,semisup")
     args = parser.parse_args()
     work = args.workdir or Path(tempfile.mkdtemp(prefix="bench-predict-"))
     work.mkdir(parents=True, exist_ok=True)
     t = time.perf_counter()
-    names = ("supervised-logreg", "latent-logreg")
+    names = tuple(args.methods.split(","))
+    steps = tuple(args.steps.split(","))
     if all((work / n / "manifest.json").is_file() for n in names):
         models = {n: work / n for n in names}  # same seeds: the same models as a refit
     else:
-        models = build_models(work)
+        models = build_models(work, names, args.unlabeled)
         print(f"models fitted in {time.perf_counter() - t:.1f} s", flush=True)
     frame, _ = make_table(args.rows, seed=2)
     files = {}
@@ -170,11 +181,15 @@ def main() -> None:
     for name, model in models.items():
         for fmt, path in files.items():
             res = {w: run_child(w, model, path, work / "pred.csv", args.chunk_rows)
-                   for w in ("bare", "in-memory", "semisup")}
+                   for w in steps}
+
+            def ratio(r, ref, res=res):
+                return f"{r['cpu_seconds'] / res[ref]['cpu_seconds']:.2f}" if ref in res else "-"
+
             for w, r in res.items():
                 print(f"| {name} | {fmt} | {w} | {r['seconds']:.2f} | {r['cpu_seconds']:.2f} | "
-                      f"{r['peak_mb']:.0f} | {r['cpu_seconds'] / res['bare']['cpu_seconds']:.2f} "
-                      f"| {r['cpu_seconds'] / res['in-memory']['cpu_seconds']:.2f} |", flush=True)
+                      f"{r['peak_mb']:.0f} | {ratio(r, 'bare')} | {ratio(r, 'in-memory')} |",
+                      flush=True)
     print(f"\nload average {os.getloadavg()[0]:.1f} at the end")
 
 if __name__ == "__main__":

@@ -222,3 +222,35 @@ def test_stage_rows_reproduce_the_study_cache_key(study, tmp_path):
     result = fit_model(copy, method="latent-logreg")
     assert result.report["unsupervised_stage"] == "reused from the study's cache"
     assert sorted(p.name for p in (copy / "cache").iterdir()) == entries  # nothing refitted
+
+
+def test_stage_refit_without_cache_uses_the_study_sample_rule(study, tmp_path, monkeypatch):
+    # With the cache gone, the refit fits on the rows the study's own rule gives
+    # (study._representations.stage_fit_rows: a seeded sample past stage_rows), not on every
+    # row. stage_rows is lowered in study.json below the table's 178 wine rows to make the
+    # rule sample (the spec's own check allows no value that small; study.json is read as is).
+    import shutil
+
+    import semisup.pretrain
+    from semisup.study._representations import stage_sample
+
+    copy = tmp_path / "study"
+    shutil.copytree(study, copy)
+    shutil.rmtree(copy / "cache")
+    info = json.loads((copy / "study.json").read_text())
+    info["spec"]["stage_rows"] = 100
+    (copy / "study.json").write_text(json.dumps(info))
+    seen = []
+    real = semisup.pretrain.fit_representation
+
+    def recording(kind, X, **kwargs):
+        seen.append(np.asarray(X).copy())
+        return real(kind, X, **kwargs)
+
+    monkeypatch.setattr(semisup.pretrain, "fit_representation", recording)
+    result = fit_model(copy, method="latent-logreg")
+    assert result.report["unsupervised_stage"] == "refitted as the study did"
+    X_all = result.model.encode(wine_frame()[0])
+    want = X_all[stage_sample(np.arange(len(X_all)), 100, info["spec"]["seed"])]
+    assert len(seen) >= 1 and seen[0].shape == want.shape == (100, X_all.shape[1])
+    np.testing.assert_allclose(seen[0], want, rtol=0, atol=1e-6)

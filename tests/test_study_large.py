@@ -105,6 +105,21 @@ def test_stage_rows_all_keeps_a_full_draw_per_repeat(tmp_path, roles, big):
     assert (tmp_path / "cache" / "fits-vae.txt").read_text().split() == [str(len(big.y))] * 3
 
 
+def test_study_json_says_when_cells_pass_max_unlabeled(tmp_path, roles, big):
+    # 1,500 unlabeled rows: past a cap of 1,000 every cell is large, under the default not.
+    from semisup.study._info import LARGE_CELLS_NOTE
+
+    for cap, large in ((1000, True), (None, False)):
+        out = tmp_path / str(cap)
+        extra = {} if cap is None else {"max_unlabeled": cap}
+        result = run_study(_spec([roles["selftrain"]], repeats=1, **extra), out, dataset=big,
+                           representation_fn=pca_representation, progress=False, jobs=1)
+        info = json.loads((out / "study.json").read_text())
+        assert (LARGE_CELLS_NOTE in info["protocol"]) is large
+        used = set(result.cells["n_unlabeled_used"])
+        assert used == ({1000} if large else {int(np.sum(big.y < 0)) + 200 - 20 - 40})
+
+
 @pytest.mark.parametrize("value", [10, 999, "some", 2.5, True])
 def test_bad_stage_rows_is_one_line(value):
     with pytest.raises(ConfigError, match="stage_rows"):

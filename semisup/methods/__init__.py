@@ -12,6 +12,7 @@ from ._base import PartiallyLabeledClassifier, labeled_mask
 from ._calibration import FewLabelCalibratedClassifier
 from ._classic import CalibratedSelfTraining, KNNLabelSpreading
 from ._density_self_training import DensitySelfTrainingGBT
+from ._graph import NeighbourCache
 from ._keep_raw import KeepRawFeatures, raw_and_latent
 from ._m2 import M2Classifier
 from ._m2_config import M2Config
@@ -45,6 +46,7 @@ __all__ = [
     "MethodSpec",
     "MethodUnavailable",
     "MixtureEMClassifier",
+    "NeighbourCache",
     "PartiallyLabeledClassifier",
     "align_proba",
     "default_methods",

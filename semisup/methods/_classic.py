@@ -2,6 +2,8 @@
 
 - :class:`KNNLabelSpreading`: label spreading (Zhou et al. 2004) on a k-nearest-neighbour
   graph, so memory stays linear in rows; used on the encoded table and on the VAE latent.
+  Given a :class:`~semisup.methods._graph.NeighbourCache` it takes its neighbour lists from
+  there (one search shared by the fits of a study cell).
 - :class:`CalibratedSelfTraining`: scikit-learn's ``SelfTrainingClassifier`` around a logistic
   regression calibrated with :class:`FewLabelCalibratedClassifier`.
 """
@@ -20,6 +22,7 @@ from sklearn.semi_supervised import LabelSpreading, SelfTrainingClassifier
 from .._errors import ConfigError, FitWarning
 from ._base import PartiallyLabeledClassifier
 from ._calibration import FewLabelCalibratedClassifier
+from ._graph import NeighbourCache, connectivity, neighbour_sum_proba
 from ._spec import Variant, register_variants
 
 __all__ = ["CalibratedSelfTraining", "KNNLabelSpreading"]
@@ -48,6 +51,13 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
         labels) spreading on the standardised pixels reached 0.657 / 0.885 / 0.929, on the
         raw pixels 0.735 / 0.916 / 0.940 and on min-max scaled standardised pixels 0.730 /
         0.917 / 0.938.
+    graph_cache : NeighbourCache or None
+        Where the neighbour lists come from. None (the default): scikit-learn's
+        ``LabelSpreading(kernel="knn")`` searches them in every fit. A cache searches each
+        matrix once (at its ``min_neighbors``) and hands the first ``n_neighbors`` of the
+        lists to every fit of the same rows in the same order; the graph, the spreading and
+        the probabilities are scikit-learn's (tested against ``kernel="knn"``). Ties between
+        equally distant rows may fall otherwise than in a search of exactly ``n_neighbors``.
     """
 
     uses_unlabeled = True
@@ -62,12 +72,14 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
         }
 
     def __init__(self, n_neighbors: int = 7, alpha: float = 0.2, max_iter: int = 30,
-                 tol: float = 1e-3, scaling: str = "minmax"):
+                 tol: float = 1e-3, scaling: str = "minmax",
+                 graph_cache: NeighbourCache | None = None):
         self.n_neighbors = n_neighbors
         self.alpha = alpha
         self.max_iter = max_iter
         self.tol = tol
         self.scaling = scaling
+        self.graph_cache = graph_cache
 
     def _fit_encoded(self, X, y_code):
         if self.scaling not in SCALINGS:
@@ -78,7 +90,12 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
         self.scaler_ = MinMaxScaler().fit(X) if self.scaling == "minmax" else None
         X = self._scaled(X)
         k = int(max(1, min(self.n_neighbors, X.shape[0] - 1)))
-        model = LabelSpreading(kernel="knn", n_neighbors=k, alpha=self.alpha,
+        self.index_ = None
+        kernel = "knn"
+        if self.graph_cache is not None:
+            indices, self.index_ = self.graph_cache.search(X, k)
+            kernel = _FixedGraph(connectivity(indices))
+        model = LabelSpreading(kernel=kernel, n_neighbors=k, alpha=self.alpha,
                                max_iter=self.max_iter, tol=self.tol)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", ConvergenceWarning)
@@ -99,7 +116,24 @@ class KNNLabelSpreading(PartiallyLabeledClassifier):
     def _proba_encoded(self, X):
         with np.errstate(invalid="ignore", divide="ignore"):
             # columns are codes 0..n_classes-1
-            return self.model_.predict_proba(self._scaled(X))
+            if getattr(self, "index_", None) is None:  # also models saved before the cache
+                return self.model_.predict_proba(self._scaled(X))
+            indices = self.index_.kneighbors(self._scaled(X), self.model_.n_neighbors,
+                                             return_distance=False)
+            return neighbour_sum_proba(self.model_.label_distributions_, indices)
+
+
+class _FixedGraph:
+    """A ``LabelSpreading`` kernel that returns a given graph of the rows it is fitted on
+    (used for the fit only; :class:`KNNLabelSpreading` computes the probabilities)."""
+
+    def __init__(self, graph):
+        self.graph = graph
+
+    def __call__(self, X, Y):
+        if Y is not X or X.shape[0] != self.graph.shape[0]:
+            raise ValueError("_FixedGraph serves the graph of the fitted rows only")
+        return self.graph
 
 
 class CalibratedSelfTraining(PartiallyLabeledClassifier):

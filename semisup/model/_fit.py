@@ -228,7 +228,10 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
         if stage is not None and int(stage.n_features_in_) == ds.X.shape[1]:
             log.info("%s stage reused from the study's cache (%s)", kind, entry)
             return stage, "reused from the study's cache"
-    rows = _stage_rows(spec, np.asarray(own_y))
+    from ..study._representations import stage_fit_rows
+
+    # the study's rule: a seeded sample past stage_rows (the same rows as the study's draw)
+    rows, _ = stage_fit_rows(_stage_rows(spec, np.asarray(own_y)), spec)
     log.info("fitting the %s stage on %d rows as the study did (no cache entry found)", kind,
              len(rows))
     stage, diag = fit_representation(

@@ -19,16 +19,20 @@ from typing import Any
 import numpy as np
 
 from .._seeding import derive_seed
-from ..methods import align_proba
+from ..methods import NeighbourCache, align_proba
 from ._metrics import holdout_metrics
 from ._representations import method_features
 from ._tuning import fit_method, tune_params
 
-__all__ = ["CELL_CODE_VERSION", "Cell", "CellContext", "cell_key", "cell_seed", "run_cell"]
+__all__ = ["CELL_CODE_VERSION", "Cell", "CellContext", "cell_key", "cell_seed", "large_cell",
+           "run_cell"]
 
 #: Version of what a cell computes (this module, _tuning.py, _metrics.py): raise it when a
 #: change there changes a cell's numbers, so stored cells are measured again.
 CELL_CODE_VERSION = 1
+#: Version of what a large cell (:func:`large_cell`) does differently; in the key of such
+#: cells only, so the cells of small tables keep their keys.
+LARGE_CELL_VERSION = 1
 
 log = logging.getLogger(__name__)
 
@@ -74,19 +78,30 @@ class CellContext:
     extra: dict[str, Any] = field(default_factory=dict)
 
 
-def _unlabeled_rows(ctx: CellContext, fold: int, draw: np.ndarray, seed: int) -> np.ndarray:
+def _unlabeled_rows(ctx: CellContext, fold: int, draw: np.ndarray,
+                    seed: int) -> tuple[np.ndarray, bool]:
     """Rows a semi-supervised method sees without labels: the unlabeled rows, the pool rows not
     in the draw (labels not yet bought) and, when transductive, the evaluation rows; capped and
-    seeded."""
+    seeded. Returns ``(rows, capped)``; ``capped`` is :func:`large_cell`'s rule."""
     not_drawn = np.setdiff1d(ctx.pools[fold], draw, assume_unique=True)
     parts = [ctx.unlabeled_idx, not_drawn]
     if ctx.transductive:
         parts.append(ctx.evals[fold])
     rows = np.sort(np.concatenate(parts))
-    if len(rows) > ctx.max_unlabeled:
+    capped = large_cell(len(rows) + len(draw), len(draw), ctx.max_unlabeled)
+    if capped:
         rng = np.random.default_rng(derive_seed(seed, "unlabeled-sample"))
         rows = np.sort(rng.choice(rows, size=ctx.max_unlabeled, replace=False))
-    return rows
+    return rows, capped
+
+
+def large_cell(n_seen: int, n_labels: int, max_unlabeled: int) -> bool:
+    """The large-cell rule: more rows to see unlabeled (``n_seen``, the fold's set of
+    :func:`_unlabeled_rows` before the draw of ``n_labels`` rows is taken out) than the cap
+    ``max_unlabeled``. Such a cell fits its folds, trials and final model on the same rows in
+    the same order and searches each neighbour graph once (``semisup.study._tuning``); below
+    the cap a cell runs as it always did, so small tables keep their numbers."""
+    return n_seen - n_labels > max_unlabeled
 
 
 def _array_digest(h, a: np.ndarray) -> None:
@@ -104,17 +119,19 @@ def _method_identity(method: Any) -> list[str]:
             where(method.search_space), where(method.build)]
 
 
-def _seen_unlabeled_digest(ctx: CellContext, fold: int, memo: dict) -> str:
-    """Digest of the rows a semi-supervised cell of ``fold`` may see unlabeled before its
-    draw is taken out and the cap applied (see :func:`_unlabeled_rows`): the unlabeled rows,
-    the fold's pool and, when transductive, its evaluation rows, as one sorted set."""
+def _seen_unlabeled_digest(ctx: CellContext, fold: int, memo: dict) -> tuple[str, int]:
+    """Digest and size of the rows a semi-supervised cell of ``fold`` may see unlabeled
+    before its draw is taken out and the cap applied (see :func:`_unlabeled_rows`): the
+    unlabeled rows, the fold's pool and, when transductive, its evaluation rows, as one
+    sorted set."""
     if fold not in memo:
         parts = [ctx.unlabeled_idx, ctx.pools[fold]]
         if ctx.transductive:
             parts.append(ctx.evals[fold])
         h = hashlib.sha256(f"{ctx.transductive}:{ctx.max_unlabeled}".encode())
-        _array_digest(h, np.unique(np.concatenate(parts)))
-        memo[fold] = h.hexdigest()
+        seen = np.unique(np.concatenate(parts))
+        _array_digest(h, seen)
+        memo[fold] = (h.hexdigest(), len(seen))
     return memo[fold]
 
 
@@ -148,7 +165,10 @@ def cell_key(ctx: CellContext, cell: Cell, representation_key: str,
     for part in (draw, ctx.y[draw], eval_idx, ctx.y[eval_idx]):
         _array_digest(h, part)
     if method.semi_supervised:
-        h.update(_seen_unlabeled_digest(ctx, fold, {} if memo is None else memo).encode())
+        digest, n_seen = _seen_unlabeled_digest(ctx, fold, {} if memo is None else memo)
+        h.update(digest.encode())
+        if large_cell(n_seen, cell.n_labels, ctx.max_unlabeled):
+            h.update(f"large-cell:{LARGE_CELL_VERSION}".encode())
     return h.hexdigest()
 
 
@@ -186,22 +206,26 @@ def _run_cell(ctx: CellContext, cell: Cell) -> dict[str, Any]:
         X = method_features(ctx.features, method.representation, cell.repeat)
         draw = _draw(ctx, cell, fold)
         X_lab, y_lab = X[draw], ctx.y[draw]
+        cache = None
         if method.semi_supervised:
-            unl = _unlabeled_rows(ctx, fold, draw, seed)
+            unl, large = _unlabeled_rows(ctx, fold, draw, seed)
             X_unl = X[unl]
+            if large:  # one neighbour search per scaling for the whole cell
+                cache = NeighbourCache()
         else:
             X_unl = None
         row["n_unlabeled_used"] = 0 if X_unl is None else int(len(X_unl))
+        row["shared_graph"] = cache is not None
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             t0 = time.perf_counter()
             params, info = tune_params(
                 method, X_lab, y_lab, X_unl, trials=ctx.trials,
                 seed=derive_seed(seed, "tuning"), max_folds=ctx.cv_folds,
-                n_classes=ctx.n_classes,
+                n_classes=ctx.n_classes, graph_cache=cache,
             )
             t1 = time.perf_counter()
-            est = fit_method(method, params, seed, X_lab, y_lab, X_unl)
+            est = fit_method(method, params, seed, X_lab, y_lab, X_unl, graph_cache=cache)
             proba = align_proba(est.predict_proba(X[eval_idx]), est.classes_, ctx.n_classes)
             t2 = time.perf_counter()
         row["params"] = params

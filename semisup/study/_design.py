@@ -22,7 +22,7 @@ import pandas as pd
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
 from ._draws import crossfit_folds, default_budgets, evaluable_folds, split_holdout
-from ._representations import choose_stage, stage_sample
+from ._representations import stage_fit_rows
 from ._spec import StudySpec
 from ._testfile import load_test_rows
 
@@ -296,8 +296,7 @@ def make_design(spec: StudySpec, dataset: Any = None, *,
         where = "labeled rows of the table"
 
     # large tables: the stage is fitted on a seeded sample and once for every repeat
-    stage = choose_stage(len(rep_rows), spec.stage_rows, spec.stage_draws)
-    rep_rows = stage_sample(rep_rows, stage.fit_rows, spec.seed)
+    rep_rows, stage = stage_fit_rows(rep_rows, spec)
     # the rounds' rows are training rows of every repeat, after the table's own (so the
     # random draws of a smaller pool stay prefixes): DEVELOPERS.md "The study protocol"
     base_pool = min(len(p) for p in pools.values())

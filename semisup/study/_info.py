@@ -75,12 +75,23 @@ ROUNDS_NOTE = (
 )
 
 
+#: The note of a study whose cells pass max_unlabeled (study/_cell.py, ``large_cell``).
+LARGE_CELLS_NOTE = (
+    "large cells: a cell with more unlabeled rows than max_unlabeled fits its tuning folds, "
+    "trials and final model on the same rows in one order (validation labels hidden in place) "
+    "and searches each k-nearest-neighbour graph once for all of them; smaller cells search in "
+    "every fit"
+)
+
+
 def protocol_notes(protocol: str, rounds: bool = False, one_draw: bool = False,
-                   stage_sample: int | None = None) -> list[str]:
+                   stage_sample: int | None = None, large_cells: bool = False) -> list[str]:
     """The protocol lines study.json records for evaluation ``protocol`` (``rounds``: the
     study holds labels returned in labeling rounds; ``one_draw``: ``stage_draws = "one"``;
-    ``stage_sample``: the stage is fitted on a seeded sample of that many of its rows)."""
-    notes = [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES, *([ROUNDS_NOTE] if rounds else [])]
+    ``stage_sample``: the stage is fitted on a seeded sample of that many of its rows;
+    ``large_cells``: some cells pass ``max_unlabeled``)."""
+    notes = [*_EVALUATION_NOTES[protocol], *_COMMON_NOTES, *([ROUNDS_NOTE] if rounds else []),
+             *([LARGE_CELLS_NOTE] if large_cells else [])]
     if stage_sample is not None:
         notes.insert(len(_EVALUATION_NOTES[protocol]), (
             f"large table: the unsupervised stage is fitted on a seeded random sample of "
@@ -142,6 +153,18 @@ def evaluation_facts(design: Any) -> dict[str, Any]:
             "class_counts": _counts(test.y, np.arange(len(test.y)), names),
         },
     }
+
+
+def _large_cells(design: Any) -> bool:
+    """Whether some cell of the study can pass ``max_unlabeled`` (the largest fold's rows to
+    see unlabeled, less the smallest budget; the rule is ``study._cell.large_cell``)."""
+    from ._cell import large_cell
+
+    spec = design.spec
+    n_pool = max(int(len(design.pool_idx(r))) for r in range(len(design.repeat_fold)))
+    n_eval = max(int(len(design.eval_idx(r))) for r in range(len(design.repeat_fold)))
+    n_seen = len(design.unlabeled_idx) + n_pool + (n_eval if spec.transductive else 0)
+    return large_cell(n_seen, min(spec.budgets), spec.max_unlabeled)
 
 
 def _sample_rows(design: Any) -> int | None:
@@ -266,7 +289,8 @@ def study_info(design: Any, cells: pd.DataFrame, diagnostics: dict, rep_errors: 
         "selection_representation": order_kind,
         "status_counts": {k: int(v) for k, v in counts.items()},
         "protocol": protocol_notes(design.protocol, bool(evaluation["rounds"]),
-                                   design.spec.stage_draws == "one", _sample_rows(design)),
+                                   design.spec.stage_draws == "one", _sample_rows(design),
+                                   _large_cells(design)),
         "warnings": warnings_,
         "representation": {"diagnostics": diagnostics, "errors": rep_errors},
         # rows and draws of the unsupervised stage, and why (study/_representations.py)

@@ -5,6 +5,11 @@ training set flatters every method; here every method gets the same number of tr
 validated only by cross-validation inside its own labeled draw. Semi-supervised methods still
 see the unlabeled rows during cross-validation, and a validation fold's rows are added to them
 with their labels hidden (they are features the method could see anyway).
+
+A large cell (``graph_cache`` given; see ``semisup.study._cell``) fits every fold, trial and
+the final model on the same rows in the same order, ``[draw | unlabeled rows]``, with a
+validation fold's labels hidden in place, so the graph methods take their neighbour lists
+from one shared :class:`~semisup.methods.NeighbourCache` instead of searching in every fit.
 """
 
 from __future__ import annotations
@@ -51,9 +56,13 @@ def cv_splits(
     return folds, note
 
 
-def fit_method(method: Any, params: dict, seed: int, X_lab, y_lab, X_unl):
-    """Build and fit ``method``; semi-supervised methods also get ``X_unl`` with ``y == -1``."""
+def fit_method(method: Any, params: dict, seed: int, X_lab, y_lab, X_unl, *,
+               graph_cache: Any = None):
+    """Build and fit ``method``; semi-supervised methods also get ``X_unl`` with ``y == -1``
+    (after the labeled rows). An estimator that takes a ``graph_cache`` gets the given one."""
     est = method.build(dict(params), seed)
+    if graph_cache is not None and "graph_cache" in est.get_params(deep=False):
+        est.set_params(graph_cache=graph_cache)
     if method.semi_supervised and X_unl is not None and len(X_unl):
         X = np.concatenate([X_lab, X_unl])
         y = np.concatenate([y_lab, np.full(len(X_unl), -1, dtype=np.int64)])
@@ -63,9 +72,21 @@ def fit_method(method: Any, params: dict, seed: int, X_lab, y_lab, X_unl):
     return est
 
 
-def _fold_score(method, params, seed, X_lab, y_lab, X_unl, tr, va, n_classes) -> float:
-    X_extra = X_lab[va] if X_unl is None else np.concatenate([X_unl, X_lab[va]])
-    est = fit_method(method, params, seed, X_lab[tr], y_lab[tr], X_extra)
+def _fold_score(method, params, seed, X_lab, y_lab, X_unl, tr, va, n_classes,
+                graph_cache=None) -> float:
+    if graph_cache is not None and method.semi_supervised:
+        # the rows of the final fit in its order, the validation labels hidden in place
+        est = method.build(dict(params), seed)
+        if "graph_cache" in est.get_params(deep=False):
+            est.set_params(graph_cache=graph_cache)
+        y_seen = y_lab.copy()
+        y_seen[va] = -1
+        n_unl = 0 if X_unl is None else len(X_unl)
+        est.fit(X_lab if X_unl is None else np.concatenate([X_lab, X_unl]),
+                np.concatenate([y_seen, np.full(n_unl, -1, dtype=np.int64)]))
+    else:
+        X_extra = X_lab[va] if X_unl is None else np.concatenate([X_unl, X_lab[va]])
+        est = fit_method(method, params, seed, X_lab[tr], y_lab[tr], X_extra)
     proba = align_proba(est.predict_proba(X_lab[va]), est.classes_, n_classes)
     acc = float(np.mean(np.argmax(proba, axis=1) == y_lab[va]))
     p_true = np.clip(proba[np.arange(len(va)), y_lab[va]], 1e-15, 1.0)
@@ -83,10 +104,14 @@ def tune_params(
     seed: int,
     max_folds: int,
     n_classes: int,
+    graph_cache: Any = None,
 ) -> tuple[dict, dict]:
     """Best parameters for ``method`` on this draw after ``trials`` optuna trials.
 
-    The first trial is always the method's default parameters. Returns ``(params, info)`` with
+    The first trial is always the method's default parameters. With ``graph_cache`` every
+    fold's fit sees ``[X_lab | X_unl]`` in that order (validation labels hidden) and graph
+    methods share the cache's neighbour lists (a large cell; pass the same cache to
+    :func:`fit_method` for the final fit). Returns ``(params, info)`` with
     ``info`` holding the note on folds, trials run/failed and the best cross-validated score.
     """
     params = dict(method.default_params)
@@ -102,7 +127,7 @@ def tune_params(
 
     def score(p: dict) -> float:
         return float(np.mean([
-            _fold_score(method, p, seed, X_lab, y_lab, X_unl, tr, va, n_classes)
+            _fold_score(method, p, seed, X_lab, y_lab, X_unl, tr, va, n_classes, graph_cache)
             for tr, va in folds
         ]))
 
