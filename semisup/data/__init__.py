@@ -7,8 +7,16 @@ from ._columns import infer_column_kinds
 from ._dataset import UNLABELED, Dataset, FeatureBlock
 from ._demo import DEMO_ID_COLUMN, DEMO_LABEL_COLUMN, demo_table, write_demo_table
 from ._load import dataset_from_frame, load_dataset
-from ._read import is_text_table, read_kind_overrides, read_table, read_table_chunks
+from ._read import (
+    KIND_OVERRIDES,
+    check_kinds,
+    is_text_table,
+    read_kind_overrides,
+    read_table,
+    read_table_chunks,
+)
 from ._shift import labeled_pool_shift
+from ._source import TableSource
 
 
 def __getattr__(name: str):
@@ -24,11 +32,14 @@ def __getattr__(name: str):
 __all__ = [
     "DEMO_ID_COLUMN",
     "DEMO_LABEL_COLUMN",
+    "KIND_OVERRIDES",
     "UNLABELED",
     "DataCard",
     "Dataset",
     "FeatureBlock",
     "TableEncoder",
+    "TableSource",
+    "check_kinds",
     "dataset_from_frame",
     "demo_table",
     "infer_column_kinds",

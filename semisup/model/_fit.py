@@ -265,15 +265,13 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
 
 
 def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict, folder: Path):
-    from ..data import load_dataset
+    from ..data import TableSource
     from ..study._integrity import study_table
 
     # the table by study.json's absolute path (or --data), refused unless its SHA-256 is the
     # one the study read
     path = study_table(folder, info, data=data, strict=True, option="--data").path
-    ds = load_dataset(path, label_column=spec.label_column, id_column=spec.id_column,
-                      unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
-                      delimiter=spec.delimiter, encoding=spec.encoding)
+    ds = TableSource.of(spec, path=path).load()
     return ds, []
 
 
