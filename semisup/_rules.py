@@ -58,7 +58,6 @@ class Integer(Rule):
 
     low: int
     optional: bool = False
-    noun: str = "a whole number"
 
     def clean(self, value: Any) -> Any:
         if value is None and self.optional:
@@ -68,7 +67,7 @@ class Integer(Rule):
         return int(value)
 
     def describe(self) -> str:
-        return f"give {self.noun} >= {self.low}"
+        return f"give a whole number >= {self.low}"
 
 
 @dataclass(frozen=True)
