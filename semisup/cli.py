@@ -83,8 +83,7 @@ def help_defaults() -> dict[str, str]:
     from .methods import default_methods
     from .plan import METRICS, PlanRequest
     from .selection import STRATEGIES
-    from .study import StudySpec
-    from .study._draws import default_budgets
+    from .study import StudySpec, default_budgets
 
     n_points = inspect.signature(default_budgets).parameters["n_points"].default
     holdout = _field_default(StudySpec, "holdout")
@@ -397,7 +396,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
 def _cmd_fit(args: argparse.Namespace) -> int:
     from ._paths import check_output, study_inputs
     from .model import fit_model, save_model
-    from .study._integrity import recorded_table, study_json
+    from .study import recorded_table, study_json
 
     cut = args.confidence_cut
     if not 0 < cut < 1:

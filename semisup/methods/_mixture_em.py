@@ -10,6 +10,7 @@ import numpy as np
 
 from .._errors import ConfigError, FitWarning
 from .._rules import Choice, Integer, Number, Refused, check_rules
+from .._seeding import int_seed
 from ._base import PartiallyLabeledClassifier
 from ._gmm_math import COVARIANCE_TYPES, EMResult, e_step, run_em
 from ._spec import MethodUnavailable, Variant, register_variants
@@ -132,10 +133,7 @@ class MixtureEMClassifier(PartiallyLabeledClassifier):
         n_classes = self.classes_.size
         m = int(self.n_components_per_class)
         component_class = np.repeat(np.arange(n_classes), m)
-        rng = np.random.default_rng(
-            self.random_state if not isinstance(self.random_state, np.random.RandomState)
-            else self.random_state.randint(2**31)
-        )
+        rng = np.random.default_rng(int_seed(self.random_state))
         n_runs = int(self.n_init) if m > 1 else 1
         best: EMResult | None = None
         for _ in range(n_runs):

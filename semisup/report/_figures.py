@@ -22,7 +22,7 @@ from matplotlib.text import Text
 from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, NullLocator
 
 from ..plan import FORECAST_CEILING, METRIC_WORDS
-from ..study._folder import truthy
+from ..study import truthy
 
 __all__ = [
     "FAMILY_TITLES",

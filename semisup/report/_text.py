@@ -179,7 +179,7 @@ def imbalance_text(card: Mapping) -> str:
     ratio = _number(card.get("imbalance_ratio"))
     if ratio is None:
         return ""
-    from ..data._card import IMBALANCE_RATIO
+    from ..data import IMBALANCE_RATIO
 
     if ratio >= IMBALANCE_RATIO:
         return (f"Imbalanced labels: the largest labeled class has {num(ratio, 1)} times the "

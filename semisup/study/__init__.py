@@ -3,10 +3,28 @@
 from __future__ import annotations
 
 from ._draws import default_budgets, nested_draws, split_holdout
-from ._metrics import METRICS, holdout_metrics, summarize_curves, wilson_interval
+from ._folder import StudyRecord, as_int, read_curves, truthy
+from ._integrity import check_exports, recorded_table, study_json, study_table
+from ._layout import OUTPUT_FILES, OUTPUT_FOLDERS
+from ._lock import study_lock
+from ._metrics import (
+    CURVE_CONFIDENCE,
+    METRICS,
+    holdout_metrics,
+    summarize_curves,
+    wilson_interval,
+)
 from ._representations import STAGE_SAMPLE_ROWS
-from ._rounds import ADDED_LABELS_FILE, SHEET_STUDY_COLUMN, AddResult, add_labels, study_id
-from ._runner import StudyResult, run_study
+from ._rounds import (
+    ADDED_LABELS_FILE,
+    SHEET_STUDY_COLUMN,
+    AddResult,
+    add_labels,
+    apply_added_labels,
+    read_added_labels,
+    study_id,
+)
+from ._runner import StudyResult, run_study, summary_budget
 from ._settings import (
     EVALUATIONS,
     SETTINGS,
@@ -18,11 +36,15 @@ from ._settings import (
     setting_values,
 )
 from ._spec import StudySpec
+from ._tuning import cv_splits, fit_method, tune_params
 
 __all__ = [
     "ADDED_LABELS_FILE",
+    "CURVE_CONFIDENCE",
     "EVALUATIONS",
     "METRICS",
+    "OUTPUT_FILES",
+    "OUTPUT_FOLDERS",
     "SETTINGS",
     "SHEET_STUDY_COLUMN",
     "STAGE_DRAWS",
@@ -30,18 +52,33 @@ __all__ = [
     "AddResult",
     "Option",
     "Setting",
+    "StudyRecord",
     "StudyResult",
     "StudySpec",
     "add_labels",
     "add_setting_arguments",
+    "apply_added_labels",
+    "as_int",
+    "check_exports",
     "check_setting",
+    "cv_splits",
     "default_budgets",
+    "fit_method",
     "holdout_metrics",
     "nested_draws",
+    "read_added_labels",
+    "read_curves",
+    "recorded_table",
     "run_study",
     "setting_values",
     "split_holdout",
     "study_id",
+    "study_json",
+    "study_lock",
+    "study_table",
     "summarize_curves",
+    "summary_budget",
+    "truthy",
+    "tune_params",
     "wilson_interval",
 ]

@@ -127,7 +127,7 @@ def apply_added_labels(ds, added: AddedLabels, *, where: str = ADDED_LABELS_FILE
         return ds
     from dataclasses import replace
 
-    from ..data._labels import sort_class_names
+    from ..data import sort_class_names
 
     ids = pd.Index(np.asarray(ds.row_ids).astype(str))
     pos = ids.get_indexer(list(added.row_ids))

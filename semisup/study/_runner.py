@@ -16,7 +16,7 @@ import pandas as pd
 
 from .._errors import ConfigError
 from .._progress import Progress
-from ..data._shift import shift_warning
+from ..data import shift_warning
 from ..methods import stage_kind
 from ._backends import run_cells
 from ._candidates import refit_candidates
@@ -79,7 +79,7 @@ class StudyResult:
 def summary_metric(info: dict) -> str:
     """Balanced accuracy when the labeled classes are imbalanced (the data card's rule), else
     accuracy."""
-    from ..data._card import imbalance_ratio, is_imbalanced
+    from ..data import imbalance_ratio, is_imbalanced
 
     counts = list(((info.get("data") or {}).get("class_counts") or {}).values())
     if counts and is_imbalanced(imbalance_ratio(counts)):
