@@ -1,4 +1,10 @@
-"""Reading, validating and encoding tables; data cards; the bundled demo table."""
+"""Reading, validating and encoding tables; data cards; the bundled demo table.
+
+:class:`TableSource` is a table and its reading settings (label and id columns, unlabeled
+markers, kind overrides, delimiter, encoding) as one frozen value; ``TableSource.load()`` and
+``.card()`` are ``load_dataset`` and ``make_card``. :func:`check_kinds` is the one check of
+column kind overrides (``KIND_OVERRIDES``).
+"""
 
 from __future__ import annotations
 

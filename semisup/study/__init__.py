@@ -1,4 +1,11 @@
-"""Label-budget studies: spec, holdout and nested draws, tuning, metrics, store, backends."""
+"""Label-budget studies: spec, holdout and nested draws, tuning, metrics, store, backends.
+
+Settings: every study option is one row of :data:`SETTINGS` (``study/_settings.py``): its
+rule, its meaning and the command-line arguments that give it. :class:`StudySpec` checks
+values with those rules, ``semisup card`` / ``semisup study`` build their arguments and
+overrides from them and README's TOML reference is generated from them (DEVELOPERS.md,
+"Settings"). A new option is one ``StudySpec`` field and one row.
+"""
 
 from __future__ import annotations
 
