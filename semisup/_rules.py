@@ -18,8 +18,8 @@ from typing import Any
 
 from ._errors import ConfigError, SemisupError
 
-__all__ = ["Choice", "Integer", "Number", "Refused", "Rule", "check_rules", "parse_pairs",
-           "refusal"]
+__all__ = ["Choice", "Integer", "Number", "OfType", "Refused", "Rule", "check_rules",
+           "parse_pairs", "refusal"]
 
 _WHOLE = object()
 
@@ -114,6 +114,25 @@ class Choice(Rule):
     def describe(self) -> str:
         shown = map(repr, self.choices) if self.quote else map(str, self.choices)
         return self.words.format(", ".join(shown))
+
+
+@dataclass(frozen=True)
+class OfType(Rule):
+    """A value of ``types`` (e.g. ``bool``, ``str``); ``optional``: None passes too."""
+
+    types: type | tuple[type, ...]
+    words: str
+    optional: bool = False
+
+    def clean(self, value: Any) -> Any:
+        if value is None and self.optional:
+            return None
+        if not isinstance(value, self.types):
+            raise Refused(self.words)
+        return value
+
+    def describe(self) -> str:
+        return self.words
 
 
 def refusal(name: str, value: Any, refused: Refused) -> ConfigError:

@@ -6,7 +6,7 @@ from dataclasses import asdict, dataclass, fields
 from typing import Any
 
 from .._errors import ConfigError
-from .._rules import Choice, Integer, Number, Refused, Rule, check_rules
+from .._rules import Choice, Integer, Number, OfType, Refused, Rule, check_rules
 
 __all__ = ["VAEConfig", "VAE_KINDS", "DECODER_VARIANCES", "SCALINGS", "check_integer",
            "check_number"]
@@ -89,18 +89,6 @@ class _Widths(Rule):
         return "give a tuple of positive integers such as (128, 64), or () for a linear model"
 
 
-@dataclass(frozen=True)
-class _Bool(Rule):
-    def clean(self, value: Any) -> bool:
-        if not isinstance(value, bool):
-            raise Refused(self.describe())
-        return value
-
-    def describe(self) -> str:
-        return "give True or False"
-
-
-
 def _choice(choices: tuple[str, ...]) -> Choice:
     return Choice(choices, words="choose one of {}", quote=True)
 
@@ -124,7 +112,7 @@ _VAE_RULES: dict[str, Rule] = {
     "tol": Number(0.0),
     "n_threads": Integer(1, optional=True),
     "random_state": Integer(0, optional=True),
-    "progress": _Bool(),
+    "progress": OfType(bool, "give True or False"),
 }
 
 

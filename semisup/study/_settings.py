@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from .._errors import ConfigError, SemisupError
-from .._rules import Choice, Integer, Refused, Rule, parse_pairs
+from .._rules import Choice, Integer, OfType, Refused, Rule, parse_pairs
 from ..data import KIND_OVERRIDES, check_kinds, read_kind_overrides
 from ..selection import STRATEGIES
 from ._metrics import METRICS
@@ -49,19 +49,6 @@ class _Text(Rule):
 
     def describe(self) -> str:
         return self.allowed
-
-
-@dataclass(frozen=True)
-class _MaybeText(Rule):
-    """A text or None (not set)."""
-
-    def clean(self, value: Any) -> str | None:
-        if value is not None and not isinstance(value, str):
-            raise Refused(self.describe())
-        return value
-
-    def describe(self) -> str:
-        return "give a text value"
 
 
 @dataclass(frozen=True)
@@ -158,17 +145,6 @@ class _StageRows(Rule):
 
     def describe(self) -> str:
         return "give \"auto\", \"all\" or a whole number >= 1000"
-
-
-@dataclass(frozen=True)
-class _Flag(Rule):
-    def clean(self, value: Any) -> bool:
-        if not isinstance(value, bool):
-            raise Refused(self.describe())
-        return value
-
-    def describe(self) -> str:
-        return "give true or false"
 
 
 @dataclass(frozen=True)
@@ -327,7 +303,7 @@ SETTINGS: tuple[Setting, ...] = (
             "Column with the class label; empty cells are unlabeled.",
             (Option("--label-column", "column holding the class label; empty cells mean "
                     "unlabeled", metavar="COL", required=True),), table=True),
-    Setting("id_column", _MaybeText(), "str",
+    Setting("id_column", OfType(str, "give a text value", optional=True), "str",
             "column of row ids (not set: the 0-based row number)",
             (Option("--id-column", "column of row ids (default: the 0-based row number)",
                     metavar="COL"),), table=True),
@@ -344,11 +320,11 @@ SETTINGS: tuple[Setting, ...] = (
              Option("--kinds-file", "TOML table [kinds] of column = kind overrides",
                     metavar="FILE.toml", type=Path)),
             table=True, merge=True, empty_is_unset=True, from_args=_kinds_from_args),
-    Setting("delimiter", _MaybeText(), "str",
+    Setting("delimiter", OfType(str, "give a text value", optional=True), "str",
             "field separator of a text table (not set: sniffed)",
             (Option("--delimiter", "field separator (default: sniffed)", metavar="CHAR"),),
             table=True),
-    Setting("encoding", _MaybeText(), "str",
+    Setting("encoding", OfType(str, "give a text value", optional=True), "str",
             "text encoding (not set: utf-8)",
             (Option("--encoding", "text encoding (default: utf-8)", metavar="NAME"),),
             table=True),
@@ -404,7 +380,7 @@ SETTINGS: tuple[Setting, ...] = (
             (Option("--test-file", "a labeled table with the same columns and classes, only "
                     "ever evaluated on (sets --evaluation test-file)", metavar="FILE",
                     type=Path),), is_path=True),
-    Setting("transductive", _Flag(), "bool",
+    Setting("transductive", OfType(bool, "give true or false"), "bool",
             "Let the semi-supervised methods (and, with a holdout or a test file, the "
             "unsupervised stage) see the evaluation rows' features (never their labels).",
             (Option("--transductive", "let the methods (and, with a holdout or test file, the "
