@@ -3,10 +3,9 @@
 The top-level keys come from the settings table ``SETTINGS`` (``study/_settings.py``: type
 and meaning) and :class:`StudySpec` (its fields' defaults); the ``[pretrain.vae]`` and
 ``[pretrain.mixture]`` keys from the parameters the unsupervised stage accepts
-(``VAETransformer`` /
-``MixtureTransformer``), with their meanings from ``VAEConfig``'s field comments and
-``MixtureTransformer``'s docstring. ``python -m semisup.study._reference`` prints the Markdown
-table; ``--write FILE`` replaces the part of FILE between the two marker lines.
+(``VAETransformer`` / ``MixtureTransformer``), with their meanings from ``VAEConfig``'s field
+comments and ``MixtureTransformer``'s docstring. ``python -m semisup.study._reference`` prints
+the Markdown table; ``--write FILE`` replaces the part of FILE between the two marker lines.
 """
 
 from __future__ import annotations

@@ -208,8 +208,6 @@ class Option:
         for name in ("metavar", "type", "choices", "action"):
             if getattr(self, name) is not None:
                 kwargs[name] = getattr(self, name)
-        if self.action == "append":
-            kwargs["default"] = None
         if self.required:
             kwargs["required"] = True
         parser.add_argument(self.flag, **kwargs)
