@@ -24,6 +24,7 @@ from .._seeding import derive_seed
 from ..data import TableSource
 from ._draws import crossfit_folds, default_budgets, evaluable_folds, split_holdout
 from ._representations import choose_stage, stage_sample
+from ._settings import SETTINGS
 from ._spec import StudySpec
 from ._testfile import load_test_rows
 
@@ -105,7 +106,7 @@ def _data_digest(ds) -> str:
 
 
 #: Spec keys that only add or drop cells: they are left out of the settings fingerprint.
-GROWING_KEYS = ("repeats", "budgets", "methods", "strategies", "metrics")
+GROWING_KEYS = tuple(s.name for s in SETTINGS if s.grows)
 #: Spec keys that decide how the table is read (and so the raw features).
 _LOADING_KEYS = TableSource.settings()
 

@@ -264,7 +264,9 @@ class Setting:
     ``table``: one of the table-reading settings (``semisup card`` takes them too);
     ``merge``: a table given on the command line is merged into the TOML file's;
     ``empty_is_unset``: an empty value given as an override means "not given";
-    ``is_path``: a relative path in a TOML file is relative to that file's folder.
+    ``is_path``: a relative path in a TOML file is relative to that file's folder;
+    ``grows``: a change only adds or drops cells, so a study resumes with it (left out of the
+    settings fingerprint, ``study/_design.py``).
     ``from_args`` reads the setting from several arguments (default: the one option's).
     """
 
@@ -277,6 +279,7 @@ class Setting:
     merge: bool = False
     empty_is_unset: bool = False
     is_path: bool = False
+    grows: bool = False
     from_args: Callable[[argparse.Namespace], Any] | None = field(default=None, repr=False)
 
     def value(self, args: argparse.Namespace) -> Any:
@@ -329,15 +332,15 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("methods", _Names(optional=True), "tuple of str or None",
             "Registered method names; None means ``semisup.methods.default_methods()``.",
             (Option("--methods", "methods to compare (default: {methods}; README lists the "
-                    "rest)", metavar="A,B,...", to_value=_split),)),
+                    "rest)", metavar="A,B,...", to_value=_split),), grows=True),
     Setting("budgets", _Budgets(), "tuple of int or None",
             "Label budgets; None means a geometric grid from ``2 * n_classes`` to the pool "
             "size.",
             (Option("--budgets", "training-label budgets (default: {budgets})",
-                    metavar="N,N,...", to_value=_budgets_from_text),)),
+                    metavar="N,N,...", to_value=_budgets_from_text),), grows=True),
     Setting("repeats", Integer(1), "int", "Independent nested draws per budget.",
             (Option("--repeats", "independent draws per budget (default: {repeats})",
-                    metavar="N", type=int),)),
+                    metavar="N", type=int),), grows=True),
     Setting("trials", Integer(1), "int",
             "Optuna trials per method and cell (the same for every method); 1 means defaults "
             "only.",
@@ -348,7 +351,7 @@ SETTINGS: tuple[Setting, ...] = (
             "Row selection strategies to simulate: random, representative, uncertainty.",
             (Option("--strategies", "row selection strategies to simulate: "
                     "{strategy_choices} (default: {strategies}; README explains them)",
-                    metavar="S,S,...", to_value=_split),)),
+                    metavar="S,S,...", to_value=_split),), grows=True),
     Setting("seed", Integer(0), "int", "Study seed; every random choice derives from it.",
             (Option("--seed", "study seed; every random choice derives from it (default: "
                     "{seed})", metavar="N", type=int),)),
@@ -402,7 +405,7 @@ SETTINGS: tuple[Setting, ...] = (
                     "N rows and encode every row; 'all' for every row (default: {stage_rows})",
                     metavar="N", type=_stage_rows_text),)),
     Setting("metrics", _Names(METRICS), "tuple of str",
-            "Metrics written to curves.csv (all are measured for every cell)."),
+            "Metrics written to curves.csv (all are measured for every cell).", grows=True),
     Setting("max_unlabeled", Integer(0), "int",
             "At most this many unlabeled rows (seeded sample) are given to a semi-supervised "
             "method in one cell, so million-row tables stay feasible."),
