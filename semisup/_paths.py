@@ -71,7 +71,7 @@ def enclosing_model_folder(path: str | os.PathLike[str]) -> Path | None:
 def study_inputs(study_dir: str | os.PathLike[str]) -> dict[str, Path]:
     """The study folder's own files (what study, plan and report wrote), as ``check_output``
     inputs: a command that read the study must not write over them."""
-    from .study._layout import OUTPUT_FILES, OUTPUT_FOLDERS
+    from .study import OUTPUT_FILES, OUTPUT_FOLDERS
 
     folder = Path(study_dir)
     return {f"the study's file {name} in {folder}": folder / name

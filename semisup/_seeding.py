@@ -11,7 +11,7 @@ import hashlib
 
 import numpy as np
 
-__all__ = ["derive_seed", "derive_rng"]
+__all__ = ["derive_seed", "derive_rng", "int_seed"]
 
 
 def _key_words(key: tuple[object, ...]) -> list[int]:
@@ -34,3 +34,14 @@ def derive_seed(study_seed: int, *key: object) -> int:
 def derive_rng(study_seed: int, *key: object) -> np.random.Generator:
     """A numpy Generator seeded by :func:`derive_seed`."""
     return np.random.default_rng(derive_seed(study_seed, *key))
+
+
+def int_seed(random_state: object) -> object:
+    """An estimator's ``random_state`` as a plain seed: a ``numpy.random.RandomState`` gives
+    its next draw below 2**31 (so it advances, as scikit-learn's estimators use one); an
+    integer of any numpy type gives a Python int; anything else (None) is returned as is."""
+    if isinstance(random_state, np.random.RandomState):
+        return int(random_state.randint(2**31))
+    if isinstance(random_state, np.integer):
+        return int(random_state)
+    return random_state

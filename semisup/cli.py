@@ -18,6 +18,7 @@ from pathlib import Path
 
 from . import __version__
 from ._errors import SemisupError
+from ._rules import parse_pairs
 
 EXIT_OK, EXIT_INTERNAL, EXIT_BAD_INPUT = 0, 1, 2
 #: ``semisup plan``: the plan was made, but no option reaches the target (do not buy).
@@ -44,17 +45,6 @@ def _positive_int(text: str) -> int:
     return value
 
 
-def _stage_rows(text: str) -> int | str:
-    """argparse type of --stage-rows: auto, all or a whole number (the spec checks its size)."""
-    if text in ("auto", "all"):
-        return text
-    try:
-        return int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(
-            f"{text!r} is not allowed; give auto, all or a whole number, e.g. 200000") from None
-
-
 def _stage_rows_default() -> str:
     from .study import STAGE_SAMPLE_ROWS
 
@@ -67,23 +57,11 @@ def _add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--debug", action="store_true", help="show tracebacks of errors")
 
 
-def _add_table_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("data", type=Path, help="table to read: .csv, .tsv, .txt, .parquet or .xlsx "
-                                           "(text tables may end in .gz, .bz2, .xz, .zst)")
-    p.add_argument("--label-column", required=True, metavar="COL",
-                   help="column holding the class label; empty cells mean unlabeled")
-    p.add_argument("--id-column", metavar="COL",
-                   help="column of row ids (default: the 0-based row number)")
-    p.add_argument("--unlabeled-marker", action="append", metavar="TEXT", default=None,
-                   help="extra label text that means 'unlabeled' (repeatable; "
-                        "empty cells always do)")
-    p.add_argument("--kind", action="append", metavar="COL=KIND", default=None,
-                   help="override an inferred column kind (numeric, categorical, drop, text); "
-                        "repeatable")
-    p.add_argument("--kinds-file", type=Path, metavar="FILE.toml",
-                   help="TOML table [kinds] of column = kind overrides")
-    p.add_argument("--delimiter", metavar="CHAR", help="field separator (default: sniffed)")
-    p.add_argument("--encoding", metavar="NAME", help="text encoding (default: utf-8)")
+def _add_table_args(p: argparse.ArgumentParser, defaults: dict[str, str]) -> None:
+    """The table-reading arguments (card and study), from the study's settings table."""
+    from .study import add_setting_arguments
+
+    add_setting_arguments(p, defaults, table=True)
 
 
 def _field_default(cls: type, name: str) -> object:
@@ -105,8 +83,7 @@ def help_defaults() -> dict[str, str]:
     from .methods import default_methods
     from .plan import METRICS, PlanRequest
     from .selection import STRATEGIES
-    from .study import StudySpec
-    from .study._draws import default_budgets
+    from .study import StudySpec, default_budgets
 
     n_points = inspect.signature(default_budgets).parameters["n_points"].default
     holdout = _field_default(StudySpec, "holdout")
@@ -133,6 +110,7 @@ def help_defaults() -> dict[str, str]:
 
 def build_parser() -> argparse.ArgumentParser:
     from .plan import PlanRequest
+    from .study import add_setting_arguments
 
     d = help_defaults()
     parser = _Parser(
@@ -154,7 +132,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("card", help="write a data card (Markdown + JSON) for a table",
                        description="Profile a mostly unlabeled table: kinds, missingness, "
                                    "class counts, duplicates, suspected leakage.")
-    _add_table_args(p)
+    _add_table_args(p, d)
     p.add_argument("--out", type=Path, metavar="FILE.md",
                    help="card path (default: <data stem>.card.md in the current folder); "
                         "a .json twin is written beside it")
@@ -166,50 +144,12 @@ def build_parser() -> argparse.ArgumentParser:
                                    "same command resumes; with more repeats, budgets, methods "
                                    "or returned labels (add-labels) it grows the study, keeping "
                                    "every unchanged cell.")
-    _add_table_args(p)
+    _add_table_args(p, d)
     p.add_argument("--config", type=Path, metavar="FILE.toml",
                    help="study spec (examples in experiments/)")
     p.add_argument("--out", type=Path, default=None, metavar="DIR",
                    help="study folder (default: <data stem>-study)")
-    p.add_argument("--methods", metavar="A,B,...",
-                   help=f"methods to compare (default: {d['methods']}; README lists the rest)")
-    p.add_argument("--budgets", metavar="N,N,...",
-                   help=f"training-label budgets (default: {d['budgets']})")
-    p.add_argument("--repeats", type=int, metavar="N",
-                   help=f"independent draws per budget (default: {d['repeats']})")
-    p.add_argument("--trials", type=int, metavar="N",
-                   help=f"tuning trials per method and cell, the same for every method; 1 "
-                        f"means default settings only (default: {d['trials']})")
-    p.add_argument("--strategies", metavar="S,S,...",
-                   help=f"row selection strategies to simulate: {d['strategy_choices']} "
-                        f"(default: {d['strategies']}; README explains them)")
-    p.add_argument("--seed", type=int, metavar="N",
-                   help=f"study seed; every random choice derives from it "
-                        f"(default: {d['seed']})")
-    p.add_argument("--evaluation", choices=("cross-fit", "holdout", "test-file"),
-                   help="how cells are scored: cross-fit (each repeat evaluates its own fold of "
-                        "the labeled rows, so every labeled row is evaluated), holdout (one "
-                        "fixed share of the labeled rows), test-file (only the rows of "
-                        f"--test-file) (default: {d['evaluation']})")
-    p.add_argument("--folds", type=int, metavar="K",
-                   help=f"folds of the labeled rows for cross-fit evaluation "
-                        f"(default: {d['folds']})")
-    p.add_argument("--holdout", type=float, metavar="F",
-                   help=f"fraction (or, if >= 1, count) of labeled rows kept as a fixed holdout; "
-                        f"sets --evaluation holdout (default: {d['holdout']})")
-    p.add_argument("--test-file", type=Path, metavar="FILE",
-                   help="a labeled table with the same columns and classes, only ever "
-                        "evaluated on (sets --evaluation test-file)")
-    p.add_argument("--transductive", action="store_true",
-                   help="let the methods (and, with a holdout or test file, the unsupervised "
-                        "stage) see the evaluation rows' features (never their labels)")
-    p.add_argument("--stage-draws", choices=("auto", "per-repeat", "one"),
-                   help=f"fit the unsupervised stage once per repeat (its randomness is in the "
-                        f"intervals) or once for the study (faster on large tables); auto: "
-                        f"once past --stage-rows rows (default: {d['stage_draws']})")
-    p.add_argument("--stage-rows", type=_stage_rows, metavar="N",
-                   help=f"fit the unsupervised stage on a seeded sample of at most N rows and "
-                        f"encode every row; 'all' for every row (default: {d['stage_rows']})")
+    add_setting_arguments(p, d, table=False)
     p.add_argument("--jobs", type=_positive_int, default=None, metavar="N",
                    help="worker processes (default: all cores)")
     p.add_argument("--cluster", metavar="ADDR",
@@ -332,30 +272,11 @@ def _add_raw_cells(p: argparse.ArgumentParser, option: str) -> None:
                         "CSV-injection guidance advises; .parquet output is always raw)")
 
 
-def _parse_pairs(items: Sequence[str] | None, what: str) -> dict[str, str]:
-    out: dict[str, str] = {}
-    for item in items or []:
-        key, sep, value = item.partition("=")
-        if not sep or not key.strip() or not value.strip():
-            raise SemisupError(f"{what} {item!r} is not of the form NAME=VALUE")
-        out[key.strip()] = value.strip()
-    return out
-
-
 def _number(text: str, what: str, example: str = "0.95") -> float:
     try:
         return float(text)
     except ValueError:
         raise SemisupError(f"{what} {text!r} is not a number, e.g. {example}") from None
-
-
-def _budgets(text: str) -> list[int]:
-    budgets = [_number(b, "--budgets entry", "20,50,100") for b in text.split(",")]
-    for b in budgets:
-        if not b.is_integer() or b < 1:
-            raise SemisupError(f"--budgets entry {b:g} is not a whole number of labels >= 1, "
-                               "e.g. 20,50,100")
-    return [int(b) for b in budgets]
 
 
 def _existing_parent(path: Path) -> Path:
@@ -375,19 +296,12 @@ def _check_writable_folder(folder: Path, option: str) -> None:
                            "another folder or make it writable")
 
 
-def _table_kwargs(args: argparse.Namespace) -> dict:
-    from .data import read_kind_overrides
+def _table_source(args: argparse.Namespace):
+    """The table and its reading settings as the command line gives them."""
+    from .data import TableSource
+    from .study import setting_values
 
-    kinds = read_kind_overrides(args.kinds_file) if args.kinds_file else {}
-    kinds.update(_parse_pairs(args.kind, "--kind"))
-    return {
-        "label_column": args.label_column,
-        "id_column": args.id_column,
-        "unlabeled_markers": tuple(args.unlabeled_marker or ()),
-        "kinds": kinds,
-        "delimiter": args.delimiter,
-        "encoding": args.encoding,
-    }
+    return TableSource.of(setting_values(args, table_only=True))
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
@@ -402,7 +316,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 def _cmd_card(args: argparse.Namespace) -> int:
     from ._paths import check_output
-    from .data import make_card, write_card
+    from .data import write_card
 
     out = args.out or Path(f"{args.data.stem}.card.md")
     if out.is_dir():  # a folder: the card goes inside it
@@ -411,32 +325,16 @@ def _cmd_card(args: argparse.Namespace) -> int:
     check_output(out, option="--out", inputs=inputs)
     check_output(out.with_suffix(".json"), option="--out (its .json twin)", inputs=inputs)
     _check_writable_folder(out.parent, "--out")
-    card = make_card(args.data, **_table_kwargs(args))
+    card = _table_source(args).card()
     md_path, json_path = write_card(card, out)
     print(f"wrote {md_path} and {json_path}")
     return EXIT_OK
 
 
 def _cmd_study(args: argparse.Namespace) -> int:
-    from .study import StudySpec, run_study
+    from .study import StudySpec, run_study, setting_values
 
-    overrides = {
-        "data": args.data,
-        **_table_kwargs(args),
-        "methods": args.methods.split(",") if args.methods else None,
-        "budgets": _budgets(args.budgets) if args.budgets else None,
-        "repeats": args.repeats,
-        "trials": args.trials,
-        "strategies": args.strategies.split(",") if args.strategies else None,
-        "seed": args.seed,
-        "evaluation": args.evaluation,
-        "folds": args.folds,
-        "holdout": args.holdout,
-        "test_data": args.test_file,
-        "transductive": True if args.transductive else None,
-        "stage_draws": args.stage_draws,
-        "stage_rows": args.stage_rows,
-    }
+    overrides = setting_values(args)
     spec = StudySpec.build(config=args.config, overrides=overrides)
     out = args.out or Path(f"{args.data.stem}-study")
     if out.exists() and not out.is_dir():
@@ -461,7 +359,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
                            "e.g. accuracy=0.95")
     target_value = _number(value, "--target value")
     class_costs = {k: _number(v, f"--class-cost {k}") for k, v in
-                   _parse_pairs(args.class_cost, "--class-cost").items()}
+                   parse_pairs(args.class_cost, "--class-cost").items()}
     from .plan import PlanRequest, make_plan
 
     request = PlanRequest(
@@ -498,7 +396,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
 def _cmd_fit(args: argparse.Namespace) -> int:
     from ._paths import check_output, study_inputs
     from .model import fit_model, save_model
-    from .study._integrity import recorded_table, study_json
+    from .study import recorded_table, study_json
 
     cut = args.confidence_cut
     if not 0 < cut < 1:

@@ -20,10 +20,11 @@ from .._errors import DataWarning
 from .._escape import markdown_text
 from .._seeding import derive_rng
 from ._dataset import UNLABELED
-from ._load import _load
+from ._load import load_source
 from ._shift import labeled_pool_shift, shift_warning
+from ._source import TableSource
 
-__all__ = ["DataCard", "USER_FIELDS", "find_leakage", "make_card", "write_card"]
+__all__ = ["DataCard", "USER_FIELDS", "card_of", "find_leakage", "make_card", "write_card"]
 
 log = logging.getLogger(__name__)
 
@@ -437,17 +438,23 @@ def make_card(
     delimiter: str | None = None,
     encoding: str | None = None,
 ) -> DataCard:
-    """Profile a table; same arguments as :func:`load_dataset`.
+    """Profile a table; same arguments as :func:`load_dataset` (``TableSource.card()`` is the
+    same for a :class:`TableSource`).
 
     Warnings raised while loading (DataWarning) are recorded in the card and raised again.
     """
+    return card_of(TableSource(
+        path, label_column=label_column, id_column=id_column,
+        unlabeled_markers=unlabeled_markers, kinds=kinds or {}, delimiter=delimiter,
+        encoding=encoding,
+    ))
+
+
+def card_of(source: TableSource) -> DataCard:
+    """The data card of ``source``'s table (see :func:`make_card`)."""
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)
-        loaded = _load(
-            path, label_column=label_column, id_column=id_column,
-            unlabeled_markers=unlabeled_markers, kinds=kinds, delimiter=delimiter,
-            encoding=encoding,
-        )
+        loaded = load_source(source)
     data_warnings = []
     for item in caught:
         if issubclass(item.category, DataWarning):
@@ -494,7 +501,7 @@ def make_card(
             f"({', '.join(repr(c) for c in list(rare['single_label'])[:5])}): the study trains "
             "on them but cannot evaluate them; label a second row of each")
 
-    path = Path(path)
+    path = source.path
     card = DataCard(
         source=str(path),
         sha256=str(dataset.sha256),
@@ -502,8 +509,8 @@ def make_card(
         n_rows=int(frame.shape[0]),
         n_columns=int(frame.shape[1]),
         n_encoded_features=int(dataset.X.shape[1]),
-        label_column=label_column,
-        id_column=id_column,
+        label_column=source.label_column,
+        id_column=source.id_column,
         columns=_column_profiles(frame, column_kinds),
         kinds=kinds_by,
         n_labeled=n_labeled,

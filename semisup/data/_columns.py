@@ -14,7 +14,7 @@ import pandas as pd
 from pandas.api import types as ptypes
 
 from .._errors import DataError
-from ._read import KIND_OVERRIDES
+from ._read import check_kinds
 
 __all__ = ["COLUMN_KINDS", "Where", "as_text", "infer_column_kinds", "looks_like_dates",
            "prepare_columns"]
@@ -293,11 +293,8 @@ def infer_column_kinds(
             kinds[column] = "id"
             continue
         if column in overrides:
-            kind = overrides[column]
-            if kind not in KIND_OVERRIDES:
-                raise DataError(f"column kind {column}={kind!r} is not a kind; use one of "
-                                f"{', '.join(KIND_OVERRIDES)}")
-            kinds[column] = kind
+            check_kinds({column: overrides[column]}, lambda c, k: f"column kind {c}={k!r}")
+            kinds[column] = overrides[column]
             continue
         series = frame[column]
         n_present = int(series.notna().sum())

@@ -18,9 +18,10 @@ from .._errors import DataError, DataWarning
 from ._columns import Where, as_text, infer_column_kinds, prepare_columns
 from ._dataset import Dataset
 from ._labels import encode_labels
-from ._read import KIND_OVERRIDES, file_sha256, is_text_table, read_table
+from ._read import check_kinds, file_sha256, is_text_table, read_table
+from ._source import TableSource
 
-__all__ = ["dataset_from_frame", "load_dataset"]
+__all__ = ["dataset_from_frame", "load_dataset", "load_source"]
 
 log = logging.getLogger(__name__)
 #: (table hash, note) pairs already logged at INFO in this process
@@ -98,9 +99,7 @@ def _check_shape_and_names(
                 f"{_suggest(column, columns)}, which is not in the table; fix the name in "
                 "--kind or the [kinds] table"
             )
-        if kind not in KIND_OVERRIDES:
-            raise DataError(f"kind override {column}={kind!r} is not a kind; use one of "
-                            f"{', '.join(KIND_OVERRIDES)}")
+        check_kinds({column: kind}, lambda c, k: f"kind override {c}={k!r}")
         if column in (label_column, id_column):
             raise DataError(f"kind override {column}={kind!r} names the label or id column; "
                             "remove it (those columns are never features)")
@@ -221,25 +220,18 @@ def dataset_from_frame(
     ).dataset
 
 
-def _load(
-    path: str | os.PathLike[str],
-    *,
-    label_column: str,
-    id_column: str | None = None,
-    unlabeled_markers: Sequence[str] = (),
-    kinds: Mapping[str, str] | None = None,
-    delimiter: str | None = None,
-    encoding: str | None = None,
-) -> _Loaded:
-    path = Path(path)
-    text_columns = [c for c in (label_column, id_column) if c]
-    frame = read_table(path, delimiter=delimiter, encoding=encoding, text_columns=text_columns)
+def load_source(source: TableSource) -> _Loaded:
+    """Read ``source``'s table and build its Dataset (the one reader of every table)."""
+    path = source.path
+    text_columns = [c for c in (source.label_column, source.id_column) if c]
+    frame = read_table(path, delimiter=source.delimiter, encoding=source.encoding,
+                       text_columns=text_columns)
     sha256 = file_sha256(path)
     where = Where(str(path), text_file=is_text_table(path))
     return _build(
-        frame, label_column=label_column, id_column=id_column,
-        unlabeled_markers=unlabeled_markers, kinds=kinds, where=where, source=path,
-        sha256=sha256,
+        frame, label_column=source.label_column, id_column=source.id_column,
+        unlabeled_markers=source.unlabeled_markers, kinds=source.kinds, where=where,
+        source=path, sha256=sha256,
     )
 
 
@@ -280,8 +272,8 @@ def load_dataset(
     DataError
         With a one-line message naming the file, column, row or value and the fix.
     """
-    return _load(
+    return TableSource(
         path, label_column=label_column, id_column=id_column,
-        unlabeled_markers=unlabeled_markers, kinds=kinds, delimiter=delimiter,
+        unlabeled_markers=unlabeled_markers, kinds=kinds or {}, delimiter=delimiter,
         encoding=encoding,
-    ).dataset
+    ).load()

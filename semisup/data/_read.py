@@ -20,7 +20,7 @@ import lzma
 import os
 import re
 import zlib
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -31,13 +31,28 @@ import pandas as pd
 
 from .._errors import DataError
 
-__all__ = ["KIND_OVERRIDES", "MISSING_TEXTS", "file_sha256", "is_text_table",
+__all__ = ["KIND_OVERRIDES", "MISSING_TEXTS", "check_kinds", "file_sha256", "is_text_table",
            "read_kind_overrides", "read_table", "read_table_chunks"]
 
 log = logging.getLogger(__name__)
 
 #: Kinds a user may force on a column (``--kind COL=KIND`` or a TOML ``[kinds]`` table).
 KIND_OVERRIDES = ("numeric", "categorical", "drop", "text")
+
+
+def check_kinds(kinds: Mapping[Any, Any], label: Callable[[Any, Any], str], *,
+                error: type[Exception] = DataError) -> dict[str, str]:
+    """``kinds`` (column -> kind) as a plain dict, or one ``error`` line for the first kind a
+    user may not force: ``label(column, kind)`` (e.g. ``"--kind a='numbers'"``), then "is not
+    a kind" and the kinds allowed. The one check of column kind overrides: the TOML reader,
+    the loader, the kind inference and the study spec use it."""
+    out: dict[str, str] = {}
+    for column, kind in kinds.items():
+        if not isinstance(kind, str) or kind not in KIND_OVERRIDES:
+            raise error(f"{label(column, kind)} is not a kind; allowed: "
+                        f"{', '.join(KIND_OVERRIDES)}")
+        out[str(column)] = kind
+    return out
 
 _PARQUET_SUFFIXES = {".parquet", ".pq", ".parq"}
 _EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
@@ -719,11 +734,5 @@ def read_kind_overrides(path: str | os.PathLike[str]) -> dict[str, str]:
         raise DataError(f"{path}: no [kinds] table; add one with lines like  col = \"numeric\"")
     if not isinstance(kinds, dict):
         raise DataError(f"{path}: 'kinds' must be a table ([kinds]) of column = kind lines")
-    out: dict[str, str] = {}
-    for column, kind in kinds.items():
-        if not isinstance(kind, str) or kind not in KIND_OVERRIDES:
-            raise DataError(f"{path}: [kinds] {column} = {kind!r} is not a kind; use one of "
-                            f"{', '.join(KIND_OVERRIDES)}")
-        out[str(column)] = kind
-    return out
+    return check_kinds(kinds, lambda column, kind: f"{path}: [kinds] {column} = {kind!r}")
 

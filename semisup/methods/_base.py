@@ -15,13 +15,13 @@ from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import check_is_fitted, validate_data
 
+from ..data import UNLABELED
 from ._spec import MethodUnavailable
 
 __all__ = ["PartiallyLabeledClassifier", "UNLABELED", "labeled_mask"]
 
 logger = logging.getLogger(__name__)
 
-UNLABELED = -1
 
 
 def labeled_mask(y: np.ndarray) -> np.ndarray:

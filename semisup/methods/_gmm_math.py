@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import linalg
 
-from ..pretrain._mixture import COVARIANCE_TYPES, component_log_densities
+from ..pretrain import COVARIANCE_TYPES, component_log_densities
 
 __all__ = [
     "COVARIANCE_TYPES",

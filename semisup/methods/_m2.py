@@ -33,6 +33,7 @@ import torch
 from torch import nn
 from torch.nn import functional as F
 
+from .._seeding import int_seed
 from ..pretrain import (
     BlockLayout,
     EpochLoop,
@@ -241,9 +242,7 @@ class M2Classifier(PartiallyLabeledClassifier):
         """The frozen :class:`M2Config` of the current parameters (``random_state`` as the
         seed an int, None or a ``RandomState`` gives)."""
         params = self.get_params(deep=False)
-        rs = params["random_state"]
-        if isinstance(rs, np.random.RandomState):
-            params["random_state"] = int(rs.randint(2**31))
+        params["random_state"] = int_seed(params["random_state"])
         return M2Config.from_params(params)
 
     def _fit_encoded(self, X, y_code):

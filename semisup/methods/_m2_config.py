@@ -9,14 +9,32 @@ an estimator's parameters from its ``__init__``; its defaults are this class's, 
 
 from __future__ import annotations
 
-import math
 import numbers
 from dataclasses import dataclass, fields
 from typing import Any
 
-from ..pretrain import check_integer, check_number
+from .._rules import Integer, Number, check_rules
 
 __all__ = ["M2Config"]
+
+
+
+#: M2's settings -> the values each takes (M2Config checks them all in one loop).
+_M2_RULES = {
+    "alpha": Number(0.0),
+    "hidden": Integer(1),
+    "latent_dim": Integer(1),
+    "batch_size": Integer(1),
+    "max_epochs": Integer(1),
+    "patience": Integer(1),
+    "min_validation_per_class": Integer(0),
+    "learning_rate": Number(0.0, low_open=True),
+    "validation_fraction": Number(0.0, 0.9),
+    "refit_fraction": Number(0.0),
+    "weight_decay": Number(0.0),
+    "n_threads": Integer(1, optional=True),
+    "random_state": Integer(0, optional=True),
+}
 
 
 @dataclass(frozen=True)
@@ -49,18 +67,7 @@ class M2Config:
     random_state: int | None = None  # seed; None = 0
 
     def __post_init__(self) -> None:
-        check_number("alpha", self.alpha, 0.0, math.inf)
-        for name in ("hidden", "latent_dim", "batch_size", "max_epochs", "patience"):
-            check_integer(name, getattr(self, name), 1)
-        check_integer("min_validation_per_class", self.min_validation_per_class, 0)
-        check_number("learning_rate", self.learning_rate, 0.0, math.inf, low_open=True)
-        check_number("validation_fraction", self.validation_fraction, 0.0, 0.9)
-        check_number("refit_fraction", self.refit_fraction, 0.0, math.inf)
-        check_number("weight_decay", self.weight_decay, 0.0, math.inf)
-        if self.n_threads is not None:
-            check_integer("n_threads", self.n_threads, 1)
-        if self.random_state is not None:
-            check_integer("random_state", self.random_state, 0)
+        check_rules(self, _M2_RULES)
 
     @classmethod
     def from_params(cls, params: dict[str, Any]) -> M2Config:

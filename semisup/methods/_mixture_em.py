@@ -9,6 +9,8 @@ from typing import ClassVar
 import numpy as np
 
 from .._errors import ConfigError, FitWarning
+from .._rules import Choice, Integer, Number, Refused, check_rules
+from .._seeding import int_seed
 from ._base import PartiallyLabeledClassifier
 from ._gmm_math import COVARIANCE_TYPES, EMResult, e_step, run_em
 from ._spec import MethodUnavailable, Variant, register_variants
@@ -18,24 +20,21 @@ __all__ = ["MixtureEMClassifier"]
 logger = logging.getLogger(__name__)
 
 
-def _is_int(v) -> bool:
-    return isinstance(v, (int, np.integer)) and not isinstance(v, bool)
-
-
-def _is_real(v) -> bool:
-    return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)
-
-
-# One declared table of parameter rules: name -> (test, what is allowed).
+#: One declared table of parameter rules: name -> the values it takes.
 _PARAMETER_RULES = {
-    "n_components_per_class": (lambda v: _is_int(v) and v >= 1, "an integer >= 1"),
-    "covariance_type": (lambda v: v in COVARIANCE_TYPES, f"one of {COVARIANCE_TYPES}"),
-    "unlabeled_weight": (lambda v: _is_real(v) and 0.0 <= v <= 1.0, "a number in [0, 1]"),
-    "reg_covar": (lambda v: _is_real(v) and v >= 0.0, "a number >= 0"),
-    "tol": (lambda v: _is_real(v) and v >= 0.0, "a number >= 0"),
-    "max_iter": (lambda v: _is_int(v) and v >= 1, "an integer >= 1"),
-    "n_init": (lambda v: _is_int(v) and v >= 1, "an integer >= 1"),
+    "n_components_per_class": Integer(1),
+    "covariance_type": Choice(COVARIANCE_TYPES, words="give one of {}"),
+    "unlabeled_weight": Number(0.0, 1.0),
+    "reg_covar": Number(0.0),
+    "tol": Number(0.0),
+    "max_iter": Integer(1),
+    "n_init": Integer(1),
 }
+
+
+def _refusal(name: str, value: object, refused: Refused) -> ConfigError:
+    return ConfigError(f"MixtureEMClassifier: parameter {name}={value!r} is not allowed; "
+                       f"{refused.allowed}")
 
 
 class MixtureEMClassifier(PartiallyLabeledClassifier):
@@ -122,13 +121,7 @@ class MixtureEMClassifier(PartiallyLabeledClassifier):
         self.random_state = random_state
 
     def _check_params(self) -> None:
-        for name, (ok, allowed) in _PARAMETER_RULES.items():
-            value = getattr(self, name)
-            if not ok(value):
-                raise ConfigError(
-                    f"MixtureEMClassifier: parameter {name}={value!r} is not allowed; use "
-                    f"{allowed}"
-                )
+        check_rules(self, _PARAMETER_RULES, error=_refusal)
 
     def _fit_encoded(self, X: np.ndarray, y_code: np.ndarray) -> None:
         self._check_params()
@@ -140,10 +133,7 @@ class MixtureEMClassifier(PartiallyLabeledClassifier):
         n_classes = self.classes_.size
         m = int(self.n_components_per_class)
         component_class = np.repeat(np.arange(n_classes), m)
-        rng = np.random.default_rng(
-            self.random_state if not isinstance(self.random_state, np.random.RandomState)
-            else self.random_state.randint(2**31)
-        )
+        rng = np.random.default_rng(int_seed(self.random_state))
         n_runs = int(self.n_init) if m > 1 else 1
         best: EMResult | None = None
         for _ in range(n_runs):

@@ -29,7 +29,7 @@ def crossfit_proba(method: Any, params: dict, seed: int, X_lab: np.ndarray, y_la
     study's tuning.
     """
     from ..methods import align_proba
-    from ..study._tuning import cv_splits, fit_method
+    from ..study import cv_splits, fit_method
 
     folds, note = cv_splits(y_lab, max_folds, seed)
     proba = np.full((len(y_lab), n_classes), np.nan)

@@ -28,7 +28,7 @@ from .. import __version__
 from .._errors import ConfigError, DataError, StoreError
 from .._jsonio import read_json_object
 from .._seeding import derive_seed
-from ..study._folder import StudyRecord, read_curves
+from ..study import StudyRecord, read_curves
 from ._crossfit import DEFAULT_CUTS, confidence_table, crossfit_proba
 from ._model import FittedModel
 
@@ -213,8 +213,7 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
     """The study's fitted stage ``kind``: from its cache entry, else refitted as it was
     (``own_y``: the table's own labels, from which the study carved its holdout; labels
     added in rounds are training rows and leave the stage's rows as they were)."""
-    from ..pretrain import fit_representation
-    from ..pretrain._cache import load_entry
+    from ..pretrain import fit_representation, load_entry
 
     diag = StudyRecord.from_dict(info).representation.get(kind) or {}
     key, cached = diag.get("cache_key"), diag.get("cache_path")
@@ -228,7 +227,7 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
         if stage is not None and int(stage.n_features_in_) == ds.X.shape[1]:
             log.info("%s stage reused from the study's cache (%s)", kind, entry)
             return stage, "reused from the study's cache"
-    from ..study._representations import stage_fit_rows
+    from ..study import stage_fit_rows
 
     # the study's rule: a seeded sample past stage_rows (the same rows as the study's draw)
     rows, _ = stage_fit_rows(_stage_rows(spec, np.asarray(own_y)), spec)
@@ -244,15 +243,13 @@ def _unsupervised_stage(kind: str, ds: Any, spec: Any, folder: Path, info: dict,
 
 
 def _load_data(spec: Any, data: str | os.PathLike[str] | None, info: dict, folder: Path):
-    from ..data import load_dataset
-    from ..study._integrity import study_table
+    from ..data import TableSource
+    from ..study import study_table
 
     # the table by study.json's absolute path (or --data), refused unless its SHA-256 is the
     # one the study read
     path = study_table(folder, info, data=data, strict=True, option="--data").path
-    ds = load_dataset(path, label_column=spec.label_column, id_column=spec.id_column,
-                      unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
-                      delimiter=spec.delimiter, encoding=spec.encoding)
+    ds = TableSource.of(spec, path=path).load()
     return ds, []
 
 
@@ -307,7 +304,7 @@ class _Classifier:
 
 def _open_study(study_dir: str | os.PathLike[str], method: str | None) -> _Study:
     from ..methods import get_method
-    from ..study._integrity import check_exports
+    from ..study import check_exports
 
     folder = Path(study_dir)
     info, plan = read_study(folder)
@@ -325,7 +322,7 @@ def _open_study(study_dir: str | os.PathLike[str], method: str | None) -> _Study
 
 
 def _all_labels(study: _Study, data: str | os.PathLike[str] | None) -> _Labels:
-    from ..study._rounds import apply_added_labels, read_added_labels
+    from ..study import apply_added_labels, read_added_labels
 
     spec, folder = study.spec, study.folder
     ds, notes = _load_data(spec, data, study.info, folder)
@@ -369,7 +366,7 @@ def _fit_classifier(study: _Study, labels: _Labels, features: _Features,
                     crossfit_folds: int) -> _Classifier:
     """Tune on every label with the study's budget, fit, and cross-fit for the confidence
     table; semi-supervised methods also see (at most ``max_unlabeled``) unlabeled rows."""
-    from ..study._tuning import fit_method, tune_params
+    from ..study import fit_method, tune_params
 
     spec, name, m = study.spec, study.name, study.method
     X, y, labeled, unlabeled = features.X, labels.y, labels.labeled, labels.unlabeled
@@ -463,7 +460,7 @@ def fit_model(
     if isinstance(confidence_cut, bool) or not 0 < float(confidence_cut) < 1:
         raise ConfigError(f"--confidence-cut {confidence_cut!r} is not allowed; give a "
                           "probability between 0 and 1, e.g. 0.9")
-    from ..study._lock import study_lock
+    from ..study import study_lock
 
     folder = Path(study_dir)
     read_study(folder)  # a missing folder or study.json is one line before the lock

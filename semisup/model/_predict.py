@@ -24,8 +24,7 @@ from .._atomic import atomic_path
 from .._errors import ConfigError, DataError
 from .._paths import check_output
 from .._tables_out import ChunkedTableWriter, table_format
-from ..data import is_text_table, read_table_chunks
-from ..data._columns import as_text
+from ..data import as_text, is_text_table, read_table_chunks
 from ._model import FittedModel
 from ._prepare import InputCounts, check_columns
 

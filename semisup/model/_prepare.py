@@ -15,7 +15,7 @@ import pandas as pd
 from pandas.api import types as ptypes
 
 from .._errors import DataError
-from ..data._columns import as_text
+from ..data import as_text
 
 __all__ = ["InputCounts", "check_columns", "prepare_rows"]
 

@@ -35,12 +35,16 @@ from ._curves import (
     power_law,
 )
 from ._decision import (
+    DASH,
     FORECAST_CEILING,
     METRIC_WORDS,
+    as_number,
     decision_lines,
     forecast_span,
     forecast_value,
+    money,
     owned_option,
+    percent,
 )
 from ._ensemble import BacktestRecord, ensemble_records, family_errors, family_weights
 from ._families import FAMILIES, Family, exponential, fit_family_batch, mmf, weibull
@@ -62,6 +66,10 @@ from ._sheet import SHEET_FORMATS
 from ._track import score_plan, track_record
 
 __all__ = [
+    "DASH",
+    "as_number",
+    "money",
+    "percent",
     "BACKTEST_RATIO",
     "CURVE_COLUMNS",
     "FAMILIES",

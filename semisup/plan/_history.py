@@ -161,7 +161,7 @@ def list_plans(study_dir: str | Path) -> list[dict]:
 def read_forecast(study_dir: str | Path, plan: Mapping | None) -> pd.DataFrame | None:
     """The forecast points of ``plan`` (its ``forecast_file``, read and typed as curves.csv
     is), or None when absent."""
-    from ..study._folder import read_curves
+    from ..study import read_curves
 
     name = (plan or {}).get("forecast_file") if isinstance(plan, Mapping) else None
     if not name:
@@ -173,7 +173,7 @@ def read_forecast(study_dir: str | Path, plan: Mapping | None) -> pd.DataFrame |
 def read_measured(study_dir: str | Path) -> pd.DataFrame | None:
     """The study's measured points (``curves.csv``, written by the study only; read by the
     study folder's own reader), None when the file is absent or lacks the curve columns."""
-    from ..study._folder import read_curves
+    from ..study import read_curves
 
     curves = read_curves(Path(study_dir) / "curves.csv", PlanError)
     if curves is None:

@@ -483,7 +483,7 @@ class PlanInputs:
 def read_inputs(study_dir: str | os.PathLike[str]) -> PlanInputs:
     """Read what a plan needs from ``study_dir`` (cells.csv required; study.json,
     data_card.json, candidates.npz, the kept plans and curves.csv when present)."""
-    from ..study._integrity import check_exports
+    from ..study import check_exports
 
     study_dir = Path(study_dir)
     check_exports(study_dir, command="plan")  # a hand-edited cells.csv / curves.csv: one line

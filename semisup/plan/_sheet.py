@@ -35,7 +35,7 @@ def read_study_table(record: StudyRecord) -> tuple[pd.DataFrame | None, str | No
     warning says why) when study.json does not name it or it cannot be read any more.
     """
     from ..data import read_table
-    from ..study._integrity import recorded_table, study_table
+    from ..study import recorded_table, study_table
 
     spec, study = record.spec, record.raw
     path = recorded_table(study, ".")[0]  # by its absolute path, whatever the current folder

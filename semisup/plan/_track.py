@@ -16,7 +16,7 @@ from collections.abc import Iterable, Mapping
 import numpy as np
 import pandas as pd
 
-from ..study._folder import truthy as _truthy
+from ..study import truthy as _truthy
 from ._decision import forecast_span, forecast_value
 
 __all__ = ["score_plan", "track_lines", "track_record"]

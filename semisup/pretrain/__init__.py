@@ -12,6 +12,7 @@
 
 from __future__ import annotations
 
+from ._cache import load_entry
 from ._config import VAEConfig, check_integer, check_number
 from ._fit import (
     REPRESENTATION_KINDS,
@@ -29,11 +30,12 @@ from ._likelihood import (
     layout_from_blocks,
     reconstruction_log_likelihood,
 )
-from ._mixture import MixtureTransformer, component_log_densities
+from ._mixture import COVARIANCE_TYPES, MixtureTransformer, component_log_densities
 from ._train import EpochLoop, pinned_threads, torch_state, train_epochs
 from ._vae_transformer import VAETransformer
 
 __all__ = [
+    "COVARIANCE_TYPES",
     "REPRESENTATION_KINDS",
     "BlockLayout",
     "EpochLoop",
@@ -50,6 +52,7 @@ __all__ = [
     "gaussian_log_likelihood",
     "kl_standard_normal",
     "layout_from_blocks",
+    "load_entry",
     "pinned_threads",
     "reconstruction_log_likelihood",
     "representation_params",

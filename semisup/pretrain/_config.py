@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import asdict, dataclass, fields
 from typing import Any
 
 from .._errors import ConfigError
+from .._rules import Choice, Integer, Number, OfType, Refused, Rule, check_rules
 
 __all__ = ["VAEConfig", "VAE_KINDS", "DECODER_VARIANCES", "SCALINGS", "check_integer",
            "check_number"]
@@ -51,34 +51,9 @@ class VAEConfig:
     progress: bool = False  # tqdm bar on a terminal (logging otherwise)
 
     def __post_init__(self) -> None:
-        _check_int("latent_dim", self.latent_dim, 1)
-        if not isinstance(self.hidden, tuple) or not all(
-            isinstance(h, int) and not isinstance(h, bool) and h >= 1 for h in self.hidden
-        ):
-            raise ConfigError(
-                f"hidden={self.hidden!r} is not allowed; give a tuple of positive integers "
-                "such as (128, 64), or () for a linear model"
-            )
-        _check_float("beta", self.beta, 0.0, math.inf)
-        _check_float("learning_rate", self.learning_rate, 0.0, math.inf, low_open=True)
-        _check_int("max_epochs", self.max_epochs, 1)
-        _check_int("batch_size", self.batch_size, 1)
-        _check_int("patience", self.patience, 1)
-        _check_float("validation_fraction", self.validation_fraction, 0.0, 0.9)
-        _check_int("kl_warmup_epochs", self.kl_warmup_epochs, 0)
-        if self.grad_clip is not None:
-            _check_float("grad_clip", self.grad_clip, 0.0, math.inf, low_open=True)
-        _check_choice("kind", self.kind, VAE_KINDS)
-        _check_choice("decoder_variance", self.decoder_variance, DECODER_VARIANCES)
-        _check_float("min_variance", self.min_variance, 0.0, 1.0, low_open=True)
-        _check_choice("scale", self.scale, SCALINGS)
-        _check_float("tol", self.tol, 0.0, math.inf)
-        if self.n_threads is not None:
-            _check_int("n_threads", self.n_threads, 1)
-        if self.random_state is not None:
-            _check_int("random_state", self.random_state, 0)
-        if not isinstance(self.progress, bool):
-            raise ConfigError(f"progress={self.progress!r} is not allowed; give True or False")
+        # whole numbers of any integer type are kept as int
+        for name, value in check_rules(self, _VAE_RULES).items():
+            object.__setattr__(self, name, value)
 
     @classmethod
     def from_params(cls, params: dict[str, Any]) -> VAEConfig:
@@ -100,14 +75,51 @@ class VAEConfig:
         return out
 
 
-def _check_int(name: str, value: object, low: int) -> None:
-    if isinstance(value, bool) or not isinstance(value, int) or value < low:
-        raise ConfigError(f"{name}={value!r} is not allowed; give an integer >= {low}")
+@dataclass(frozen=True)
+class _Widths(Rule):
+    """Hidden layer widths: a tuple of whole numbers >= 1 (() = a linear model)."""
+
+    def clean(self, value: Any) -> tuple[int, ...]:
+        if not isinstance(value, tuple) or not all(
+                isinstance(h, int) and not isinstance(h, bool) and h >= 1 for h in value):
+            raise Refused(self.describe())
+        return value
+
+    def describe(self) -> str:
+        return "give a tuple of positive integers such as (128, 64), or () for a linear model"
+
+
+def _choice(choices: tuple[str, ...]) -> Choice:
+    return Choice(choices, words="choose one of {}", quote=True)
+
+
+#: The VAE's settings -> the values each takes (VAEConfig checks them all in one loop).
+_VAE_RULES: dict[str, Rule] = {
+    "latent_dim": Integer(1),
+    "hidden": _Widths(),
+    "beta": Number(0.0),
+    "learning_rate": Number(0.0, low_open=True),
+    "max_epochs": Integer(1),
+    "batch_size": Integer(1),
+    "patience": Integer(1),
+    "validation_fraction": Number(0.0, 0.9),
+    "kl_warmup_epochs": Integer(0),
+    "grad_clip": Number(0.0, low_open=True, optional=True),
+    "kind": _choice(VAE_KINDS),
+    "decoder_variance": _choice(DECODER_VARIANCES),
+    "min_variance": Number(0.0, 1.0, low_open=True),
+    "scale": _choice(SCALINGS),
+    "tol": Number(0.0),
+    "n_threads": Integer(1, optional=True),
+    "random_state": Integer(0, optional=True),
+    "progress": OfType(bool, "give True or False"),
+}
 
 
 def check_integer(name: str, value: object, low: int) -> None:
-    """ConfigError naming ``name`` unless ``value`` is an int (not a bool) >= ``low``."""
-    _check_int(name, value, low)
+    """ConfigError naming ``name`` unless ``value`` is a whole number (not a bool) >=
+    ``low``."""
+    check_rules({name: value}, {name: Integer(low)})
 
 
 def check_number(
@@ -115,25 +127,4 @@ def check_number(
 ) -> None:
     """ConfigError naming ``name`` unless ``value`` is a number in [low, high] (or (low,
     high] with ``low_open``); +inf passes only when ``high`` is inf."""
-    _check_float(name, value, low, high, low_open=low_open)
-
-
-def _check_float(
-    name: str, value: object, low: float, high: float, *, low_open: bool = False
-) -> None:
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool)
-    if ok:
-        v = float(value)  # type: ignore[arg-type]
-        ok = math.isfinite(v) or high == math.inf and v == math.inf
-        ok = ok and (v > low if low_open else v >= low) and v <= high
-    if not ok:
-        side = ">" if low_open else ">="
-        upper = "" if high == math.inf else f" and <= {high}"
-        raise ConfigError(f"{name}={value!r} is not allowed; give a number {side} {low}{upper}")
-
-
-def _check_choice(name: str, value: object, choices: tuple[str, ...]) -> None:
-    if value not in choices:
-        raise ConfigError(
-            f"{name}={value!r} is not allowed; choose one of {', '.join(map(repr, choices))}"
-        )
+    check_rules({name: value}, {name: Number(low, high, low_open=low_open)})

@@ -17,8 +17,8 @@ from sklearn.utils.validation import check_is_fitted
 from threadpoolctl import threadpool_limits
 
 from .._errors import ConfigError, DataError
+from .._rules import Choice, Integer, Number, check_rules
 from .._seeding import derive_seed
-from ._config import check_number
 from ._validation import checked_rows
 
 __all__ = ["MixtureTransformer", "component_log_densities"]
@@ -27,6 +27,19 @@ logger = logging.getLogger(__name__)
 
 COVARIANCE_TYPES = ("full", "tied", "diag", "spherical")
 FEATURES = ("posterior", "logdensity", "both")
+#: Parameters with a rule of their own (the component counts and covariance types, which a
+#: grid may give instead, are checked together in ``_check_params``).
+_PARAMETER_RULES = {
+    "features": Choice(FEATURES, words="choose one of {}"),
+    "n_threads": Integer(1, optional=True),
+    "max_selection_rows": Integer(1),
+    "chunk_rows": Integer(1),
+    "max_iter": Integer(1),
+    "n_init": Integer(1),
+    "tol": Number(0.0, low_open=True),
+    "reg_covar": Number(0.0),
+    "random_state": Integer(0, optional=True),
+}
 _LOG_2PI = math.log(2.0 * math.pi)
 
 
@@ -150,10 +163,7 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
         self.random_state = random_state
 
     def _check_params(self) -> tuple[list[int], list[str]]:
-        if self.features not in FEATURES:
-            raise ConfigError(
-                f"features={self.features!r} is not allowed; choose one of {', '.join(FEATURES)}"
-            )
+        check_rules(self, _PARAMETER_RULES)
         if self.n_components is not None:
             counts = [self.n_components]
         else:
@@ -175,24 +185,6 @@ class MixtureTransformer(TransformerMixin, BaseEstimator):
             raise ConfigError(
                 f"covariance type {bad[0] if bad else types!r} is not allowed; "
                 f"choose from {', '.join(COVARIANCE_TYPES)}"
-            )
-        if self.n_threads is not None and (
-            isinstance(self.n_threads, bool)
-            or not isinstance(self.n_threads, (int, np.integer))
-            or self.n_threads < 1
-        ):
-            raise ConfigError(f"n_threads={self.n_threads!r} is not allowed; give an int >= 1")
-        for name in ("max_selection_rows", "chunk_rows", "max_iter", "n_init"):
-            value = getattr(self, name)
-            if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
-                raise ConfigError(f"{name}={value!r} is not allowed; give an integer >= 1")
-        check_number("tol", self.tol, 0.0, math.inf, low_open=True)
-        check_number("reg_covar", self.reg_covar, 0.0, math.inf)
-        if self.random_state is not None and (
-            isinstance(self.random_state, bool) or not isinstance(self.random_state, int)
-        ):
-            raise ConfigError(
-                f"random_state={self.random_state!r} is not allowed; give an int or None"
             )
         return [int(c) for c in counts], types
 

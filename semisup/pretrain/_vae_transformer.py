@@ -14,7 +14,7 @@ from sklearn.utils import check_random_state
 from sklearn.utils.validation import check_is_fitted
 
 from .._errors import ConfigError, DataError
-from .._seeding import derive_seed
+from .._seeding import derive_seed, int_seed
 from ._config import VAEConfig
 from ._likelihood import BlockLayout, layout_from_blocks
 from ._train import EVAL_CHUNK_ROWS, evaluate_rows, pinned_threads, torch_state, train_module
@@ -215,14 +215,14 @@ class VAETransformer(ClassNamePrefixFeaturesOutMixin, TransformerMixin, BaseEsti
         return self
 
     def _seed(self) -> int:
-        if isinstance(self.random_state, (int, np.integer)) and not isinstance(
-            self.random_state, bool
-        ):
-            return int(self.random_state)
-        if self.random_state is None:
+        seed = int_seed(self.random_state)
+        if isinstance(seed, int) and not isinstance(seed, bool):
+            return seed
+        if seed is None:
             return int(check_random_state(None).randint(0, 2**31 - 1))
         raise ConfigError(
-            f"random_state={self.random_state!r} is not allowed; give a non-negative int or None"
+            f"random_state={self.random_state!r} is not allowed; give a non-negative int, a "
+            "numpy RandomState or None"
         )
 
     @property

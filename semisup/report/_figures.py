@@ -22,7 +22,7 @@ from matplotlib.text import Text
 from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, NullLocator
 
 from ..plan import FORECAST_CEILING, METRIC_WORDS
-from ..study._folder import truthy
+from ..study import truthy
 
 __all__ = [
     "FAMILY_TITLES",
@@ -87,8 +87,8 @@ def interval_name(level: float | None, kind: str, n_repeats: Sequence[int] = (),
                   brief: bool = False) -> str:
     """``"95% interval of the measured mean over 5 repeats (Student-t)"`` or ``"90% interval
     of the forecast (bootstrap)"`` (kind ``"continued"``: the plan continued the curves
-    beyond the largest measured budget with the corpus prior); ``brief`` gives the short form for a table header
-    (``"90% interval"``)."""
+    beyond the largest measured budget with the corpus prior); ``brief`` gives the short form
+    for a table header (``"90% interval"``)."""
     lvl = f"{level:.0%} " if level else ""
     if brief:
         return f"{lvl}interval"

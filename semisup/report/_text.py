@@ -10,8 +10,8 @@ import math
 import re
 from collections.abc import Mapping, Sequence
 
-from ..plan._decision import DASH, money, percent
-from ..plan._decision import as_number as _number
+from ..plan import DASH, money, percent
+from ..plan import as_number as _number
 from ._html import Table
 
 __all__ = [
@@ -179,7 +179,7 @@ def imbalance_text(card: Mapping) -> str:
     ratio = _number(card.get("imbalance_ratio"))
     if ratio is None:
         return ""
-    from ..data._card import IMBALANCE_RATIO
+    from ..data import IMBALANCE_RATIO
 
     if ratio >= IMBALANCE_RATIO:
         return (f"Imbalanced labels: the largest labeled class has {num(ratio, 1)} times the "

@@ -35,7 +35,7 @@ from ..plan import (
     study_state,
     tidy_cells,
 )
-from ..study import MEASURED_INTERVAL, StudyRecord
+from ..study import CURVE_CONFIDENCE, StudyRecord
 from ._evidence import evidence_section
 from ._figures import METRIC_LABELS, BudgetFacts, curve_figure, curve_panels, interval_name
 from ._html import Picture, ReportContent, Section, Table, render_html
@@ -111,7 +111,7 @@ def _measured_level(curves: pd.DataFrame | None, plan: Mapping | None) -> float:
         vals = vals.dropna()
         if not vals.empty:
             return float(vals.iloc[0])
-    return MEASURED_INTERVAL
+    return CURVE_CONFIDENCE
 
 
 def _repeats(curves: pd.DataFrame | None) -> list[int]:
@@ -142,7 +142,7 @@ def recommended_metric(plan: Mapping | None, card: Mapping) -> tuple[str, str]:
     named = card.get("recommended_metric")
     if named in METRICS:
         return str(named), "the metric the data card recommends"
-    from ..data._card import is_imbalanced
+    from ..data import is_imbalanced
 
     ratio = card.get("imbalance_ratio")
     if isinstance(ratio, (int, float)) and is_imbalanced(ratio):
@@ -634,7 +634,7 @@ def write_report(study_dir: str | os.PathLike[str], *, currency: str = "") -> Pa
     study_dir = Path(study_dir)
     if not study_dir.is_dir():
         raise StoreError(f"study folder {study_dir} does not exist; run 'semisup study' first")
-    from ..study._integrity import check_exports
+    from ..study import check_exports
 
     check_exports(study_dir, command="report")  # a hand-edited cells.csv / curves.csv
     cells = _read_csv(study_dir / "cells.csv")

@@ -21,8 +21,10 @@ import pandas as pd
 
 from .._errors import ConfigError, DataError
 from .._seeding import derive_seed
+from ..data import TableSource
 from ._draws import crossfit_folds, default_budgets, evaluable_folds, split_holdout
 from ._representations import stage_fit_rows
+from ._settings import SETTINGS
 from ._spec import StudySpec
 from ._testfile import load_test_rows
 
@@ -82,13 +84,7 @@ class StudyDesign:
 
 
 def _load_dataset(spec: StudySpec):
-    from ..data import load_dataset
-
-    return load_dataset(
-        spec.data, label_column=spec.label_column, id_column=spec.id_column,
-        unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
-        delimiter=spec.delimiter, encoding=spec.encoding,
-    )
+    return TableSource.of(spec).load()
 
 
 def _default_method_names(pool_size: int | None = None) -> list[str]:
@@ -110,10 +106,9 @@ def _data_digest(ds) -> str:
 
 
 #: Spec keys that only add or drop cells: they are left out of the settings fingerprint.
-GROWING_KEYS = ("repeats", "budgets", "methods", "strategies", "metrics")
+GROWING_KEYS = tuple(s.name for s in SETTINGS if s.grows)
 #: Spec keys that decide how the table is read (and so the raw features).
-_LOADING_KEYS = ("label_column", "id_column", "unlabeled_markers", "kinds", "delimiter",
-                 "encoding")
+_LOADING_KEYS = TableSource.settings()
 
 
 def _digest(*parts: Any) -> str:

@@ -109,16 +109,12 @@ def write_data_card(out: Path, spec: Any, injected: bool, info: dict) -> Any:
         info.setdefault("notes", []).append("data card not written (dataset given directly)")
         return None
     try:
-        from ..data import make_card, write_card
+        from ..data import TableSource, write_card
     except ImportError:
         info.setdefault("notes", []).append("data card not written (semisup.data.make_card "
                                             "unavailable)")
         return None
-    card = make_card(
-        spec.data, label_column=spec.label_column, id_column=spec.id_column,
-        unlabeled_markers=spec.unlabeled_markers, kinds=dict(spec.kinds) or None,
-        delimiter=spec.delimiter, encoding=spec.encoding,
-    )
+    card = TableSource.of(spec).card()
     write_card(card, Path(out) / "data_card.md")
     return card
 

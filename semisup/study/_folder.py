@@ -242,14 +242,14 @@ class StudyRecord:
         counts = list(self.data.class_counts.values())
         if len(counts) < 2:
             return None
-        from ..data._card import imbalance_ratio
+        from ..data import imbalance_ratio
 
         return imbalance_ratio(counts)
 
     @property
     def imbalanced(self) -> bool:
         """Whether the labeled classes are imbalanced by the data card's one rule."""
-        from ..data._card import is_imbalanced
+        from ..data import is_imbalanced
 
         ratio = self.imbalance_ratio
         return ratio is not None and is_imbalanced(ratio)

@@ -164,7 +164,7 @@ def study_table(study_dir: str | os.PathLike[str], study: Mapping | None = None,
     strict : raise DataError when the table is missing or changed (``fit``, ``add-labels``);
         otherwise return the check and let the caller say so.
     """
-    from ..data._read import file_sha256
+    from ..data import file_sha256
 
     folder = Path(study_dir)
     study = study_json(folder) if study is None else study

@@ -138,12 +138,12 @@ def _mean_recall(texts) -> dict[str, float]:
     return {k: float(np.mean(v)) for k, v in sums.items()}
 
 
-#: Coverage of the measured points' intervals in curves.csv (the study's default).
-MEASURED_INTERVAL = 0.95
+#: Level of the measured points' intervals in curves.csv (``summarize_curves``' default).
+CURVE_CONFIDENCE = 0.95
 
 
 def summarize_curves(cells: pd.DataFrame, metrics=METRICS,
-                     confidence: float = MEASURED_INTERVAL, *,
+                     confidence: float = CURVE_CONFIDENCE, *,
                      evaluation: Mapping[str, Any] | None = None):
     """Measured curve points: per method, strategy, metric and budget, mean and interval.
 

@@ -1,11 +1,11 @@
 """Reference of every study TOML key, generated from the code that reads them.
 
-The top-level keys come from :class:`StudySpec` (its fields' defaults and the numpydoc
-``Parameters`` section of its docstring); the ``[pretrain.vae]`` and ``[pretrain.mixture]``
-keys from the parameters the unsupervised stage accepts (``VAETransformer`` /
-``MixtureTransformer``), with their meanings from ``VAEConfig``'s field comments and
-``MixtureTransformer``'s docstring. ``python -m semisup.study._reference`` prints the Markdown
-table; ``--write FILE`` replaces the part of FILE between the two marker lines.
+The top-level keys come from the settings table ``SETTINGS`` (``study/_settings.py``: type
+and meaning) and :class:`StudySpec` (its fields' defaults); the ``[pretrain.vae]`` and
+``[pretrain.mixture]`` keys from the parameters the unsupervised stage accepts
+(``VAETransformer`` / ``MixtureTransformer``), with their meanings from ``VAEConfig``'s field
+comments and ``MixtureTransformer``'s docstring. ``python -m semisup.study._reference`` prints
+the Markdown table; ``--write FILE`` replaces the part of FILE between the two marker lines.
 """
 
 from __future__ import annotations
@@ -20,6 +20,7 @@ from pathlib import Path
 
 from .._atomic import atomic_write_text
 from .._errors import ConfigError
+from ._settings import SETTINGS
 from ._spec import StudySpec
 
 __all__ = ["BEGIN", "END", "KeyDoc", "reference_entries", "toml_reference"]
@@ -35,19 +36,6 @@ _MIXTURE_EXTRA = {
     "covariance_types": "covariance types tried by BIC when covariance_type is not fixed",
     "max_selection_rows": "above this many rows the BIC grid is scored on a seeded subsample "
                           "(the chosen model is then refitted on all rows)",
-}
-
-
-# Types and meanings of the table-reading keys, which StudySpec's docstring documents only as
-# "passed to semisup.data.load_dataset".
-_SPEC_EXTRA = {
-    "id_column": ("str", "column of row ids (not set: the 0-based row number)"),
-    "unlabeled_markers": ("list of str", "extra label texts that mean unlabeled (empty cells "
-                                         "and NA always do)"),
-    "kinds": ("table", "column = kind overrides of the inferred kinds (numeric, categorical, "
-                       "drop, text)"),
-    "delimiter": ("str", "field separator of a text table (not set: sniffed)"),
-    "encoding": ("str", "text encoding (not set: utf-8)"),
 }
 
 
@@ -137,22 +125,17 @@ def _show(value: object) -> str:
 
 
 def _spec_entries() -> list[KeyDoc]:
-    docs = _numpydoc_params(StudySpec.__doc__ or "")
+    fields = {f.name: f for f in dataclasses.fields(StudySpec)}
     out = []
-    for f in dataclasses.fields(StudySpec):
-        kind, meaning = docs.get(f.name, ("", ""))
-        if f.name in _SPEC_EXTRA and (not meaning or meaning.startswith("Passed to")):
-            kind, meaning = _SPEC_EXTRA[f.name]
+    for row in SETTINGS:
+        f = fields[row.name]
         if f.default is not dataclasses.MISSING:
             default = _show(f.default)
         elif f.default_factory is not dataclasses.MISSING:  # type: ignore[misc]
             default = _show(f.default_factory())  # type: ignore[misc]
         else:
             default = "required"
-        if f.name == "pretrain":
-            meaning = ("tables [pretrain.vae] and [pretrain.mixture] of the unsupervised "
-                       "stage's settings (keys below)")
-        out.append(KeyDoc(f.name, "", kind, default, meaning))
+        out.append(KeyDoc(row.name, "", row.type, default, row.meaning))
     return out
 
 
@@ -175,8 +158,7 @@ def _annotation(cls: type) -> Callable[[str], str]:
 
 def reference_entries() -> list[KeyDoc]:
     """Every key a study TOML file may hold, in the order of the reference."""
-    from ..pretrain import MixtureTransformer, VAETransformer
-    from ..pretrain._config import VAEConfig
+    from ..pretrain import MixtureTransformer, VAEConfig, VAETransformer
 
     vae = _stage_entries("pretrain.vae", VAETransformer, _field_comments(VAEConfig),
                          _annotation(VAEConfig))

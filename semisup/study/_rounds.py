@@ -127,7 +127,7 @@ def apply_added_labels(ds, added: AddedLabels, *, where: str = ADDED_LABELS_FILE
         return ds
     from dataclasses import replace
 
-    from ..data._labels import sort_class_names
+    from ..data import sort_class_names
 
     ids = pd.Index(np.asarray(ds.row_ids).astype(str))
     pos = ids.get_indexer(list(added.row_ids))
@@ -243,7 +243,7 @@ def add_labels(study_dir: str | os.PathLike[str], returned: str | os.PathLike[st
 
 def _add_labels(out: Path, study: StudyRecord, returned: Path,
                 allow_new_classes: bool) -> AddResult:
-    from ..data import load_dataset
+    from ..data import TableSource
 
     spec = study.spec
     if not spec.get("data") or not spec.get("label_column"):
@@ -255,11 +255,7 @@ def _add_labels(out: Path, study: StudyRecord, returned: Path,
     check_output(out / ADDED_LABELS_FILE, option="add-labels: the study's labels file",
                  inputs={"the returned sheet": returned, "the study's table": table})
     ids, labels, n_blank = _returned_labels(study, returned)
-    ds = load_dataset(table, label_column=spec["label_column"],
-                      id_column=spec.get("id_column"),
-                      unlabeled_markers=tuple(spec.get("unlabeled_markers") or ()),
-                      kinds=dict(spec.get("kinds") or {}), delimiter=spec.get("delimiter"),
-                      encoding=spec.get("encoding"))
+    ds = TableSource.of(spec, path=table).load()
     before = read_added_labels(out)
     current = apply_added_labels(ds, before)
     table_ids = pd.Index(np.asarray(current.row_ids).astype(str))

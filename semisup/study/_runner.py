@@ -16,7 +16,7 @@ import pandas as pd
 
 from .._errors import ConfigError
 from .._progress import Progress
-from ..data._shift import shift_warning
+from ..data import shift_warning
 from ..methods import stage_kind
 from ._backends import run_cells
 from ._candidates import refit_candidates

