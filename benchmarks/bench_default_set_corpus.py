@@ -43,6 +43,9 @@ sys.path.insert(0, str(ROOT / "experiments" / "curves"))
 RATIOS = (1, 2, 4)
 TARGETS = (20, 50, 100)
 TOLERANCE = 0.01
+#: Float slack on the tolerance: users' accuracies are multiples of 1 / (evaluated rows), so
+#: a difference of exactly one row in a hundred must not count as "more than 0.01".
+SLACK = 1e-9
 GENERATIVE_FAMILIES = ("latent", "generative")
 #: The default set at 200 labeled rows before issue 23 (trees from 1,000 rows), for contrast.
 BEFORE = ("supervised-logreg", "supervised-svm", "label-spreading", "latent-spreading",
@@ -165,15 +168,15 @@ def main(argv: list[str] | None = None) -> int:
         sub = reg[reg["ratio"] == r]
         gap = (sub["best"] - sub["default"]).to_numpy()
         old = (sub["best"] - sub["before"]).to_numpy()
-        share = float(np.mean(gap <= TOLERANCE))
+        share = float(np.mean(gap <= TOLERANCE + SLACK))
         goal_met &= share >= 0.9
         print(f"  {r}x ({len(sub)} tasks = table x user, budgets "
               f"{int(sub['n_labels'].min())}-{int(sub['n_labels'].max())}): within 0.01 on "
               f"{share:.0%} (mean regret {gap.mean():.4f}, worst {gap.max():.4f}); set before "
-              f"issue 23: {np.mean(old <= TOLERANCE):.0%} (mean {old.mean():.4f}, worst "
+              f"issue 23: {np.mean(old <= TOLERANCE + SLACK):.0%} (mean {old.mean():.4f}, worst "
               f"{old.max():.4f})")
     print(f"  goal (>= 90% at 1x, 2x and 4x): {'met' if goal_met else 'not met'}")
-    bad = reg[(reg["best"] - reg["default"]) > TOLERANCE]
+    bad = reg[(reg["best"] - reg["default"]) > TOLERANCE + SLACK]
     if len(bad):
         print("  tasks more than 0.01 behind (table, user, ratio: best default / best measured):")
         for _, b in bad.iterrows():
@@ -190,22 +193,25 @@ def main(argv: list[str] | None = None) -> int:
     for target in TARGETS:
         sub = gen[(gen["target"] == target) & gen["gap"].notna()]
         d = sub["gap"].to_numpy()
-        win, lose = float(np.mean(d > 0)), float(np.mean(d < -TOLERANCE))
+        win, lose = float(np.mean(d > SLACK)), float(np.mean(d < -TOLERANCE - SLACK))
         print(f"  ~{target:>3} labels (measured {int(sub['n_labels'].min())}-"
               f"{int(sub['n_labels'].max())}; {len(sub)} tasks): wins on {win:.0%}, loses by "
               f"> 0.01 on {lose:.0%} (median {np.median(d):+.4f}); goal >= 50% / <= 10%: "
               f"{'met' if win >= 0.5 and lose <= 0.1 else 'not met'}")
-        top = sub.loc[sub["gap"] > 0, "gen"].value_counts()
+        top = sub.loc[sub["gap"] > SLACK, "gen"].value_counts()
         if len(top):
             print("      winning generative methods: "
                   + ", ".join(f"{m} {k}" for m, k in top.items()))
     tg = truth_generative_rows(tasks)
     d = tg["gap"].dropna().to_numpy()
     if len(d):
+        lose = np.mean(d < -TOLERANCE - SLACK)
         print(f"  truth at its budget nearest 100 ({int(tg['n_labels'].min())}-"
               f"{int(tg['n_labels'].max())}; {len(d)} tables, more evaluation rows): wins on "
-              f"{np.mean(d > 0):.0%}, loses by > 0.01 on {np.mean(d < -TOLERANCE):.0%} "
-              f"(median {np.median(d):+.4f})")
+              f"{np.mean(d > SLACK):.0%}, loses by > 0.01 on {lose:.0%} "
+              f"(median {np.median(d):+.4f}); winners: "
+              + ", ".join(f"{m} {k}" for m, k in
+                          tg.loc[tg["gap"] > SLACK, "gen"].value_counts().items()))
     return 0
 
 
