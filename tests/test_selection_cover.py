@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from semisup import ConfigError
-from semisup.selection import cover_select, density_ratio, gap_weights, select_rows
+from semisup.selection import cover_select, density_ratio, gap_weights, margins, select_rows
 
 
 def test_gap_weights_follow_the_mixture_identity():
@@ -51,9 +51,12 @@ def test_weighted_random_first_pick_is_proportional_to_weight():
     assert chisquare(counts[keep], expected[keep]).pvalue > 1e-4
 
 
-def test_without_shift_uncertainty_and_representative_match_the_plain_strategies():
+def test_without_shift_representative_matches_and_uncertainty_draws_by_margin():
     # scikit-learn's digits (real rows); scores 0.5 everywhere means no shift: every weight is
-    # 1 and the re-weighted strategies must pick what select_rows picks.
+    # 1, so representative must pick what select_rows picks, and uncertainty draws with
+    # weights 1 - margin: its first pick's frequencies follow those shares (scipy's
+    # chisquare is the reference).
+    from scipy.stats import chisquare
     from sklearn.datasets import load_digits
     from sklearn.linear_model import LogisticRegression
 
@@ -61,10 +64,19 @@ def test_without_shift_uncertainty_and_representative_match_the_plain_strategies
     X, y = X[:400], y[:400]
     proba = LogisticRegression(max_iter=2000).fit(X[:60], y[:60]).predict_proba(X)
     s = np.full(len(X), 0.5)
-    for strategy in ("uncertainty", "representative"):
-        plain = select_rows(strategy, X, 12, seed=3, proba=proba)
-        cover = cover_select(strategy, X, 12, scores=s, n_labeled=60, seed=3, proba=proba)
-        assert list(cover.indices) == list(plain.indices), strategy
+    plain = select_rows("representative", X, 12, seed=3)
+    cover = cover_select("representative", X, 12, scores=s, n_labeled=60, seed=3)
+    assert list(cover.indices) == list(plain.indices)
+    rows = np.arange(8)  # eight candidates of different margins
+    share = 1 - margins(proba[rows])
+    counts = np.zeros(len(rows))
+    for seed in range(2000):
+        counts[cover_select("uncertainty", X[rows], 1, scores=s[rows], n_labeled=60, seed=seed,
+                            proba=proba[rows]).indices[0]] += 1
+    expected = share / share.sum() * counts.sum()
+    keep = expected > 5
+    assert chisquare(counts[keep], expected[keep] * counts[keep].sum()
+                     / expected[keep].sum()).pvalue > 1e-4
 
 
 def test_cover_select_checks_its_input():
