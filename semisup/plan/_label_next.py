@@ -119,5 +119,5 @@ def _cover_line(candidates: Mapping[str, np.ndarray], used: str, n_take: int,
     shown = f" (two-sample AUC {auc:.2f})" if np.isfinite(auc) else ""
     return (f"the labeled rows are unlike the pool{shown}, so the {n_take} rows to label next "
             f"are chosen by {used} selection weighted towards the pool regions the "
-            f"{n_labeled} labels miss (label_next.csv gives each row's weight); once they "
-            "are labeled, the estimates hold better for the pool")
+            f"{n_labeled} labels miss (label_next.csv gives each row's weight), so that, once "
+            "labeled, the labeled rows look more like the pool")
