@@ -21,7 +21,7 @@ from .._escape import markdown_text
 from .._seeding import derive_rng
 from ._dataset import UNLABELED
 from ._load import load_source
-from ._shift import labeled_pool_shift, shift_warning
+from ._shift import labeled_pool_shift, shift_seed, shift_warning
 from ._source import TableSource
 
 __all__ = ["DataCard", "USER_FIELDS", "card_of", "find_leakage", "make_card", "write_card"]
@@ -489,8 +489,7 @@ def card_of(source: TableSource) -> DataCard:
     pairs = pd.DataFrame({"h": feature_hash[labeled], "y": y[labeled]})
     conflicting = pairs.groupby("h", sort=False)["y"].transform("nunique").to_numpy() > 1
     leakage, leakage_note = find_leakage(loaded.features, column_kinds, y)
-    shift = labeled_pool_shift(dataset.X, labeled, blocks=dataset.blocks,
-                               seed=derive_rng(0, "data-card", "shift").integers(2**31))
+    shift = labeled_pool_shift(dataset.X, labeled, blocks=dataset.blocks, seed=shift_seed())
     rare = _rare_classes(class_counts)
     card_warnings = list(data_warnings)
     if shift_warning(shift):

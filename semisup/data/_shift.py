@@ -22,7 +22,8 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["SHIFT_AUC_MARGIN", "auc_delong", "labeled_pool_shift", "shift_warning"]
+__all__ = ["SHIFT_AUC_MARGIN", "auc_delong", "labeled_pool_shift", "pool_scores",
+           "shift_seed", "shift_warning"]
 
 #: The labeled rows are called clearly unlike the pool when the interval's lower end is above
 #: 0.5 + this margin (common practice, no source: an AUC of 0.55 is about the smallest
@@ -33,6 +34,14 @@ MAX_POOL_PER_LABELED = 20
 MAX_POOL_ROWS = 20_000
 #: Columns listed as driving the difference at most.
 TOP_COLUMNS = 5
+
+
+def shift_seed() -> int:
+    """The seed of the data card's check (and of :func:`pool_scores` after it, so both use
+    the same pool sample, folds and trees)."""
+    from .._seeding import derive_rng
+
+    return int(derive_rng(0, "data-card", "shift").integers(2**31))
 
 
 def _midranks(x: np.ndarray) -> np.ndarray:
@@ -113,19 +122,17 @@ def labeled_pool_shift(
         return _shift(X, labeled, blocks, seed, n_folds, confidence)
 
 
-def _shift(X, labeled, blocks, seed, n_folds, confidence) -> dict[str, Any]:
-    from scipy import stats
+def _crossfit(X: np.ndarray, labeled: np.ndarray, rng: np.random.Generator,
+              n_folds: int) -> dict[str, Any] | None:
+    """The cross-fitted labeled-versus-unlabeled classifier: the rows used (every labeled
+    row, a seeded sample of the pool), their folds, out-of-fold scores and fold models.
+    None when a sample has fewer than ``n_folds`` rows."""
     from sklearn.ensemble import HistGradientBoostingClassifier
 
-    X = np.asarray(X, dtype=np.float32)
-    labeled = np.asarray(labeled, dtype=bool)
-    rng = np.random.default_rng(seed)
     lab = np.flatnonzero(labeled)
     unl = np.flatnonzero(~labeled)
     if len(lab) < n_folds or len(unl) < n_folds:
-        return {"checked": False,
-                "reason": f"{len(lab)} labeled and {len(unl)} unlabeled rows; the test needs "
-                          f"at least {n_folds} of each"}
+        return None
     cap = int(min(MAX_POOL_ROWS, MAX_POOL_PER_LABELED * len(lab)))
     if len(unl) > cap:
         unl = np.sort(rng.choice(unl, cap, replace=False))
@@ -134,16 +141,13 @@ def _shift(X, labeled, blocks, seed, n_folds, confidence) -> dict[str, Any]:
     Xs = X[rows]
     fold = _folds(target, n_folds, rng)
     scores = np.empty(len(rows))
-    groups = ([(b.column, b.start, b.stop) for b in blocks] if blocks
-              else [(str(j), j, j + 1) for j in range(X.shape[1])])
-    columns: dict[str, list[int]] = {}
-    for name, start, stop in groups:
-        columns.setdefault(str(name), []).extend(range(start, stop))
     models = []
     for f in range(n_folds):
         train = fold != f
         # Balanced weights: the pool outnumbers the labeled rows up to 20:1 and AUC does not
-        # depend on the weighting, but the trees then split on the labeled rows too.
+        # depend on the weighting, but the trees then split on the labeled rows too. With
+        # them the scores estimate p_lab / (p_lab + p_pool), the two samples' density ratio
+        # in odds form (pool_scores relies on it).
         w = np.where(target[train], 0.5 / target[train].mean(), 0.5 / (~target[train]).mean())
         model = HistGradientBoostingClassifier(max_iter=50, learning_rate=0.1,
                                                max_leaf_nodes=15, min_samples_leaf=20,
@@ -151,6 +155,84 @@ def _shift(X, labeled, blocks, seed, n_folds, confidence) -> dict[str, Any]:
         model.fit(Xs[train], target[train], sample_weight=w)
         scores[~train] = model.predict_proba(Xs[~train])[:, 1]
         models.append(model)
+    return {"lab": lab, "unl": unl, "rows": rows, "target": target, "Xs": Xs, "fold": fold,
+            "scores": scores, "models": models}
+
+
+def pool_scores(X: np.ndarray, labeled: np.ndarray, *, seed: int = 0,
+                n_folds: int = 5) -> np.ndarray | None:
+    """Each unlabeled row's score of looking labeled, from the two-sample test's classifier.
+
+    The classifier of :func:`labeled_pool_shift` (same seed, pool sample, folds and trees),
+    fitted with balanced weights, so a score ``s`` estimates ``p_lab(x) / (p_lab(x) +
+    p_pool(x))`` and ``s / (1 - s)`` the density ratio of the labeled rows to the pool
+    (Sugiyama, Suzuki & Kanamori 2012, "Density ratio estimation in machine learning",
+    ch. 4: probabilistic classification). A sampled pool row gets the score of the fold
+    model that did not see it; a row outside the sample the mean of the fold models (none saw
+    it). The trees' scores are shrunk (50 small trees, out of fold): where labeled and pool
+    rows mix they sit far below the ratio's value, so they are recalibrated by Platt scaling
+    (Platt 1999: a logistic regression of the sample on the score's logit, balanced weights)
+    fitted on the cross-fitted scores of every row used.
+
+    Returns
+    -------
+    ndarray of shape (n_unlabeled,) or None
+        Scores of the rows where ``labeled`` is False, in row order; None when a sample has
+        fewer than ``n_folds`` rows.
+    """
+    from threadpoolctl import threadpool_limits
+
+    X = np.asarray(X, dtype=np.float32)
+    labeled = np.asarray(labeled, dtype=bool)
+    with threadpool_limits(1):
+        fit = _crossfit(X, labeled, np.random.default_rng(seed), n_folds)
+        if fit is None:
+            return None
+        unl_all = np.flatnonzero(~labeled)
+        out = np.empty(len(unl_all))
+        sampled = np.isin(unl_all, fit["unl"])
+        out[sampled] = fit["scores"][len(fit["lab"]):]
+        rest = unl_all[~sampled]
+        if len(rest):
+            out[~sampled] = np.mean([m.predict_proba(X[rest])[:, 1] for m in fit["models"]],
+                                    axis=0)
+        return _platt(fit["scores"], fit["target"], out)
+
+
+def _logit(p: np.ndarray) -> np.ndarray:
+    p = np.clip(p, 1e-4, 1 - 1e-4)
+    return np.log(p / (1 - p))
+
+
+def _platt(scores: np.ndarray, target: np.ndarray, new: np.ndarray) -> np.ndarray:
+    """Platt scaling (Platt 1999) of ``new`` fitted on the out-of-fold ``scores`` against
+    ``target``, both samples weighted equally (the density-ratio reading needs it)."""
+    from sklearn.linear_model import LogisticRegression
+
+    w = np.where(target, 0.5 / target.mean(), 0.5 / (~target).mean())
+    cal = LogisticRegression(C=1e4).fit(_logit(scores)[:, None], target, sample_weight=w)
+    return cal.predict_proba(_logit(new)[:, None])[:, 1]
+
+
+def _shift(X, labeled, blocks, seed, n_folds, confidence) -> dict[str, Any]:
+    from scipy import stats
+
+    X = np.asarray(X, dtype=np.float32)
+    labeled = np.asarray(labeled, dtype=bool)
+    rng = np.random.default_rng(seed)
+    fit = _crossfit(X, labeled, rng, n_folds)
+    if fit is None:
+        n_lab = int(labeled.sum())
+        return {"checked": False,
+                "reason": f"{n_lab} labeled and {len(labeled) - n_lab} unlabeled rows; the "
+                          f"test needs at least {n_folds} of each"}
+    lab, unl, target, Xs = fit["lab"], fit["unl"], fit["target"], fit["Xs"]
+    fold, scores, models = fit["fold"], fit["scores"], fit["models"]
+    groups = ([(b.column, b.start, b.stop) for b in blocks] if blocks
+              else [(str(j), j, j + 1) for j in range(X.shape[1])])
+    columns: dict[str, list[int]] = {}
+    for name, start, stop in groups:
+        columns.setdefault(str(name), []).extend(range(start, stop))
     auc, se = auc_delong(scores[target], scores[~target])
     z = float(stats.norm.ppf(0.5 + confidence / 2))
     low, high = max(0.0, auc - z * se), min(1.0, auc + z * se)

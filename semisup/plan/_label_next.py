@@ -1,7 +1,10 @@
 """Rows to label next: the chosen selection strategy applied to the study's candidates.
 
 The strategies themselves live in :mod:`semisup.selection`; this module only prepares the
-candidates, calls ``select_rows`` and shapes the result as ``rank, row_id, reason``.
+candidates, calls ``select_rows`` and shapes the result as ``rank, row_id, reason``. When the
+study found the labeled rows unlike the pool (candidates.npz then holds ``cover_score``, each
+row's score of looking labeled), the same strategy is applied to the pool re-weighted towards
+the regions the labels miss (``semisup.selection.cover_select``); otherwise nothing changes.
 """
 
 from __future__ import annotations
@@ -83,8 +86,19 @@ def rank_rows(
     if n_take < n:
         warnings.append(f"only {row_ids.size} unlabeled rows are available, fewer than the "
                         f"{n} the plan asks for; all are listed")
-    selection = select_rows(used, np.asarray(Z), n_take, seed=seed,
-                            proba=None if proba is None else np.asarray(proba), exclude=None)
+    cover = candidates.get("cover_score")
+    if cover is not None and len(cover) == row_ids.size and np.all(np.isfinite(cover)):
+        from ..selection import cover_select
+
+        n_labeled = int(np.asarray(candidates.get("cover_n_labeled", 0)))
+        selection = cover_select(used, np.asarray(Z), n_take, scores=np.asarray(cover),
+                                 n_labeled=n_labeled, seed=seed,
+                                 proba=None if proba is None else np.asarray(proba))
+        warnings.append(_cover_line(candidates, used, n_take, n_labeled))
+    else:
+        selection = select_rows(used, np.asarray(Z), n_take, seed=seed,
+                                proba=None if proba is None else np.asarray(proba),
+                                exclude=None)
     indices = np.asarray(selection.indices, dtype=int)  # type: ignore[attr-defined]
     reasons = list(selection.reasons)  # type: ignore[attr-defined]
     if len(reasons) != len(indices):
@@ -97,3 +111,13 @@ def rank_rows(
     }))
     log.debug("ranked %d rows with %s", len(table), used)
     return table, used, warnings
+
+
+def _cover_line(candidates: Mapping[str, np.ndarray], used: str, n_take: int,
+                n_labeled: int) -> str:
+    auc = float(np.asarray(candidates.get("cover_auc", np.nan)))
+    shown = f" (two-sample AUC {auc:.2f})" if np.isfinite(auc) else ""
+    return (f"the labeled rows are unlike the pool{shown}, so the {n_take} rows to label next "
+            f"are chosen by {used} selection weighted towards the pool regions the "
+            f"{n_labeled} labels miss (label_next.csv gives each row's weight), so that, once "
+            "labeled, the labeled rows look more like the pool")

@@ -77,23 +77,29 @@ def _select_random(avail: np.ndarray, n: int, seed: int) -> Selection:
     return Selection(chosen.astype(np.int64), ["random draw"] * len(chosen))
 
 
-def _select_representative(Z: np.ndarray, avail: np.ndarray, n: int, seed: int) -> Selection:
-    """k-means (k = n, at most the rows left) in Z; rows nearest each centre, round-robin."""
+def _select_representative(Z: np.ndarray, avail: np.ndarray, n: int, seed: int,
+                           sample_weight: np.ndarray | None = None) -> Selection:
+    """k-means (k = n, at most the rows left) in Z; rows nearest each centre, round-robin.
+
+    ``sample_weight`` (one per row of ``avail``) weighs the rows in k-means and orders the
+    clusters by their weight instead of their size."""
     from sklearn.cluster import KMeans
 
     Zc = np.asarray(Z, dtype=float)[avail]
     k = min(n, len(avail))
     if k == 0:
         return Selection(np.empty(0, dtype=np.int64), [])
-    km = KMeans(n_clusters=k, n_init=3, random_state=seed).fit(Zc)
+    km = KMeans(n_clusters=k, n_init=3, random_state=seed).fit(Zc, sample_weight=sample_weight)
     dist = np.linalg.norm(Zc - km.cluster_centers_[km.labels_], axis=1)
     # Per cluster: its members sorted by distance to the centre (nearest first).
     members = []
     for c in range(k):
         idx = np.flatnonzero(km.labels_ == c)
         members.append(idx[np.argsort(dist[idx], kind="stable")])
-    # Clusters visited largest first so the first rows stand for the most rows.
-    order = sorted(range(k), key=lambda c: (-len(members[c]), c))
+    # Clusters visited largest (heaviest) first so the first rows stand for the most rows.
+    mass = [len(m) if sample_weight is None else float(np.sum(sample_weight[m]))
+            for m in members]
+    order = sorted(range(k), key=lambda c: (-mass[c], c))
     chosen: list[int] = []
     reasons: list[str] = []
     rank = 0

@@ -11,11 +11,11 @@ import numpy as np
 import pandas as pd
 
 from .._seeding import derive_seed
-from ._exports import write_candidates
+from ._exports import write_candidates, write_candidates_arrays
 from ._representations import method_features
 from ._tuning import fit_method
 
-__all__ = ["refit_candidates"]
+__all__ = ["add_cover_scores", "refit_candidates"]
 
 log = logging.getLogger(__name__)
 
@@ -71,3 +71,36 @@ def refit_candidates(out: Path, ds: Any, ctx: Any, methods: dict[str, Any], cell
     )
     return {"method": best_name, "best_at_budget": top, "n_rows": int(len(unl)),
             "representation": rep_kind, "note": note}
+
+
+def add_cover_scores(out: Path, ds: Any, ctx: Any, shift: dict[str, Any] | None) -> dict | None:
+    """When the labeled-versus-pool check flags a shift, add to candidates.npz each candidate
+    row's score of looking labeled (``cover_score``, from the check's own classifier:
+    :func:`semisup.data._shift.pool_scores`) and the labeled-row count (``cover_n_labeled``);
+    the plan then draws the rows to label next towards the pool regions the labels miss
+    (:func:`semisup.selection.cover_select`). Without a flag nothing changes and None is
+    returned; else the facts study.json records under ``candidates.cover``."""
+    if not shift or not shift.get("clearly_different"):
+        return None
+    from ..data._shift import pool_scores, shift_seed
+
+    path = Path(out) / "candidates.npz"
+    labeled = np.asarray(ds.y) != -1
+    unl = np.asarray(ctx.unlabeled_idx)
+    if not path.is_file() or not len(unl) or np.any(labeled[unl]):
+        return None
+    scores = pool_scores(ds.X, labeled, seed=shift_seed())
+    if scores is None:
+        return None
+    full = np.full(len(labeled), np.nan)
+    full[~labeled] = scores
+    with np.load(path, allow_pickle=False) as npz:
+        arrays = {k: npz[k] for k in npz.files}
+    arrays["cover_score"] = full[unl].astype(np.float32)
+    arrays["cover_n_labeled"] = np.asarray(int(labeled.sum()), dtype=np.int64)
+    arrays["cover_auc"] = np.asarray(float(shift.get("auc", np.nan)))
+    write_candidates_arrays(path, arrays)
+    return {"n_rows": int(len(unl)), "n_labeled": int(labeled.sum()),
+            "note": "labeled rows unlike the pool: candidates.npz holds each row's score of "
+                    "looking labeled, and the plan's rows to label next cover the pool "
+                    "regions the labels miss"}

@@ -16,7 +16,8 @@ from ._integrity import EXPORTS_KEY, export_digests
 from ._metrics import summarize_curves
 
 __all__ = [
-    "FIXED_CELL_COLUMNS", "cells_frame", "write_candidates", "write_data_card", "write_exports",
+    "FIXED_CELL_COLUMNS", "cells_frame", "write_candidates", "write_candidates_arrays",
+    "write_data_card", "write_exports",
 ]
 
 #: cells.csv columns fixed by DEVELOPERS.md (extras follow them).
@@ -88,17 +89,21 @@ def write_exports(
 def write_candidates(path: Path, row_ids, representation, proba, *, method, n_labels,
                      class_names, representation_kind) -> Path:
     """candidates.npz: unlabeled row ids, their representation, the best method's proba."""
+    return write_candidates_arrays(path, {
+        "row_ids": np.asarray(row_ids, dtype=str),
+        "representation": np.asarray(representation, dtype=np.float32),
+        "proba": np.asarray(proba, dtype=np.float32),
+        "class_names": np.asarray(class_names, dtype=str),
+        "method": np.asarray(method or ""),
+        "n_labels": np.asarray(n_labels, dtype=np.int64),
+        "representation_kind": np.asarray(representation_kind),
+    })
+
+
+def write_candidates_arrays(path: Path, arrays: dict[str, np.ndarray]) -> Path:
+    """candidates.npz from named arrays, written atomically."""
     buf = io.BytesIO()
-    np.savez_compressed(
-        buf,
-        row_ids=np.asarray(row_ids, dtype=str),
-        representation=np.asarray(representation, dtype=np.float32),
-        proba=np.asarray(proba, dtype=np.float32),
-        class_names=np.asarray(class_names, dtype=str),
-        method=np.asarray(method or ""),
-        n_labels=np.asarray(n_labels, dtype=np.int64),
-        representation_kind=np.asarray(representation_kind),
-    )
+    np.savez_compressed(buf, **arrays)
     return atomic_write_bytes(path, buf.getvalue())
 
 

@@ -19,7 +19,7 @@ from .._progress import Progress
 from ..data import shift_warning
 from ..methods import stage_kind
 from ._backends import run_cells
-from ._candidates import refit_candidates
+from ._candidates import add_cover_scores, refit_candidates
 from ._cell import Cell, CellContext, cell_key, cell_seed
 from ._design import make_design
 from ._draws import acquisition_orders
@@ -188,6 +188,7 @@ def _run_locked(spec, out, t_start, jobs, cluster, rerun_failed, restart, datase
         info["labeled_vs_pool"] = shift
         if shift_warning(shift):  # the plan carries study.json's warnings
             info["warnings"].insert(0, shift_warning(shift))
+            info["candidates"]["cover"] = add_cover_scores(out, ds, ctx, shift)
         info["timing"]["this_run_total_seconds"] = time.perf_counter() - t_start
         write_exports(out, cells, resolved.metrics, info)
     finally:
