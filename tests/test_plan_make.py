@@ -154,8 +154,8 @@ def test_decision_counts_every_label(study, tmp_path):
     assert ("You own 250 training labels and 150 kept aside for evaluation (the holdout)."
             in plan.summary().splitlines())
     # Under cross-fitting every labeled row trains and is evaluated, in different repeats.
-    from semisup.study import StudyRecord
     from semisup.plan._make import label_counts
+    from semisup.study import StudyRecord
 
     def facts_of(n_labeled, round_rows=0, **evaluation):
         return StudyRecord.from_dict({"data": {"n_labeled": n_labeled}, "evaluation": {

@@ -272,5 +272,6 @@ def shift_warning(shift: dict[str, Any] | None) -> str | None:
     return (f"the labeled rows are unlike the unlabeled pool (classifier two-sample test: AUC "
             f"{shift['auc']:.2f}, 95% interval {shift['low']:.2f}-{shift['high']:.2f}; 0.5 "
             f"means alike){driven}: accuracies, curves, the plan and pseudo-labels are "
-            "measured on rows like the labeled ones and may not hold for the pool; label "
-            "rows drawn at random from the pool to check")
+            "measured on rows like the labeled ones and may not hold for the pool; the "
+            "plan's rows to label next are weighted towards the pool regions the labels "
+            "miss, and rows drawn at random from the pool check the estimates")
