@@ -387,7 +387,7 @@ STUDY_ERRORS = {
     "config not toml": (["--config", "bad.toml"], b"[study\n", ["bad.toml"]),
     "vae latent_dim zero": (["--config", "spec.toml", "--methods", "latent-logreg"],
                             b"[pretrain.vae]\nlatent_dim = 0\n",
-                            ["[pretrain.vae]", "latent_dim=0", "integer >= 1"]),
+                            ["[pretrain.vae]", "latent_dim=0", "whole number >= 1"]),
     "vae unknown setting": (["--config", "spec.toml", "--methods", "latent-logreg"],
                             b"[pretrain.vae]\nlayers = 3\n",
                             ["[pretrain.vae]", "'layers'", "allowed"]),
