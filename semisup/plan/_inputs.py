@@ -58,12 +58,12 @@ def read_cells_file(study_dir: Path) -> pd.DataFrame:
         raise PlanError(f"{path} cannot be read as CSV ({exc}); rerun the study") from None
 
 
-def read_cells(study_dir: Path, metrics: Iterable[str],
-               raw: pd.DataFrame | None = None) -> pd.DataFrame:
-    """Cells typed (of ``raw``, cells.csv as read, when given; it is not changed); ``metrics``
-    that are absent from the file are an error only when none of them is present."""
+def read_cells(study_dir: Path, metrics: Iterable[str], raw: pd.DataFrame) -> pd.DataFrame:
+    """The cells of ``raw`` (cells.csv as :func:`read_cells_file` read it; not changed),
+    typed; ``metrics`` that are absent from the file are an error only when none of them is
+    present."""
     path = Path(study_dir) / "cells.csv"
-    cells = read_cells_file(study_dir) if raw is None else raw.copy()
+    cells = raw.copy()
     cells = tidy_cells(cells, path, _REQUIRED)
     cells["status"] = cells["status"].astype(str).str.strip().str.lower()
     n_labels = pd.to_numeric(cells["n_labels"], errors="coerce")
