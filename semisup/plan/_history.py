@@ -79,17 +79,11 @@ def study_state(study: Mapping, cells: pd.DataFrame) -> dict:
 
 def current_state(study_dir: str | Path) -> dict:
     """The study state of the folder now (study.json and cells.csv as they are)."""
-    from ._inputs import read_json
+    from ._inputs import read_cells_file, read_json
 
     folder = Path(study_dir)
     study = read_json(folder / "study.json")
-    path = folder / "cells.csv"
-    cells = pd.DataFrame()
-    if path.is_file():
-        try:
-            cells = pd.read_csv(path)
-        except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-            raise PlanError(f"{path} cannot be read as CSV ({exc}); rerun the study") from None
+    cells = read_cells_file(folder) if (folder / "cells.csv").is_file() else pd.DataFrame()
     return study_state(study, cells)
 
 
