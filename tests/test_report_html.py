@@ -238,6 +238,21 @@ def readable_report(tmp_path_factory):
     return folder, plan, text
 
 
+def test_rows_to_label_next_say_when_they_lean_towards_the_pool(readable_report, tmp_path):
+    # The plan's summary and the report describe the selection with one phrase
+    # (semisup.plan.selection_phrase); a plan whose rows were weighted towards the pool says so.
+    folder, plan, text = readable_report
+    assert f"Chosen by {plan['label_next']['strategy']} selection. Send" in text
+    assert plan["label_next"]["weighted_to_pool"] is False and "lean towards" not in text
+    copy = shutil.copytree(folder, tmp_path / "weighted")
+    plan["label_next"]["weighted_to_pool"] = True
+    (copy / "plan.json").write_text(json.dumps(plan), encoding="utf-8")
+    weighted = write_report(copy).read_text(encoding="utf-8")
+    assert ("selection, weighted towards the pool regions the labeled rows miss. Send"
+            in weighted)
+    assert "these rows lean towards the regions the labels miss" in weighted
+
+
 def test_title_names_the_data_file(readable_report):
     _, _, text = readable_report
     assert "<title>Label-budget study of records_2024.csv</title>" in text

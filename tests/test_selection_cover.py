@@ -193,7 +193,9 @@ def test_plan_rows_change_only_when_the_study_flagged_a_shift(tmp_path):
         out["Z"] = out["representation"]
         return out
 
-    plain, used, warns = rank_rows(read(), "random", 30, seed=4, select_rows=select_rows)
+    plain, used, warns, weighted = rank_rows(read(), "random", 30, seed=4,
+                                             select_rows=select_rows)
+    assert not weighted
     ref = select_rows("random", X[unl], 30, seed=4)
     assert list(plain["row_id"]) == list(ids[unl][ref.indices]) and not warns
 
@@ -201,8 +203,9 @@ def test_plan_rows_change_only_when_the_study_flagged_a_shift(tmp_path):
     assert facts["n_labeled"] == 60
     cand = read()
     assert cand["cover_score"].shape == (len(unl),)
-    table, used, warns = rank_rows(cand, "random", 30, seed=4, select_rows=select_rows)
-    assert used == "random" and len(table) == 30
+    table, used, warns, weighted = rank_rows(cand, "random", 30, seed=4,
+                                             select_rows=select_rows)
+    assert used == "random" and len(table) == 30 and weighted
     assert any("unlike the pool (two-sample AUC 0.90)" in w for w in warns)
     assert all("weight" in r for r in table["reason"])
     high = X[:, 21] > np.quantile(X[:, 21], 0.6)

@@ -60,6 +60,7 @@ from ._history import (
 )
 from ._honest import overlapping, shrink_toward_mean
 from ._inputs import data_warnings, read_json, tidy_cells
+from ._label_next import selection_phrase
 from ._make import CURVE_COLUMNS, Plan, PlanInputs, build_plan, make_plan, read_inputs, write_plan
 from ._request import METRICS, PlanRequest
 from ._sheet import SHEET_FORMATS
@@ -133,6 +134,7 @@ __all__ = [
     "read_measured",
     "rolling_origin",
     "score_plan",
+    "selection_phrase",
     "shrink_toward_mean",
     "small_sample_factor",
     "study_state",

@@ -11,19 +11,42 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Callable, Mapping
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
 
 from .._escape import neutralise_frame
 
-__all__ = ["LABEL_NEXT_COLUMNS", "default_select_rows", "rank_rows"]
+__all__ = ["LABEL_NEXT_COLUMNS", "Ranking", "default_select_rows", "rank_rows",
+           "selection_phrase"]
 
 log = logging.getLogger(__name__)
 
 LABEL_NEXT_COLUMNS = ["rank", "row_id", "reason"]
 
 SelectFn = Callable[..., object]
+
+
+class Ranking(NamedTuple):
+    """What :func:`rank_rows` returns: the sheet (rank, row_id, reason), the strategy used,
+    warnings, and whether the rows were drawn weighted towards the pool regions the labeled
+    rows miss (the study flagged them as unlike the pool)."""
+
+    table: pd.DataFrame
+    strategy: str
+    warnings: list[str]
+    weighted_to_pool: bool = False
+
+
+def selection_phrase(strategy: str, weighted_to_pool: bool = False) -> str:
+    """How the rows to label next were chosen, in the words the plan's summary and the report
+    both use: ``"random selection"`` or ``"random selection, weighted towards the pool
+    regions the labeled rows miss"``."""
+    phrase = f"{strategy} selection"
+    if weighted_to_pool:
+        phrase += ", weighted towards the pool regions the labeled rows miss"
+    return phrase
 
 
 def default_select_rows() -> SelectFn | None:
@@ -47,28 +70,28 @@ def rank_rows(
     *,
     seed: int,
     select_rows: SelectFn | None,
-) -> tuple[pd.DataFrame, str, list[str]]:
+) -> Ranking:
     """Rank up to ``n`` candidate rows with ``strategy``.
 
-    Returns ``(table, strategy_used, warnings)``; the table has columns rank (1 = label
-    first), row_id and reason. Falls back to the random strategy when the chosen one needs
+    Returns a :class:`Ranking`; its table has columns rank (1 = label first), row_id and
+    reason. Falls back to the random strategy when the chosen one needs
     something the candidates lack (model probabilities for uncertainty).
     """
     warnings: list[str] = []
     if n <= 0:
-        return _empty(), strategy, warnings
+        return Ranking(_empty(), strategy, warnings)
     if candidates is None:
         warnings.append("candidates.npz is missing from the study folder, so no rows can be "
                         "listed in label_next.csv; rerun the study to write it")
-        return _empty(), strategy, warnings
+        return Ranking(_empty(), strategy, warnings)
     if select_rows is None:
         warnings.append("row selection (semisup.selection.select_rows) is not available in "
                         "this installation; label_next.csv is left empty")
-        return _empty(), strategy, warnings
+        return Ranking(_empty(), strategy, warnings)
     row_ids = np.asarray(candidates["row_ids"]).astype(str)
     if row_ids.size == 0:
         warnings.append("the study has no unlabeled rows to suggest for labeling")
-        return _empty(), strategy, warnings
+        return Ranking(_empty(), strategy, warnings)
     Z = candidates.get("Z")
     proba = candidates.get("proba")
     used = strategy
@@ -87,7 +110,9 @@ def rank_rows(
         warnings.append(f"only {row_ids.size} unlabeled rows are available, fewer than the "
                         f"{n} the plan asks for; all are listed")
     cover = candidates.get("cover_score")
-    if cover is not None and len(cover) == row_ids.size and np.all(np.isfinite(cover)):
+    cover_used = bool(cover is not None and len(cover) == row_ids.size
+                      and np.all(np.isfinite(cover)))
+    if cover_used:
         from ..selection import cover_select
 
         n_labeled = int(np.asarray(candidates.get("cover_n_labeled", 0)))
@@ -110,7 +135,7 @@ def rank_rows(
         "reason": [str(r) for r in reasons],
     }))
     log.debug("ranked %d rows with %s", len(table), used)
-    return table, used, warnings
+    return Ranking(table, used, warnings, weighted_to_pool=cover_used)
 
 
 def _cover_line(candidates: Mapping[str, np.ndarray], used: str, n_take: int,

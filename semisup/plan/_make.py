@@ -51,7 +51,7 @@ from ._inputs import (
     read_cells_file,
     read_json,
 )
-from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows
+from ._label_next import LABEL_NEXT_COLUMNS, default_select_rows, rank_rows, selection_phrase
 from ._pipeline import Forecasts, forecast_all
 from ._request import METRICS, PlanRequest
 from ._sheet import (
@@ -104,6 +104,8 @@ class Plan:
     label_price: float
     label_next: pd.DataFrame = field(repr=False)
     label_next_strategy: str = "random"
+    #: The rows were drawn weighted towards the pool regions the labeled rows miss.
+    label_next_weighted: bool = False
     curves: pd.DataFrame = field(repr=False, default_factory=pd.DataFrame)
     n_max: dict[str, int] = field(default_factory=dict)
     evidence: dict = field(default_factory=dict)
@@ -157,6 +159,7 @@ class Plan:
             "backtest": list(self.backtest),
             **self.evidence,
             "label_next": {"strategy": self.label_next_strategy,
+                           "weighted_to_pool": self.label_next_weighted,
                            "n_rows": int(len(self.label_next)),
                            "written": self.label_next_written,
                            "file": self.sheet_file if self.label_next_written else None},
@@ -203,7 +206,8 @@ class Plan:
                          f"{PLANS_FOLDER}/ as history, this plan replaces it as plan.json.")
         if self.label_next_written and len(self.label_next):
             lines.append(f"Rows to label next: {len(self.label_next):,} "
-                         f"({self.label_next_strategy} selection) in {self.sheet_file}.")
+                         f"({selection_phrase(self.label_next_strategy, self.label_next_weighted)})"
+                         f" in {self.sheet_file}.")
         elif self.label_next_written:
             lines.append(f"Rows to label next: none ({self.sheet_file} lists no rows).")
         else:
@@ -618,10 +622,10 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
     else:
         n_rows = 0
     select = select_rows if select_rows is not None else default_select_rows()
-    label_next, strategy_used, lw = rank_rows(
+    ranking = rank_rows(
         inputs.candidates, strategy, n_rows,
         seed=derive_seed(record.seed or 0, "plan", "label_next", strategy), select_rows=select)
-    warnings.extend(lw)
+    warnings.extend(ranking.warnings)
 
     state = inputs.state
     prev_status = PlanStatus(inputs.previous, state) if inputs.previous else None
@@ -630,7 +634,8 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
         request=request, study_dir=study_dir, chosen=chosen, runner_up=runner_up, best=best,
         options=tuple(options), backtest=tuple(backtests), warnings=tuple(warnings),
         labels_owned=labels_owned, label_price=label_price,
-        label_next=label_next[LABEL_NEXT_COLUMNS], label_next_strategy=strategy_used,
+        label_next=ranking.table[LABEL_NEXT_COLUMNS], label_next_strategy=ranking.strategy,
+        label_next_weighted=ranking.weighted_to_pool,
         curves=curves, n_max=n_max,
         evidence=_evidence(fc, record, eval_rows, rivals, note, pick),
         labels=label_counts(record, labels_owned, chosen.n_new if chosen is not None else 0,

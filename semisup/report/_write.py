@@ -32,6 +32,7 @@ from ..plan import (
     read_forecast,
     read_json,
     read_measured,
+    selection_phrase,
     study_state,
     tidy_cells,
 )
@@ -543,10 +544,16 @@ def _label_section(label_next: pd.DataFrame | None, plan: Mapping | None,
     if label_next.empty:
         s.para("label_next.csv lists no rows (nothing to buy, or no candidates).", "note")
         return s
-    strategy = ((plan or {}).get("label_next") or {}).get("strategy")
-    if strategy:
-        s.para(f"Selection strategy: {strategy}. Send these rows to the annotators in this "
-               "order (rank 1 first).")
+    sheet = (plan or {}).get("label_next") or {}
+    if sheet.get("strategy"):
+        how = selection_phrase(str(sheet["strategy"]), bool(sheet.get("weighted_to_pool")))
+        s.para(f"Chosen by {how}. Send these rows to the annotators in this order (rank 1 "
+               "first).")
+        if sheet.get("weighted_to_pool"):
+            s.para("The labeled rows look unlike the pool (see the data card's check), so "
+                   "these rows lean towards the regions the labels miss; the weight in each "
+                   "row's reason says how much. Labeling them makes the labeled rows more like "
+                   "the pool, and the curves and forecasts more trustworthy for it.", "note")
     s.para(_REASONS, "note")
     cols = [c for c in ("rank", "row_id", "reason") if c in label_next.columns]
     head = label_next[cols].head(_MAX_LABEL_ROWS)
