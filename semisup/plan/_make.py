@@ -205,9 +205,9 @@ class Plan:
             lines.append(f"Note: the previous {self.previous_stale}; it is kept in "
                          f"{PLANS_FOLDER}/ as history, this plan replaces it as plan.json.")
         if self.label_next_written and len(self.label_next):
-            lines.append(f"Rows to label next: {len(self.label_next):,} "
-                         f"({selection_phrase(self.label_next_strategy, self.label_next_weighted)})"
-                         f" in {self.sheet_file}.")
+            how = selection_phrase(self.label_next_strategy, self.label_next_weighted)
+            lines.append(f"Rows to label next: {len(self.label_next):,} ({how}) in "
+                         f"{self.sheet_file}.")
         elif self.label_next_written:
             lines.append(f"Rows to label next: none ({self.sheet_file} lists no rows).")
         else:
