@@ -102,7 +102,7 @@ def test_not_reachable_says_do_not_buy_first_and_lists_no_rows(tmp_path):
     assert not (folder / "label_next.csv").exists()  # the old list is not this plan's
     data = json.loads((folder / "plan.json").read_text())
     assert data["label_next"] == {"strategy": plan.label_next_strategy, "n_rows": 0,
-                                  "written": False, "file": None}
+                                  "weighted_to_pool": False, "written": False, "file": None}
     assert data["labels"]["to_buy"] == 0
     # asked for explicitly, the rows are listed even so
     plan = _plan(folder, target=0.99, n_next=7)

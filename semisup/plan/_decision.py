@@ -208,6 +208,9 @@ def decision_lines(plan: Mapping, *, currency: str = "",
         lines.append(f"Runner-up: {_outcome(runner, metric, interval, goal)}, cost "
                      f"{money(runner.get('cost'), currency)}." if runner else
                      "Runner-up: none (no other method and strategy is sure enough).")
+    unlabeled = plan.get("unlabeled_rows") or {}
+    if unlabeled.get("sentence"):
+        lines.append(str(unlabeled["sentence"]))
     return lines
 
 

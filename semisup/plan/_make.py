@@ -31,7 +31,7 @@ from ._choose import Option, best_effort, choose
 from ._continuation import track_sentence
 from ._costs import expected_label_price
 from ._curves import MAX_EXTRAPOLATION
-from ._decision import decision_lines, forecast_span, forecast_value
+from ._decision import METRIC_WORDS, decision_lines, forecast_span, forecast_value
 from ._families import FAMILIES
 from ._history import (
     FORECAST_SUFFIX,
@@ -63,6 +63,7 @@ from ._sheet import (
     write_sheet,
 )
 from ._track import track_lines, track_record
+from ._unlabeled import measured_gains, method_families, unlabeled_summary
 
 __all__ = [
     "CURVE_COLUMNS",
@@ -121,6 +122,9 @@ class Plan:
     #: the last plan made from an earlier study state: what it expected at its choice and
     #: what this plan forecasts there ({} when there is none)
     previous: dict = field(default_factory=dict)
+    #: do the unlabeled rows help: the best method with a generative stage against the best
+    #: supervised-only one, paired over the study's draws (``_unlabeled.unlabeled_summary``)
+    unlabeled: dict = field(default_factory=dict)
     #: the study's record (the annotator sheet reads the table it names)
     record: StudyRecord = field(default_factory=StudyRecord, repr=False, compare=False)
 
@@ -158,6 +162,7 @@ class Plan:
             "options": [o.to_dict() for o in self.options],
             "backtest": list(self.backtest),
             **self.evidence,
+            "unlabeled_rows": dict(self.unlabeled) or None,
             "label_next": {"strategy": self.label_next_strategy,
                            "weighted_to_pool": self.label_next_weighted,
                            "n_rows": int(len(self.label_next)),
@@ -604,6 +609,10 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
         warnings.append("the chosen curve uses the monotone fallback, not a fitted curve "
                         "family")
     pick = chosen if chosen is not None else best
+    unlabeled = unlabeled_summary(
+        measured_gains(cells, metric, method_families(),
+                       strategy=pick.strategy if pick is not None else "random",
+                       level=INTERVAL), METRIC_WORDS.get(metric, metric), INTERVAL)
     rivals = _rivals(pick, fc, metric)
     note = _overlap_note(pick, rivals, metric, chosen is not None)
     for b in backtests:
@@ -635,7 +644,7 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
         options=tuple(options), backtest=tuple(backtests), warnings=tuple(warnings),
         labels_owned=labels_owned, label_price=label_price,
         label_next=ranking.table[LABEL_NEXT_COLUMNS], label_next_strategy=ranking.strategy,
-        label_next_weighted=ranking.weighted_to_pool,
+        label_next_weighted=ranking.weighted_to_pool, unlabeled=unlabeled,
         curves=curves, n_max=n_max,
         evidence=_evidence(fc, record, eval_rows, rivals, note, pick),
         labels=label_counts(record, labels_owned, chosen.n_new if chosen is not None else 0,
