@@ -203,13 +203,16 @@ def regret_report(tables: list[dict], sets: dict[str, object]) -> list[str]:
     return lines
 
 
-def generative_report(tables: list[dict]) -> list[str]:
+def generative_report(tables: list[dict], members=None, label: str = "") -> list[str]:
+    """Best generative-stage method minus best supervised one per budget, over every measured
+    method or (``members``) over those methods only."""
     from semisup.methods import get_method
 
-    lines = ["best generative-stage method minus best supervised baseline, per budget:"]
+    lines = [f"best generative-stage method minus best supervised baseline{label}, per budget:"]
     for b, per_table in _by_budget(tables):
         diffs = []
         for m in per_table:
+            m = {n: v for n, v in m.items() if members is None or n in members}
             gen = [v for n, v in m.items() if get_method(n).family in GENERATIVE_FAMILIES]
             sup = [v for n, v in m.items() if get_method(n).family == "supervised"]
             if gen and sup:
@@ -250,6 +253,9 @@ def report(tables: list[dict]) -> str:
              f"{MEASURED}/{2 * MEASURED}/{4 * MEASURED} labels"]
     lines += regret_report(tables, sets)
     lines += generative_report(tables)
+    lines += generative_report(tables, at_200, " (default set at 200 labeled rows only)")
+    lines += generative_report(tables, [n for n in at_200 if n != "mixture-em"],
+                               " (the same without mixture-em)")
     lines += wins_report(tables)
     lines.append(f"per table at {MEASURED} labels: best default method (set at 200 labeled rows) "
                  "/ best checked method / majority-class baseline on the evaluation rows:")
@@ -280,15 +286,25 @@ def main(argv=None) -> None:
                     help="only print the report of these results files (comma-separated)")
     ap.add_argument("--all-methods", action="store_true",
                     help="every registered method but the m2 family (slow)")
+    ap.add_argument("--methods", default="",
+                    help="comma-separated methods to run instead of the checked list (their "
+                         "results can be merged with an earlier run's by --report a,b: the "
+                         "draws and evaluation rows depend on the table and seed only)")
     args = ap.parse_args(argv)
     if args.report:  # one results file, or several separated by commas (merged by table)
         merged: dict[str, dict] = {}
         for path in args.report.split(","):
             for t in json.loads(Path(path).read_text())["tables"]:
-                merged.setdefault(t["table"], t)
+                if t["table"] not in merged:
+                    merged[t["table"]] = t
+                    continue
+                have = {r["method"] for r in merged[t["table"]]["results"]}
+                merged[t["table"]]["results"] += [r for r in t["results"]
+                                                  if r["method"] not in have]
         print(report(list(merged.values())))
         return
-    methods = ([m.name for m in list_methods() if m.name not in SLOW] if args.all_methods
+    methods = ([m.strip() for m in args.methods.split(",") if m.strip()] if args.methods
+               else [m.name for m in list_methods() if m.name not in SLOW] if args.all_methods
                else list(CHECKED))
     wanted = {t.strip() for t in args.tables.split(",") if t.strip()}
     out = Path(args.out)

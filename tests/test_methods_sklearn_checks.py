@@ -75,8 +75,13 @@ def test_sklearn_compatible(estimator, check):
 
 
 def test_every_method_is_checked():
+    # Methods the study tests register for themselves (tests/_study_support.py) are left out:
+    # with pytest-xdist they may sit in this worker's registry too.
+    from _study_support import PREFIX
+
     covered = sorted(name for _, names in _CHECKED.values() for name in names)
-    assert covered == sorted(spec.name for spec in list_methods())
+    assert covered == sorted(spec.name for spec in list_methods()
+                             if not spec.name.startswith(f"{PREFIX}-"))
     assert len(covered) >= 13
 
 

@@ -204,7 +204,7 @@ register_variants(
     MixtureEMClassifier,
     raw=Variant("mixture-em", "Semi-supervised Gaussian-mixture EM on the encoded table",
                 family="generative", params={"covariance_type": "tied", "reg_covar": 1e-1},
-                search_space=_raw_table_space),
+                search_space=_raw_table_space, default=True),
     vae=Variant("latent-mixture-em", "Semi-supervised Gaussian-mixture EM in the VAE latent "
                 "space", family="generative", default=True),
 )
