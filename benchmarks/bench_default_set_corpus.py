@@ -99,7 +99,10 @@ def _family(name: str) -> str:
 
 
 def generative_rows(tasks: list[dict]) -> pd.DataFrame:
-    """Per (table, user, target): best generative-stage minus best supervised, users' cells."""
+    """Per (table, user, target): best generative-stage minus best supervised, users' cells;
+    ``current`` says whether the user ran every method of today's default set."""
+    from semisup.methods import default_methods
+
     rows = []
     for task in tasks:
         for user in task["users"]:
@@ -107,13 +110,15 @@ def generative_rows(tasks: list[dict]) -> pd.DataFrame:
             if cells.empty:
                 continue
             cells = cells[(cells["status"] == "ok") & cells["accuracy"].notna()]
+            current = set(default_methods(pool_size=int(user["n_labeled"]))) <= set(
+                cells["method"])
             means = cells.groupby(["n_labels", "method"])["accuracy"].mean()
             budgets = np.array(sorted(cells["n_labels"].unique()), dtype=float)
             for target in TARGETS:
                 b = int(budgets[np.argmin(np.abs(np.log(budgets / target)))])
                 rows.append({"table": task["task"]["name"], "user": int(user["n_labeled"]),
                              "target": target, "n_labels": b,
-                             **_gap(means.loc[b]), "source": "users"})
+                             **_gap(means.loc[b]), "source": "users", "current": current})
     return pd.DataFrame(rows)
 
 
@@ -141,6 +146,23 @@ def _gap(means: pd.Series) -> dict:
         return {"gap": np.nan, "gen": "", "sup": ""}
     g, s = max(gen, key=gen.get), max(sup, key=sup.get)
     return {"gap": float(gen[g] - sup[s]), "gen": g, "sup": s}
+
+
+def _print_generative(gen: pd.DataFrame) -> None:
+    for target in TARGETS:
+        sub = gen[(gen["target"] == target) & gen["gap"].notna()]
+        if sub.empty:
+            continue
+        d = sub["gap"].to_numpy()
+        win, lose = float(np.mean(d > SLACK)), float(np.mean(d < -TOLERANCE - SLACK))
+        print(f"  ~{target:>3} labels (measured {int(sub['n_labels'].min())}-"
+              f"{int(sub['n_labels'].max())}; {len(sub)} tasks): wins on {win:.0%}, loses by "
+              f"> 0.01 on {lose:.0%} (median {np.median(d):+.4f}); goal >= 50% / <= 10%: "
+              f"{'met' if win >= 0.5 and lose <= 0.1 else 'not met'}")
+        top = sub.loc[sub["gap"] > SLACK, "gen"].value_counts()
+        if len(top):
+            print("      winning generative methods: "
+                  + ", ".join(f"{m} {k}" for m, k in top.items()))
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -190,18 +212,12 @@ def main(argv: list[str] | None = None) -> int:
     gen = generative_rows(tasks)
     print("\n2. Best generative-stage method minus best supervised (users' measured cells, "
           "accuracy, means over repeats):")
-    for target in TARGETS:
-        sub = gen[(gen["target"] == target) & gen["gap"].notna()]
-        d = sub["gap"].to_numpy()
-        win, lose = float(np.mean(d > SLACK)), float(np.mean(d < -TOLERANCE - SLACK))
-        print(f"  ~{target:>3} labels (measured {int(sub['n_labels'].min())}-"
-              f"{int(sub['n_labels'].max())}; {len(sub)} tasks): wins on {win:.0%}, loses by "
-              f"> 0.01 on {lose:.0%} (median {np.median(d):+.4f}); goal >= 50% / <= 10%: "
-              f"{'met' if win >= 0.5 and lose <= 0.1 else 'not met'}")
-        top = sub.loc[sub["gap"] > SLACK, "gen"].value_counts()
-        if len(top):
-            print("      winning generative methods: "
-                  + ", ".join(f"{m} {k}" for m, k in top.items()))
+    _print_generative(gen)
+    now = gen[gen["current"]]
+    if len(now):
+        print(f"  the same, only the users who ran today's default set "
+              f"({now['table'].nunique()} tables: {', '.join(sorted(now['table'].unique()))}):")
+        _print_generative(now)
     tg = truth_generative_rows(tasks)
     d = tg["gap"].dropna().to_numpy()
     if len(d):
