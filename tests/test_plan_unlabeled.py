@@ -120,3 +120,26 @@ def test_a_study_without_a_generative_stage_gets_no_answer(tmp_path):
     assert json.loads((folder / "plan.json").read_text(encoding="utf-8"))["unlabeled_rows"] \
         is None
     assert "unlabeled rows help" not in plan.summary()
+
+
+def test_equally_cheap_sure_options_go_to_the_simplest_method():
+    # The rule: when the study cannot tell methods apart, take the cheaper or simpler.
+    from semisup.plan._choose import Option, best_effort, choose, simplicity
+
+    def opt(method, prob, mean=0.8, cost=10.0, n=100):
+        return Option(method, "random", n, mean, mean - 0.05, mean + 0.05, prob, cost, False)
+
+    fams = method_families()
+    prefer = simplicity(fams, {"supervised-gbt": 2.0, "supervised-logreg": 0.3,
+                               "latent-logreg": 0.2})
+    options = [opt("latent-logreg", 0.95), opt("supervised-gbt", 0.9),
+               opt("supervised-logreg", 0.85), opt("mixture-em", 0.99, cost=5.0, n=50)]
+    assert choose(options, 0.8, prefer=prefer)[0].method == "mixture-em"   # cheaper first
+    chosen, runner = choose(options[:3], 0.8, prefer=prefer)
+    assert (chosen.method, runner.method) == ("supervised-logreg", "supervised-gbt")
+    assert choose(options[:3], 0.8)[0].method == "latent-logreg"  # no preference: probability
+    assert choose(options[:3], 0.9, prefer=prefer)[0].method == "supervised-gbt"
+    tied = [opt("latent-logreg", 0.4, mean=0.8391), opt("supervised-logreg", 0.3, mean=0.8388),
+            opt("supervised-gbt", 0.5, mean=0.8376)]
+    assert best_effort(tied, prefer=prefer).method == "supervised-logreg"
+    assert best_effort(tied).method == "latent-logreg"

@@ -1,11 +1,14 @@
 """Options and the choice: the cheapest (method, budget, strategy) that is sure enough.
 
-Pure: bands, prices and the target in; option records out.
+Among options as cheap as the choice that are all sure enough, the study cannot favour one
+on the target, so the plan takes the simplest (:func:`simplicity`: no unsupervised stage
+first, then the quickest to fit), then the most probable. Pure: bands, prices and the target
+in; option records out.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -13,7 +16,14 @@ import numpy as np
 from ._bootstrap import CurveBand, probability_meets
 from ._costs import plan_cost
 
-__all__ = ["Option", "best_effort", "budget_grid", "choose", "curve_options"]
+__all__ = ["FAMILY_RANK", "Option", "best_effort", "budget_grid", "choose", "curve_options",
+           "simplicity"]
+
+#: How simple a method family is: labeled rows only first, then methods that use the
+#: unlabeled rows without a model of them, then those with a fitted stage (our order).
+FAMILY_RANK = {"supervised": 0, "classic-ssl": 1, "latent": 2, "generative": 3}
+
+Prefer = Callable[["Option"], tuple]
 
 
 @dataclass(frozen=True)
@@ -90,17 +100,34 @@ def curve_options(
     return out
 
 
-def _rank(o: Option) -> tuple:
-    return (o.cost, o.n_labels, -o.probability, o.method, o.strategy)
+def simplicity(families: Mapping[str, str], seconds: Mapping[str, float]) -> Prefer:
+    """Sort key of an option's simplicity: its method's family rank (:data:`FAMILY_RANK`;
+    unknown families last), then its median seconds per cell in the study (unknown last)."""
+    def key(o: Option) -> tuple:
+        rank = FAMILY_RANK.get(families.get(o.method, ""), len(FAMILY_RANK))
+        return (rank, float(seconds.get(o.method, np.inf)))
+    return key
 
 
-def choose(options: Sequence[Option], confidence: float) -> tuple[Option | None, Option | None]:
+def _no_preference(o: Option) -> tuple:
+    return ()
+
+
+def _rank(o: Option, prefer: Prefer) -> tuple:
+    return (o.cost, o.n_labels, prefer(o), -o.probability, o.method, o.strategy)
+
+
+def choose(options: Sequence[Option], confidence: float, *,
+           prefer: Prefer | None = None) -> tuple[Option | None, Option | None]:
     """Cheapest option with probability >= ``confidence`` and the runner-up.
 
-    Ties in cost go to the smaller budget, then the higher probability. The runner-up is the
+    Ties in cost go to the smaller budget, then the simpler option (``prefer``, e.g.
+    :func:`simplicity`; none by default), then the higher probability. The runner-up is the
     cheapest qualifying option of a different (method, strategy) pair, or None.
     """
-    ok = sorted((o for o in options if o.probability >= confidence), key=_rank)
+    prefer = prefer or _no_preference
+    ok = sorted((o for o in options if o.probability >= confidence),
+                key=lambda o: _rank(o, prefer))
     if not ok:
         return None, None
     chosen = ok[0]
@@ -109,11 +136,14 @@ def choose(options: Sequence[Option], confidence: float) -> tuple[Option | None,
     return chosen, runner
 
 
-def best_effort(options: Sequence[Option]) -> Option | None:
-    """The option with the highest predicted metric (then the highest probability)."""
+def best_effort(options: Sequence[Option], *, prefer: Prefer | None = None) -> Option | None:
+    """The option with the highest predicted metric; of those that read the same to three
+    decimals, the simpler (``prefer``), then the more probable and cheaper one."""
     if not options:
         return None
-    return max(options, key=lambda o: (o.mean, o.probability, -o.cost, -o.n_labels))
+    prefer = prefer or _no_preference
+    return min(options, key=lambda o: (-round(o.mean, 3), prefer(o), -o.probability, o.cost,
+                                       o.n_labels, o.method, o.strategy))
 
 
 def budget_grid(n_measured: np.ndarray, limit: float, *, points: int = 80,

@@ -27,7 +27,7 @@ from .._errors import PlanError
 from .._seeding import derive_seed
 from ..study import StudyRecord
 from ._bootstrap import CurveBand
-from ._choose import Option, best_effort, choose
+from ._choose import Option, best_effort, choose, simplicity
 from ._continuation import track_sentence
 from ._costs import expected_label_price
 from ._curves import MAX_EXTRAPOLATION
@@ -395,8 +395,9 @@ def _overlap_note(chosen: Option | None, rivals: list[Option], metric: str,
     return (f"at {chosen.n_labels:,} labels the {INTERVAL:.0%} intervals of {names}{more} "
             f"overlap that of {one(chosen)}: the study cannot tell these {metric} values "
             "apart, so any of them may do as well"
-            + ("; the choice went to the one most likely to reach the target" if reached
-               else ""))
+            + ("; of the options as cheap as the choice that are sure enough, the plan takes "
+               "the simplest (no unsupervised stage first, then the quickest to fit)" if reached
+               else "; of equal predictions (to three decimals) the plan names the simplest"))
 
 
 def _evaluation_note(record: StudyRecord, eval_rows: float | None) -> str:
@@ -599,8 +600,11 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
     backtests = fc.backtest
     n_max = {f"{k[0]} ({k[1]})": int(mdl.levels[-1]) for k, mdl in fc.models.items()}
 
-    chosen, runner_up = choose(fc.options, request.confidence)
-    best = chosen if chosen is not None else best_effort(fc.options)
+    families = method_families()
+    prefer = simplicity(families, cells.groupby("method")["seconds"].median().to_dict()
+                        if "seconds" in cells.columns else {})
+    chosen, runner_up = choose(fc.options, request.confidence, prefer=prefer)
+    best = chosen if chosen is not None else best_effort(fc.options, prefer=prefer)
     options = order_options(fc.options, request.confidence)
     if chosen is not None and chosen.extrapolated:
         warnings.append(f"the chosen budget ({chosen.n_labels}) lies beyond the largest measured "
@@ -610,7 +614,7 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
                         "family")
     pick = chosen if chosen is not None else best
     unlabeled = unlabeled_summary(
-        measured_gains(cells, metric, method_families(),
+        measured_gains(cells, metric, families,
                        strategy=pick.strategy if pick is not None else "random",
                        level=INTERVAL), METRIC_WORDS.get(metric, metric), INTERVAL)
     rivals = _rivals(pick, fc, metric)
