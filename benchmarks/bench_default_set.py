@@ -81,7 +81,6 @@ SLOW = ("m2", "m1-m2", "m2-spreading")
 CHECKED = ("supervised-logreg", "supervised-svm", "supervised-gbt", "supervised-knn",
            "label-spreading", "latent-spreading", "latent-logreg", "latent-mixture-em",
            "latent-plus-raw-logreg", "latent-plus-raw-gbt")
-GENERATIVE_FAMILIES = ("latent", "generative")
 #: The default set at 200 labeled rows before issue 23 (trees from 1,000 rows).
 BEFORE = ("supervised-logreg", "supervised-svm", "label-spreading", "latent-spreading",
           "latent-logreg", "latent-mixture-em")
@@ -207,14 +206,15 @@ def generative_report(tables: list[dict], members=None, label: str = "") -> list
     """Best generative-stage method minus best supervised one per budget, over every measured
     method or (``members``) over those methods only."""
     from semisup.methods import get_method
+    from semisup.plan._unlabeled import STAGE_FAMILIES, SUPERVISED_FAMILY
 
     lines = [f"best generative-stage method minus best supervised baseline{label}, per budget:"]
     for b, per_table in _by_budget(tables):
         diffs = []
         for m in per_table:
             m = {n: v for n, v in m.items() if members is None or n in members}
-            gen = [v for n, v in m.items() if get_method(n).family in GENERATIVE_FAMILIES]
-            sup = [v for n, v in m.items() if get_method(n).family == "supervised"]
+            gen = [v for n, v in m.items() if get_method(n).family in STAGE_FAMILIES]
+            sup = [v for n, v in m.items() if get_method(n).family == SUPERVISED_FAMILY]
             if gen and sup:
                 diffs.append(max(gen) - max(sup))
         if diffs:

@@ -46,7 +46,6 @@ TOLERANCE = 0.01
 #: Float slack on the tolerance: users' accuracies are multiples of 1 / (evaluated rows), so
 #: a difference of exactly one row in a hundred must not count as "more than 0.01".
 SLACK = 1e-9
-GENERATIVE_FAMILIES = ("latent", "generative")
 #: The default set at 200 labeled rows before issue 23 (trees from 1,000 rows), for contrast.
 BEFORE = ("supervised-logreg", "supervised-svm", "label-spreading", "latent-spreading",
           "latent-logreg", "latent-mixture-em")
@@ -140,8 +139,10 @@ def truth_generative_rows(tasks: list[dict]) -> pd.DataFrame:
 
 
 def _gap(means: pd.Series) -> dict:
-    gen = {m: v for m, v in means.items() if _family(m) in GENERATIVE_FAMILIES}
-    sup = {m: v for m, v in means.items() if _family(m) == "supervised"}
+    from semisup.plan._unlabeled import STAGE_FAMILIES, SUPERVISED_FAMILY
+
+    gen = {m: v for m, v in means.items() if _family(m) in STAGE_FAMILIES}
+    sup = {m: v for m, v in means.items() if _family(m) == SUPERVISED_FAMILY}
     if not gen or not sup:
         return {"gap": np.nan, "gen": "", "sup": ""}
     g, s = max(gen, key=gen.get), max(sup, key=sup.get)

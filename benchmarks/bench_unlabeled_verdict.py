@@ -39,7 +39,12 @@ LEVEL = 0.9
 def rows(tasks: list[dict]) -> pd.DataFrame:
     from corpus_io import truth_table
 
-    from semisup.plan._unlabeled import STAGE_FAMILIES, measured_gains, method_families
+    from semisup.plan._unlabeled import (
+        STAGE_FAMILIES,
+        SUPERVISED_FAMILY,
+        measured_gains,
+        method_families,
+    )
 
     families = method_families()
     out = []
@@ -57,7 +62,7 @@ def rows(tasks: list[dict]) -> pd.DataFrame:
             ran = set(cells["method"])
             t = truth[(truth["n_labels"] == g.n_labels) & truth["method"].isin(ran)]
             fam = t["method"].map(lambda m: families.get(m, ""))
-            stage, sup = t[fam.isin(STAGE_FAMILIES)], t[fam == "supervised"]
+            stage, sup = t[fam.isin(STAGE_FAMILIES)], t[fam == SUPERVISED_FAMILY]
             if stage.empty or sup.empty:
                 continue
             true_gain = float(stage["mean"].max() - sup["mean"].max())

@@ -130,8 +130,9 @@ def test_equally_cheap_sure_options_go_to_the_simplest_method():
         return Option(method, "random", n, mean, mean - 0.05, mean + 0.05, prob, cost, False)
 
     fams = method_families()
-    prefer = simplicity(fams, {"supervised-gbt": 2.0, "supervised-logreg": 0.3,
-                               "latent-logreg": 0.2})
+    seconds = {"supervised-gbt": 2.0, "supervised-logreg": 0.3, "latent-logreg": 0.2}
+    prefer = simplicity(fams, pd.DataFrame({"method": list(seconds),
+                                            "seconds": list(seconds.values())}))
     options = [opt("latent-logreg", 0.95), opt("supervised-gbt", 0.9),
                opt("supervised-logreg", 0.85), opt("mixture-em", 0.99, cost=5.0, n=50)]
     assert choose(options, 0.8, prefer=prefer)[0].method == "mixture-em"   # cheaper first

@@ -186,18 +186,17 @@ def decide(us: UserStudy, preds: dict, target: float):
     """Cheapest (ratio, method) with probability >= CONFIDENCE, or None (do not buy); of
     equally cheap ones the simplest, then the most probable (the plan's rule,
     ``semisup.plan._choose.simplicity``)."""
-    from semisup.plan._choose import Option, simplicity
+    from semisup.plan._choose import simplicity
     from semisup.plan._unlabeled import method_families
 
-    prefer = simplicity(method_families(), us.cells.groupby("method")["seconds"].median()
-                        .to_dict() if "seconds" in us.cells.columns else {})
+    prefer = simplicity(method_families(), us.cells)
     n_max = max(c.n_max for c in us.curves)
     best = None
     for c in us.curves:
         p = preds.get((us.task, us.user, c.method))
         if p is None:
             continue
-        simple = prefer(Option(c.method, "random", 0, 0.0, 0.0, 0.0, 0.0, 0.0, False))
+        simple = prefer(c.method)
         for i, r in enumerate(RATIOS):
             prob = p.prob(i, target)
             if prob >= CONFIDENCE:

@@ -20,6 +20,7 @@ from ._m2_spreading import M2SpreadingBlend
 from ._mixture_em import MixtureEMClassifier
 from ._proba import align_proba
 from ._registry import (
+    FAMILY_ORDER,
     MethodSpec,
     MethodUnavailable,
     default_methods,
@@ -31,6 +32,7 @@ from ._spec import stage_kind
 from ._supervised import LabeledGBT, LabeledKNN, LabeledLogReg, LabeledSVM
 
 __all__ = [
+    "FAMILY_ORDER",
     "CalibratedSelfTraining",
     "DensitySelfTrainingGBT",
     "FewLabelCalibratedClassifier",

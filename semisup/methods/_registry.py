@@ -26,6 +26,7 @@ from . import (  # noqa: F401
 from ._spec import MethodSpec, MethodUnavailable, default_rules, register, registered
 
 __all__ = [
+    "FAMILY_ORDER",
     "MethodSpec",
     "MethodUnavailable",
     "default_methods",
@@ -66,7 +67,10 @@ def default_methods(*, pool_size: int | None = None) -> list[str]:
         if name in table and (smallest == 0 or (pool_size is not None and pool_size >= smallest))
     ]
     # Baselines first, then by family (a stable order for reports, whatever the import order).
-    return sorted(names, key=lambda n: _FAMILY_ORDER.get(table[n].family, len(_FAMILY_ORDER)))
+    return sorted(names, key=lambda n: FAMILY_ORDER.get(table[n].family, len(FAMILY_ORDER)))
 
 
-_FAMILY_ORDER = {"supervised": 0, "classic-ssl": 1, "latent": 2, "generative": 3}
+#: Method families from the simplest to the most involved: labeled rows only, then methods
+#: that use the unlabeled rows without a model of them, then those on a fitted stage. The
+#: default set is listed in this order and the plan prefers the simpler of equal options.
+FAMILY_ORDER = {"supervised": 0, "classic-ssl": 1, "latent": 2, "generative": 3}

@@ -12,18 +12,15 @@ from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass
 
 import numpy as np
+import pandas as pd
 
 from ._bootstrap import CurveBand, probability_meets
 from ._costs import plan_cost
 
-__all__ = ["FAMILY_RANK", "Option", "best_effort", "budget_grid", "choose", "curve_options",
-           "simplicity"]
+__all__ = ["Option", "best_effort", "budget_grid", "choose", "curve_options", "simplicity"]
 
-#: How simple a method family is: labeled rows only first, then methods that use the
-#: unlabeled rows without a model of them, then those with a fitted stage (our order).
-FAMILY_RANK = {"supervised": 0, "classic-ssl": 1, "latent": 2, "generative": 3}
-
-Prefer = Callable[["Option"], tuple]
+#: Sort key of a method name: smaller is preferred among equal options.
+Prefer = Callable[[str], tuple]
 
 
 @dataclass(frozen=True)
@@ -100,21 +97,27 @@ def curve_options(
     return out
 
 
-def simplicity(families: Mapping[str, str], seconds: Mapping[str, float]) -> Prefer:
-    """Sort key of an option's simplicity: its method's family rank (:data:`FAMILY_RANK`;
-    unknown families last), then its median seconds per cell in the study (unknown last)."""
-    def key(o: Option) -> tuple:
-        rank = FAMILY_RANK.get(families.get(o.method, ""), len(FAMILY_RANK))
-        return (rank, float(seconds.get(o.method, np.inf)))
+def simplicity(families: Mapping[str, str], cells: pd.DataFrame) -> Prefer:
+    """Sort key of a method's simplicity: its family's place in the registry's
+    ``FAMILY_ORDER`` (unknown families last), then its median seconds per cell in ``cells``
+    (the study's cells; a method without them, or cells without ``seconds``, last)."""
+    from ..methods import FAMILY_ORDER
+
+    seconds = (cells.groupby("method")["seconds"].median().to_dict()
+               if "seconds" in cells.columns else {})
+
+    def key(method: str) -> tuple:
+        rank = FAMILY_ORDER.get(families.get(method, ""), len(FAMILY_ORDER))
+        return (rank, float(seconds.get(method, np.inf)))
     return key
 
 
-def _no_preference(o: Option) -> tuple:
+def _no_preference(method: str) -> tuple:
     return ()
 
 
 def _rank(o: Option, prefer: Prefer) -> tuple:
-    return (o.cost, o.n_labels, prefer(o), -o.probability, o.method, o.strategy)
+    return (o.cost, o.n_labels, prefer(o.method), -o.probability, o.method, o.strategy)
 
 
 def choose(options: Sequence[Option], confidence: float, *,
@@ -142,7 +145,7 @@ def best_effort(options: Sequence[Option], *, prefer: Prefer | None = None) -> O
     if not options:
         return None
     prefer = prefer or _no_preference
-    return min(options, key=lambda o: (-round(o.mean, 3), prefer(o), -o.probability, o.cost,
+    return min(options, key=lambda o: (-round(o.mean, 3), prefer(o.method), -o.probability, o.cost,
                                        o.n_labels, o.method, o.strategy))
 
 

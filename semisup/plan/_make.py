@@ -601,8 +601,7 @@ def build_plan(inputs: PlanInputs, request: PlanRequest, *,
     n_max = {f"{k[0]} ({k[1]})": int(mdl.levels[-1]) for k, mdl in fc.models.items()}
 
     families = method_families()
-    prefer = simplicity(families, cells.groupby("method")["seconds"].median().to_dict()
-                        if "seconds" in cells.columns else {})
+    prefer = simplicity(families, cells)
     chosen, runner_up = choose(fc.options, request.confidence, prefer=prefer)
     best = chosen if chosen is not None else best_effort(fc.options, prefer=prefer)
     options = order_options(fc.options, request.confidence)

@@ -48,8 +48,9 @@ def method_families() -> dict[str, str]:
 
 
 def paired_interval(a: np.ndarray, b: np.ndarray, level: float) -> tuple[float, float, float]:
-    """Mean of ``a - b`` over pairs and its two-sided t-interval at ``level``
-    (nan bounds with fewer than two pairs or no spread to speak of is a zero-width interval)."""
+    """Mean of ``a - b`` over the finite pairs and its two-sided t-interval at ``level``:
+    ``(mean, low, high)``. Fewer than two pairs give nan bounds (nan mean without pairs);
+    pairs that all differ alike give a zero-width interval."""
     d = np.asarray(a, dtype=float) - np.asarray(b, dtype=float)
     d = d[np.isfinite(d)]
     if d.size == 0:
