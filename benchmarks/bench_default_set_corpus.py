@@ -29,7 +29,6 @@ loses by > 0.01 on <= 10% of tasks at 20, 50 and 100 labels.
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from pathlib import Path
 
@@ -39,6 +38,7 @@ import pandas as pd
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "experiments" / "curves"))
+sys.path.insert(0, str(ROOT / "benchmarks"))
 
 RATIOS = (1, 2, 4)
 TARGETS = (20, 50, 100)
@@ -46,21 +46,12 @@ TOLERANCE = 0.01
 #: Float slack on the tolerance: users' accuracies are multiples of 1 / (evaluated rows), so
 #: a difference of exactly one row in a hundred must not count as "more than 0.01".
 SLACK = 1e-9
-#: The default set at 200 labeled rows before issue 23 (trees from 1,000 rows), for contrast.
-BEFORE = ("supervised-logreg", "supervised-svm", "label-spreading", "latent-spreading",
-          "latent-logreg", "latent-mixture-em")
-
-
-def chosen_on() -> set[str]:
-    """The tables ``bench_default_set.py`` measured (its raw result files)."""
-    names: set[str] = set()
-    for path in sorted((ROOT / "benchmarks" / "results").glob("default_set_*.json")):
-        names |= {t["table"] for t in json.loads(path.read_text())["tables"]}
-    return names
 
 
 def regret_rows(tasks: list[dict]) -> pd.DataFrame:
-    """One row per (table, user, ratio): best of the default set, best measured, old set."""
+    """One row per (table, user, ratio): best of the default set, best measured, the set
+    before issue 23 (``bench_default_set.BEFORE``)."""
+    from bench_default_set import BEFORE
     from corpus_io import truth_table
 
     from semisup.methods import default_methods
@@ -170,9 +161,10 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--corpus", type=Path, default=ROOT / "experiments/curves/corpus")
     args = parser.parse_args(argv)
+    from bench_default_set import chosen_tables
     from corpus_io import load_tasks
 
-    used = chosen_on()
+    used = chosen_tables()
     every = load_tasks(args.corpus)
     tasks = [t for t in every if t["task"]["name"] not in used]
     left = sorted(t["task"]["name"] for t in tasks)

@@ -144,16 +144,18 @@ def test_pseudo_labels_are_the_unlabeled_rows_predicted(study, tmp_path):
 
 def test_latent_plus_raw_logreg_is_logistic_regression_on_raw_and_latent(study, tmp_path):
     # Reference: scikit-learn's LogisticRegression (tuned C, max_iter=500) on the encoded
-    # labeled rows with the study's VAE latent means appended; the saved model predicts the
-    # same after loading.
+    # labeled rows with the study's VAE latent means appended (times LATENT_WEIGHT); the saved
+    # model predicts the same after loading.
     from sklearn.linear_model import LogisticRegression
+
+    from semisup.methods._keep_raw import LATENT_WEIGHT
 
     result = fit_model(study, method="latent-plus-raw-logreg")
     assert result.report["unsupervised_stage"] == "reused from the study's cache"
     frame, _ = wine_frame()
     X, rows, codes = _encoded(result.model, frame)
     latent = result.model.density.transform(X)
-    both = np.concatenate([X, latent], axis=1).astype(np.float64)
+    both = np.concatenate([X, LATENT_WEIGHT * latent], axis=1).astype(np.float64)
     ref = LogisticRegression(C=result.report["params"]["C"], max_iter=500).fit(both[rows], codes)
     np.testing.assert_allclose(result.model.predict_proba(frame), ref.predict_proba(both),
                                rtol=0, atol=1e-6)
