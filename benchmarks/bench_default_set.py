@@ -350,9 +350,13 @@ def main(argv=None) -> None:
         if (wanted and name not in wanted) or name in seen:
             continue
         print(f"{name} ...", flush=True)
-        with threadpool_limits(1):  # one thread per process, as the study's cells
-            done.append(run_table(task, rows=args.rows, repeats=args.repeats,
-                                  trials=args.trials, seed=args.seed, methods=methods))
+        try:
+            with threadpool_limits(1):  # one thread per process, as the study's cells
+                done.append(run_table(task, rows=args.rows, repeats=args.repeats,
+                                      trials=args.trials, seed=args.seed, methods=methods))
+        except Exception as exc:  # noqa: BLE001  (a table that cannot be read is skipped)
+            print(f"  skipped: {type(exc).__name__}: {str(exc)[:200]}", flush=True)
+            continue
         out.parent.mkdir(parents=True, exist_ok=True)
         tmp = out.with_suffix(".tmp")
         tmp.write_text(json.dumps({"settings": vars(args), "methods": methods,
