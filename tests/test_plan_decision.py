@@ -89,6 +89,18 @@ def test_decision_lines_order_ceiling_and_why_the_goal_moved():
     assert "1.000" not in " ".join(lines)
 
 
+def test_labels_owned_line_reads_the_budget_of_every_owned_label():
+    # A smaller free budget (88 of 200 owned) that forecasts a hair higher must not be
+    # offered as "what the labels you own give": the final model trains on all 200.
+    plan = _plan_dict()
+    own = plan["options"][1]
+    fewer = {**own, "method": "k", "n_labels": 88, "probability": 0.45,
+             "predicted": {"mean": 0.957, "low": 0.90, "high": 0.99}}
+    plan["options"] = [plan["options"][0], fewer, own]
+    lines = decision_lines(plan)
+    assert lines[1].startswith("With the labels you own: m (random selection) on 250 labels")
+
+
 def test_the_small_evaluation_warning_is_said_plainly():
     from semisup.plan import data_warnings
     from semisup.study import StudyRecord

@@ -98,11 +98,16 @@ def forecast_span(low: object, high: object) -> str:
 
 
 def owned_option(options: Sequence[Mapping]) -> Mapping | None:
-    """What the labels already owned give: of the options that buy nothing, the one most
-    likely to meet the target (then the highest predicted metric); None if there is none."""
+    """What the labels already owned give: of the options that buy nothing, at the largest
+    such budget (the final model trains on every label owned), the one most likely to meet
+    the target (then the highest predicted metric); None if there is none. A smaller free
+    budget that happens to forecast higher is the noise of its own cells, not advice to
+    train on fewer labels."""
     free = [o for o in options if isinstance(o, Mapping) and not o.get("n_new")]
     if not free:
         return None
+    top = max(as_number(o.get("n_labels")) or 0.0 for o in free)
+    free = [o for o in free if (as_number(o.get("n_labels")) or 0.0) == top]
     return max(free, key=lambda o: (as_number(o.get("probability")) or 0.0,
                                     as_number((o.get("predicted") or {}).get("mean")) or 0.0,
                                     -(as_number(o.get("n_labels")) or 0.0)))
