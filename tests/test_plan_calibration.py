@@ -158,6 +158,23 @@ def test_james_stein_matches_efron_and_morris_baseball_example():
     assert shrunk[-1] == pytest.approx(0.242, abs=0.001)
 
 
+def test_james_stein_floor_only_raises_the_between_method_variance():
+    # Efron & Morris (1975) batting averages again (values above): their own estimate of the
+    # between-player variance is kept when it exceeds the floor, and replaced by the floor
+    # when it does not (factor = floor / (floor + variance), the James-Stein form).
+    y = np.array([.400, .378, .356, .333, .311, .311, .289, .267, .244, .244, .222, .222,
+                  .222, .222, .222, .200, .178, .156])
+    p = y.mean()
+    var = np.full(y.size, p * (1 - p) / 45)
+    _, factor, tau2 = shrink_toward_mean(y, var)
+    _, same, _ = shrink_toward_mean(y, var, tau2_floor=tau2 / 2)
+    np.testing.assert_allclose(same, factor)
+    floor = 4 * tau2
+    _, raised, tau2_used = shrink_toward_mean(y, var, tau2_floor=floor)
+    assert tau2_used == floor
+    np.testing.assert_allclose(raised, floor / (floor + var))
+
+
 def test_james_stein_needs_four_methods():
     shrunk, factor, _ = shrink_toward_mean(np.array([0.8, 0.7, 0.9]), np.full(3, 0.01))
     np.testing.assert_allclose(shrunk, [0.8, 0.7, 0.9])

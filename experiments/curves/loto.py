@@ -71,11 +71,12 @@ def predict_power(c: Curve, eval_rows: float) -> Prediction:
     return Prediction.normal(mean, [s.last_se] * len(RATIOS), [Z90] * len(RATIOS))
 
 
-def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True) -> dict[str, Prediction]:
+def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True,
+                     tau2_floor: float = 0.0) -> dict[str, Prediction]:
     """The package's forecast of every method of one user study: the continuation, then the
     winner's-curse step of ``semisup.plan._pipeline._shrink`` (each method's level at the
     largest budget shrunk toward the methods' mean by the James-Stein factor of its own
-    noise; the shift moves its whole curve)."""
+    noise; the shift moves its whole curve). ``tau2_floor``: see ``shrink_toward_mean``."""
     u = np.log2(np.array(RATIOS))
     summ = {c.method: summary(c, us.user) for c in us.curves}
     cont = {m: continue_curve(s, prior, u) for m, s in summ.items()}
@@ -84,7 +85,8 @@ def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True) -> dict[str, 
         methods = sorted(summ)
         mu = np.array([cont[m][0][0] for m in methods])
         shrunk, _, _ = shrink_toward_mean(mu, np.array([summ[m].last_se ** 2
-                                                        for m in methods]))
+                                                        for m in methods]),
+                                          tau2_floor=tau2_floor)
         shifts = {m: float(shrunk[i] - mu[i]) for i, m in enumerate(methods)}
     return {m: Prediction.normal(np.clip(mean + shifts[m], 0, 1), sd, scale)
             for m, (mean, sd, scale) in cont.items()}

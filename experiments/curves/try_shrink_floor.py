@@ -4,7 +4,8 @@ The plan's James-Stein step (``semisup.plan._honest.shrink_toward_mean``) estima
 spread of the methods' true levels from the study alone; with noisy evaluation it falls to 0
 and every method's level is pulled onto their mean. Here the floor is learned from the
 corpus: per table, the truth's variance between methods at 1x less its noise; for each
-left-out table, ``mult`` times the mean over the other tables. Printed per ``mult``: the
+left-out table, ``mult`` times the mean over the other tables, passed to
+``loto.corpus_forecasts`` as ``tau2_floor``. Printed per ``mult``: the
 leave-one-table-out MAE and coverage at 1x / 2x / 4x and the plan decisions, as
 ``benchmarks/bench_forecast_corpus.py`` scores them (benchmarks/RESULTS.md, issue 18).
 
@@ -24,15 +25,12 @@ sys.path.insert(0, str(HERE))
 
 from corpus_io import load_tasks, user_studies  # noqa: E402
 from loto import (  # noqa: E402
-    RATIOS,
-    Prediction,
-    continue_curve,
+    corpus_forecasts,
     forecast_rows,
     forecast_table,
     loto_priors,
     plan_summary,
     predict_last,
-    summary,
 )
 
 MULTS = (0.0, 0.25, 0.5, 1.0)
@@ -50,30 +48,6 @@ def between_method_variance(studies) -> dict[str, float]:
     return {k: float(np.mean(v)) for k, v in per.items()}
 
 
-def shrink_with_floor(mu: np.ndarray, var: np.ndarray, floor: float) -> np.ndarray:
-    """``shrink_toward_mean``'s positive-part James-Stein step with ``tau2 >= floor``."""
-    grand = mu.mean()
-    s = float(np.sum((mu - grand) ** 2))
-    tau2 = max(0.0, s / (mu.size - 3) - float(var.mean())) if s > 0 else 0.0
-    tau2 = max(tau2, floor)
-    fac = tau2 / (tau2 + var) if tau2 > 0 else np.zeros_like(var)
-    return grand + fac * (mu - grand)
-
-
-def forecasts(us, prior, floor: float) -> dict:
-    u = np.log2(np.array(RATIOS))
-    summ = {c.method: summary(c, us.user) for c in us.curves}
-    cont = {m: continue_curve(s, prior, u) for m, s in summ.items()}
-    shifts = dict.fromkeys(summ, 0.0)
-    if len(summ) >= 4:
-        methods = sorted(summ)
-        mu = np.array([cont[m][0][0] for m in methods])
-        new = shrink_with_floor(mu, np.array([summ[m].last_se ** 2 for m in methods]), floor)
-        shifts = {m: float(new[i] - mu[i]) for i, m in enumerate(methods)}
-    return {m: Prediction.normal(np.clip(mean + shifts[m], 0, 1), sd, scale)
-            for m, (mean, sd, scale) in cont.items()}
-
-
 def main() -> int:
     studies = [us for t in load_tasks() for us in user_studies(t) if us.curves]
     spread = between_method_variance(studies)
@@ -87,7 +61,7 @@ def main() -> int:
             floor = mult * float(np.mean([v for k, v in spread.items() if k != us.task]))
             for c in us.curves:
                 preds["last"][(us.task, us.user, c.method)] = predict_last(c, us.user)
-            for m, p in forecasts(us, priors[us.task], floor).items():
+            for m, p in corpus_forecasts(us, priors[us.task], tau2_floor=floor).items():
                 preds["corpus"][(us.task, us.user, m)] = p
         t = forecast_table(forecast_rows(studies, preds), ["last", "corpus"])
         ps = plan_summary(studies, preds["corpus"])

@@ -28,12 +28,14 @@ from ._choose import Option
 __all__ = ["overlapping", "shrink_toward_mean"]
 
 
-def shrink_toward_mean(means: np.ndarray, variances: np.ndarray
+def shrink_toward_mean(means: np.ndarray, variances: np.ndarray, *, tau2_floor: float = 0.0
                        ) -> tuple[np.ndarray, np.ndarray, float]:
     """James-Stein shrinkage of ``means`` (one per method) toward their average.
 
     Returns ``(shrunk, factor, tau2)`` with ``factor`` = tau2 / (tau2 + variance) per method
-    (1 keeps the mean, 0 replaces it by the average).
+    (1 keeps the mean, 0 replaces it by the average). ``tau2_floor``: the smallest variance
+    of the methods' true levels to assume (0, the plan's choice: the study's own estimate
+    alone; experiments/curves/try_shrink_floor.py tries one learned from the corpus).
     """
     mu = np.asarray(means, dtype=float)
     var = np.asarray(variances, dtype=float)
@@ -43,6 +45,7 @@ def shrink_toward_mean(means: np.ndarray, variances: np.ndarray
     grand = float(mu.mean())
     s = float(np.sum((mu - grand) ** 2))
     tau2 = max(0.0, s / (k - 3) - float(var.mean())) if s > 0 else 0.0
+    tau2 = max(tau2, float(tau2_floor))
     denom = tau2 + var
     factor = np.where(denom > 0, tau2 / np.where(denom > 0, denom, 1.0), 1.0)
     return grand + factor * (mu - grand), factor, tau2
