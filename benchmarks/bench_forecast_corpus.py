@@ -13,7 +13,9 @@ measured budget, for every method of the user's study:
   level-only James-Stein shrinkage of the methods, as this code has it);
 - ``corpus``: the continuation learned from the OTHER tables of the corpus
   (``semisup.plan._continuation``: shift, gain on the measured slope, spread and interval
-  scale per ratio), fitted again for every left-out table.
+  scale per ratio), fitted again for every left-out table; its stated probabilities carry
+  the decision margin learned on the other tables' decisions (``loto.learn_margin``), and the
+  plan table repeats it without the margin (``corpus, no margin``).
 
 Printed per ratio and forecaster: mean absolute error, bias (predicted - truth), coverage of
 the 90% intervals and their median half-width; every table weighs the same (its curves are
@@ -56,6 +58,7 @@ from loto import (  # noqa: E402
     corpus_forecasts,
     forecast_rows,
     forecast_table,
+    loto_margins,
     loto_priors,
     plan_summary,
     predict_last,
@@ -91,12 +94,19 @@ def main() -> int:
         if not args.no_today:
             for m, p in today_forecasts(us, args.work).items():
                 preds["today"][(us.task, us.user, m)] = p
+    # the decision margin of each table, learned on the other tables' decisions
+    margins = loto_margins(studies, preds["corpus"])
+    preds["corpus, no margin"] = preds["corpus"]
+    preds["corpus"] = {k: p.with_margin(margins[k[0]]) for k, p in preds["corpus"].items()}
     used = [f for f in FORECASTERS if preds[f]]
-    table = forecast_table(forecast_rows(studies, preds), used)
+    table = forecast_table(forecast_rows(studies, {f: preds[f] for f in used}), used)
     n_curves = sum(len(us.curves) for us in studies)
+    values, counts = np.unique(list(margins.values()), return_counts=True)
     print(f"corpus: {len(names)} tables, {len(studies)} user studies, {n_curves} curves; "
           "every number leaves the table out of what it is judged on; each table weighs the "
           "same")
+    print("decision margins learned leaving each table out: " + ", ".join(
+        f"{v:g} ({c} tables)" for v, c in zip(values, counts, strict=True)))
     print()
     print("| ratio | forecaster | MAE | bias | coverage 90% | median half-width | MAE / last |")
     print("|---:|---|---:|---:|---:|---:|---:|")
@@ -106,16 +116,20 @@ def main() -> int:
                 x = table[(f, r)]
                 print(f"| {r:g}x | {f} | {x['mae']:.4f} | {x['bias']:+.4f} | "
                       f"{x['coverage']:.2f} | {x['half']:.3f} | {x['rel_last']:.2f} |")
-    print()
-    print("| forecaster | decisions | buy decisions | reached target | chosen/cheapest "
-          "(median) | buy for unreachable | do-not-buy for reachable |")
-    print("|---|---:|---:|---:|---:|---:|---:|")
-    plans = {}
-    for f in used:
-        x = plans[f] = plan_summary(studies, preds[f])
-        print(f"| {f} | {x['decisions']} | {x['buys']} | {x['hit']:.2f} | "
-              f"{x['budget_ratio']:.2f} | {x['buy_unreachable']:.2f} of {x['n_unreachable']} "
-              f"| {x['no_buy_reachable']:.2f} of {x['n_reachable']} |")
+    plans, resolved = {}, {}
+    for title, resolve, out in (("all targets", 0.0, plans),
+                                ("targets the truth resolves: the step that makes a 'buy' "
+                                 "target reachable first exceeds one standard error of the "
+                                 "truths' own noise", 1.0, resolved)):
+        print(f"\nplans, {title}:\n")
+        print("| forecaster | decisions | buy decisions | reached target | chosen/cheapest "
+              "(median) | buy for unreachable | do-not-buy for reachable |")
+        print("|---|---:|---:|---:|---:|---:|---:|")
+        for f in [*used, "corpus, no margin"]:
+            x = out[f] = plan_summary(studies, preds[f], resolve)
+            print(f"| {f} | {x['decisions']} | {x['buys']} | {x['hit']:.2f} | "
+                  f"{x['budget_ratio']:.2f} | {x['buy_unreachable']:.2f} of "
+                  f"{x['n_unreachable']} | {x['no_buy_reachable']:.2f} of {x['n_reachable']} |")
     g = GOALS
     c2, c4 = table.get(("corpus", 2.0), {}), table.get(("corpus", 4.0), {})
     covs = [table[("corpus", r)]["coverage"] for r in RATIOS if ("corpus", r) in table]
@@ -134,7 +148,9 @@ def main() -> int:
     print(f"\n{time.perf_counter() - t0:.0f} s")
     if args.json:
         args.json.write_text(json.dumps({"tables": names, "forecast": {
-            f"{f}@{r:g}": v for (f, r), v in table.items()}, "plans": plans}, indent=1))
+            f"{f}@{r:g}": v for (f, r), v in table.items()}, "plans": plans,
+            "plans_resolved": resolved,
+            "margins": margins}, indent=1))
     return 0
 
 

@@ -17,6 +17,7 @@ import argparse
 import json
 import os
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
@@ -26,21 +27,27 @@ sys.path.insert(0, str(HERE))
 
 from corpus_io import CORPUS, load_tasks, user_studies  # noqa: E402
 from loto import (  # noqa: E402
+    CONFIDENCE,
     RATIOS,
     all_fit,
     corpus_forecasts,
     forecast_rows,
     forecast_table,
+    learn_margin,
     loto_priors,
+    margin_rows,
     predict_last,
+    rows_summary,
 )
 
 OUT = ROOT / "semisup" / "plan" / "continuation.json"
 METRICS = ("accuracy", "balanced_accuracy", "macro_f1")
 
 
-def track_record(studies) -> dict:
-    """Leave-one-table-out numbers of the corpus forecast and the last-value baseline."""
+def track_record(studies) -> tuple[dict, float, dict]:
+    """Leave-one-table-out numbers of the corpus forecast and the last-value baseline; the
+    decision margin learned on every table's leave-one-table-out decisions (what the shipped
+    prior carries); and the decisions made with each table's margin learned without it."""
     priors = loto_priors(studies)
     preds: dict[str, dict] = {"last": {}, "corpus": {}}
     for us in studies:
@@ -57,7 +64,13 @@ def track_record(studies) -> dict:
             out[f"{r:g}"] = {"mae": round(c["mae"], 4), "mae_last": round(b["mae"], 4),
                              "bias": round(c["bias"], 4), "coverage": round(c["coverage"], 3),
                              "half_width": round(c["half"], 4), "n": c["n"]}
-    return out
+    by_margin = margin_rows(studies, preds["corpus"])
+    tasks = sorted({us.task for us in studies})
+    chosen = [x for t in tasks
+              for x in by_margin[learn_margin(by_margin, leave_out=t)] if x["task"] == t]
+    s = rows_summary(chosen)
+    decisions = {"buys": s["buys"], "hit": round(s["hit"], 3), "confidence": CONFIDENCE}
+    return out, learn_margin(by_margin), decisions
 
 
 def main() -> int:
@@ -70,8 +83,10 @@ def main() -> int:
     result = {"format": 1, "corpus": {"tables": names, "n_tables": len(names)}, "metrics": {}}
     for metric in METRICS:
         studies = [us for t in tasks for us in user_studies(t, metric) if us.curves]
-        prior = all_fit(studies, track=track_record(studies),
-                        source=f"experiments/curves corpus, {len(names)} tables")
+        track, margin, decisions = track_record(studies)
+        prior = replace(all_fit(studies, track=track,
+                                source=f"experiments/curves corpus, {len(names)} tables"),
+                        decision_margin=margin, decisions=decisions)
         result["metrics"][metric] = prior.to_dict()
         print(f"{metric}: " + ", ".join(
             f"{2 ** u:g}x shift {a:+.4f} gain {g:.3f} power gain {pg:.2f} level gain "
@@ -83,6 +98,8 @@ def main() -> int:
             print(f"  left-one-table-out at {r}x: MAE {v['mae']:.4f} (last value "
                   f"{v['mae_last']:.4f}), coverage {v['coverage']:.2f}, half-width "
                   f"{v['half_width']:.3f}")
+        print(f"  decision margin {margin:g}; with each table's margin learned without it, "
+              f"{decisions['hit']:.2f} of {decisions['buys']} buys reached the target")
     if not args.check:
         tmp = OUT.with_name(f".{OUT.name}.tmp")
         tmp.write_text(json.dumps(result, indent=1) + "\n")

@@ -17,7 +17,12 @@ import numpy as np
 from corpus_io import Curve, UserStudy
 from scipy.stats import norm
 
-from semisup.plan._continuation import continue_curve, fit_prior, summarize_curve
+from semisup.plan._continuation import (
+    continue_curve,
+    decision_discount,
+    fit_prior,
+    summarize_curve,
+)
 from semisup.plan._honest import shrink_toward_mean
 
 RATIOS = (1.0, 1.5, 2.0, 3.0, 4.0)
@@ -26,6 +31,8 @@ CONFIDENCE = 0.8
 INTERVAL = 0.9
 Z90 = norm.ppf(0.5 + INTERVAL / 2)
 FORECASTERS = ("last", "power", "today", "corpus")
+#: Decision margins tried when learning one (standard deviations of the forecast; our grid).
+MARGINS = tuple(round(0.05 * i, 2) for i in range(21))
 GOALS = {"mae_2x": 0.8, "mae_4x": 0.7, "cover": (0.85, 0.95), "half_2x": 0.05,
          "hit": (0.75, 0.9), "budget_ratio": 1.3, "buy_unreachable": 0.05}
 
@@ -34,19 +41,30 @@ GOALS = {"mae_2x": 0.8, "mae_4x": 0.7, "cover": (0.85, 0.95), "half_2x": 0.05,
 class Prediction:
     """Mean, interval and probability of meeting a target at each ratio of one curve."""
 
-    def __init__(self, mean, low, high, prob_fn):
+    def __init__(self, mean, low, high, prob_fn, normal=None):
         self.mean, self.low, self.high = (np.asarray(v, float) for v in (mean, low, high))
         self.prob = prob_fn          # (ratio index, target) -> probability
+        self._normal = normal        # (mean, sd, scale) of a normal forecast, else None
 
     @classmethod
-    def normal(cls, mean, sd, scale):
+    def normal(cls, mean, sd, scale, margin: float = 0.0):
+        """The normal whose 90% interval is ``mean +- scale * sd``; its probability of
+        meeting a target is lowered by ``margin`` standard deviations, as the plan's is by
+        the prior's decision margin (``decision_discount``)."""
         mean, sd, scale = (np.asarray(v, float) for v in (mean, sd, scale))
         half = scale * sd
-        eff = sd * scale / Z90       # the normal whose 90% interval is +-scale*sd
+        eff = sd * scale / Z90
+        loc = mean - decision_discount(sd, scale, margin)
 
         def prob(i, t):
-            return float(norm.sf(t, loc=mean[i], scale=max(eff[i], 1e-6)))
-        return cls(mean, mean - half, mean + half, prob)
+            return float(norm.sf(t, loc=loc[i], scale=max(eff[i], 1e-6)))
+        return cls(mean, mean - half, mean + half, prob, normal=(mean, sd, scale))
+
+    def with_margin(self, margin: float) -> Prediction:
+        """The same forecast with the decision margin ``margin`` (normal forecasts only)."""
+        if self._normal is None:
+            raise ValueError("only a normal forecast takes a decision margin")
+        return Prediction.normal(*self._normal, margin=margin)
 
 
 def summary(c: Curve, eval_rows: float):
@@ -88,7 +106,8 @@ def corpus_forecasts(us: UserStudy, prior, *, shrink: bool = True,
                                                         for m in methods]),
                                           tau2_floor=tau2_floor)
         shifts = {m: float(shrunk[i] - mu[i]) for i, m in enumerate(methods)}
-    return {m: Prediction.normal(np.clip(mean + shifts[m], 0, 1), sd, scale)
+    return {m: Prediction.normal(np.clip(mean + shifts[m], 0, 1), sd, scale,
+                                 margin=prior.decision_margin)
             for m, (mean, sd, scale) in cont.items()}
 
 
@@ -161,23 +180,30 @@ def task_mean(rows, f) -> float:
     return float(np.mean([np.mean(v) for v in by.values()])) if by else float("nan")
 
 
-def targets_for(us: UserStudy) -> list[tuple[str, float, float | None]]:
-    """(kind, target, truly cheapest ratio or None) from the truth of the best method."""
-    best = {}
+def targets_for(us: UserStudy, resolve: float = 0.0) -> list[tuple[str, float, float | None]]:
+    """(kind, target, truly cheapest ratio or None) from the truth of the best method.
+
+    ``resolve`` > 0 keeps a "buy" target only where the truth's step that makes it reachable
+    first at that ratio exceeds ``resolve`` times the step's standard error (the truths' own
+    evaluation noise): a step within that noise does not show which budget is truly the
+    cheapest, and whether a plan "reached" such a target is a coin flip of the yardstick."""
+    best, best_se = {}, {}
     for r in RATIOS:
-        vals = [c.truth[r][0] for c in us.curves if r in c.truth]
+        vals = [c.truth[r] for c in us.curves if r in c.truth]
         if len(vals) == len(us.curves) and vals:
-            best[r] = max(vals)
+            best[r], best_se[r] = max(vals)
     if 1.0 not in best:
         return []
     out = [("owned", best[1.0] - 0.01, 1.0)]
-    prev = best[1.0]
+    prev, prev_se = best[1.0], best_se[1.0]
     for r in (1.5, 2.0, 3.0):
         if r not in best:
             break
-        if best[r] - prev >= 0.004:
+        step = best[r] - prev
+        if step >= max(0.004, resolve * float(np.hypot(best_se[r], prev_se))):
             out.append(("buy", (best[r] + prev) / 2, r))
-        prev = max(prev, best[r])
+        if best[r] > prev:
+            prev, prev_se = best[r], best_se[r]
     top = max(best.values())
     if max(best) >= 4.0:
         out.append(("unreachable", top + 0.01, None))
@@ -210,11 +236,11 @@ def decide(us: UserStudy, preds: dict, target: float):
     return None if best is None else (best[1], best[2])
 
 
-def plan_rows(studies: list[UserStudy], preds: dict) -> list[dict]:
+def plan_rows(studies: list[UserStudy], preds: dict, resolve: float = 0.0) -> list[dict]:
     rows = []
     for us in studies:
         n_max = max(c.n_max for c in us.curves)
-        for kind, t, cheapest in targets_for(us):
+        for kind, t, cheapest in targets_for(us, resolve):
             d = decide(us, preds, t)
             buy = d is not None and d[0] * n_max > us.user
             hit = None
@@ -275,11 +301,16 @@ def forecast_table(rows: list[dict], forecasters) -> dict:
     return out
 
 
-def plan_summary(studies: list[UserStudy], preds: dict) -> dict:
+def plan_summary(studies: list[UserStudy], preds: dict, resolve: float = 0.0) -> dict:
     """Decisions at the truth's targets: hits of buy decisions, chosen / cheapest budget,
-    buy for unreachable targets, do-not-buy for targets that need a purchase."""
-    pr = plan_rows(studies, preds)
-    buys = [x for x in pr if x["buy"] and x["hit"] is not None and x["kind"] != "unreachable"]
+    buy for unreachable targets, do-not-buy for targets that need a purchase
+    (``resolve``: see ``targets_for``)."""
+    return rows_summary(plan_rows(studies, preds, resolve))
+
+
+def rows_summary(pr: list[dict]) -> dict:
+    """``plan_summary`` of decisions already made."""
+    buys = buy_rows(pr)
     ratio = [x["chosen"] / x["cheapest"] for x in pr
              if x["kind"] in ("buy", "owned") and x["chosen"] is not None]
     unre = [x for x in pr if x["kind"] == "unreachable"]
@@ -292,3 +323,36 @@ def plan_summary(studies: list[UserStudy], preds: dict) -> dict:
             "no_buy_reachable": float(np.mean([x["chosen"] is None or not x["buy"]
                                                for x in reach])) if reach else float("nan"),
             "n_reachable": len(reach)}
+
+
+# ----------------------------------------------------------------- the decision margin
+def buy_rows(rows: list[dict]) -> list[dict]:
+    """The "buy" decisions of ``plan_rows`` whose hit is known (reachable targets only)."""
+    return [x for x in rows if x["buy"] and x["hit"] is not None and x["kind"] != "unreachable"]
+
+
+def margin_rows(studies: list[UserStudy], preds: dict) -> dict[float, list[dict]]:
+    """``plan_rows`` of every table at every margin of ``MARGINS`` (``preds``: normal
+    forecasts, without a margin)."""
+    return {m: plan_rows(studies, {k: p.with_margin(m) for k, p in preds.items()})
+            for m in MARGINS}
+
+
+def learn_margin(by_margin: dict[float, list[dict]], *, leave_out: str | None = None,
+                 confidence: float = CONFIDENCE) -> float:
+    """The smallest margin whose "buy" decisions (pooled over the tables other than
+    ``leave_out``) reached their targets at least ``confidence`` of the time; the largest
+    margin tried when none does."""
+    for m in sorted(by_margin):
+        hits = [x["hit"] for x in buy_rows(by_margin[m]) if x["task"] != leave_out]
+        if hits and float(np.mean(hits)) >= confidence:
+            return float(m)
+    return float(max(by_margin))
+
+
+def loto_margins(studies: list[UserStudy], preds: dict) -> dict[str, float]:
+    """Per table: the decision margin learned on every OTHER table's decisions. ``preds``
+    are the leave-one-table-out forecasts without a margin (the other tables' forecasts came
+    from priors fitted with this table among theirs: a second-order leak, as in stacking)."""
+    by = margin_rows(studies, preds)
+    return {t: learn_margin(by, leave_out=t) for t in sorted({us.task for us in studies})}

@@ -68,13 +68,18 @@ def curve_options(
     labels_owned: int,
     cost_per_round: float,
     show: Iterable[float] = (),
+    discount: np.ndarray | None = None,
 ) -> list[Option]:
     """Options of one curve: the budgets in ``show`` plus the cheapest one that meets the
     target with probability >= ``confidence`` (if any grid budget does).
 
     ``band`` holds error rates; the target is on the metric scale (metric = 1 - error).
+    ``discount`` (per grid budget, metric scale) is subtracted from the samples before the
+    share that meets the target is counted: the continuation prior's decision margin.
     """
     metric_samples = 1.0 - band.samples
+    if discount is not None:
+        metric_samples = metric_samples - np.asarray(discount, dtype=float)
     prob = probability_meets(metric_samples, target)
     show_set = {int(round(v)) for v in show}
     first_ok = next((i for i, p in enumerate(prob) if p >= confidence), None)

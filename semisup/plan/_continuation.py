@@ -46,6 +46,7 @@ __all__ = [
     "ContinuationPrior",
     "continue_curve",
     "fit_prior",
+    "decision_discount",
     "load_prior",
     "summarize_curve",
     "track_sentence",
@@ -59,6 +60,8 @@ SLOPE_POINTS = 3
 #: Smallest standard error of a measured mean, as a fraction of a binomial one on 50 rows:
 #: keeps a curve whose repeats agree by chance from getting a zero-width interval.
 MIN_SE = 0.004
+#: The normal quantile of a two-sided 90% interval (the prior's ``scale`` is set for it).
+Z90 = 1.6448536269514722
 
 
 @dataclass(frozen=True)
@@ -173,6 +176,18 @@ class ContinuationPrior:
     source: str = ""
     power_gain: tuple[float, ...] = ()
     level_gain: tuple[float, ...] = ()
+    #: The margin, in standard deviations of the forecast, that a plan's stated probability
+    #: of meeting a target beyond the largest measured budget is lowered by: learned from the
+    #: corpus's decisions so that "buy" decisions stated at the plan's confidence reached
+    #: their targets that often (``experiments/curves/loto.py``, ``learn_margin``). Choosing
+    #: the cheapest of many (method, budget) options that clears the confidence picks the
+    #: ones whose forecast erred upward; each forecast alone is calibrated, the chosen one is
+    #: not (the winner's curse of the choice). 0 for a prior written before the margin.
+    decision_margin: float = 0.0
+    #: What the corpus measured of the decisions, each table's margin learned without it:
+    #: ``buys`` ("buy" decisions at reachable targets), ``hit`` (the share that reached the
+    #: target), ``confidence`` (the confidence they were made at). Empty when not measured.
+    decisions: Mapping[str, float] = field(default_factory=dict)
 
     def at(self, u: float) -> tuple[float, ...]:
         """(shift, gain, spread, scale, power_gain, level_gain) at ``u``, linear between the
@@ -198,10 +213,16 @@ class ContinuationPrior:
             extra[k] = tuple(float(x) for x in d.get(k) or ())
             if extra[k] and len(extra[k]) != len(d["u"]):
                 raise ValueError(f"a continuation prior's {k} must be as long as u")
+        margin = float(d.get("decision_margin", 0.0) or 0.0)
+        if not np.isfinite(margin) or margin < 0:
+            raise ValueError(f"a continuation prior's decision_margin must be a number >= 0, "
+                             f"got {d.get('decision_margin')!r}")
         return cls(**{k: tuple(float(x) for x in d[k]) for k in keys},
                    n_tasks=int(d["n_tasks"]), n_curves=int(d["n_curves"]),
                    track={str(k): dict(v) for k, v in dict(d.get("track", {})).items()},
-                   source=str(d.get("source", "")), **extra)
+                   source=str(d.get("source", "")), decision_margin=margin,
+                   decisions={str(k): float(v) for k, v in dict(d.get("decisions") or {}).items()},
+                   **extra)
 
 
 def continue_curve(summary: CurveSummary, prior: ContinuationPrior,
@@ -218,6 +239,15 @@ def continue_curve(summary: CurveSummary, prior: ContinuationPrior,
             + lgain * summary.level_gap)
     sd = np.sqrt(spread ** 2 + summary.last_se ** 2 + (gain * summary.slope_se) ** 2)
     return np.clip(mean, 0.0, 1.0), sd, scale
+
+
+def decision_discount(sd: np.ndarray, scale: np.ndarray, margin: float) -> np.ndarray:
+    """What to subtract from a continued forecast's samples (metric scale) before counting
+    the share that meets a target, so that the stated probability is ``Phi(z - margin)``
+    where the forecast alone gives ``Phi(z)``: ``margin`` times the standard deviation of the
+    normal whose 90% interval is ``+- scale * sd``."""
+    eff = np.asarray(sd, dtype=float) * np.asarray(scale, dtype=float) / Z90
+    return float(margin) * eff
 
 
 def _wls(X: np.ndarray, y: np.ndarray, w: np.ndarray, ridge: np.ndarray) -> np.ndarray:
@@ -310,8 +340,14 @@ def track_sentence(prior: ContinuationPrior, ratio: float) -> str:
     t = prior.track[r]
     where = ("at the largest budget measured" if float(r) == 1.0
              else f"at {float(r):g} times the largest budget measured")
-    return (f"How such forecasts held up: on {prior.n_tasks} real tables, each left out of "
+    text = (f"How such forecasts held up: on {prior.n_tasks} real tables, each left out of "
             f"the fit it was judged by, forecasts like this one {where} were off by "
             f"{t['mae']:.3f} on "
             f"average (assuming the curve stays flat: {t['mae_last']:.3f}), and their 90% "
             f"intervals held the truth {t['coverage']:.0%} of the time.")
+    d = prior.decisions
+    if d.get("buys") and np.isfinite(d.get("hit", np.nan)):
+        text += (f" There, {d['hit']:.0%} of {int(d['buys'])} decisions to buy labels, each "
+                 f"stated with at least {d.get('confidence', 0.8):.0%} probability, reached "
+                 "their target.")
+    return text

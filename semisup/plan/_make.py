@@ -437,6 +437,10 @@ def _evidence(fc: Forecasts, record: StudyRecord, eval_rows: float | None, rival
         continuation = {
             "tables": fc.prior.n_tasks, "curves": fc.prior.n_curves, "source": fc.prior.source,
             "track": dict(fc.prior.track),
+            # the stated probability beyond the largest measured budget is Phi(z - margin)
+            # where the forecast alone gives Phi(z); learned from the corpus's decisions
+            "decision_margin": fc.prior.decision_margin,
+            "decisions": dict(fc.prior.decisions),
             "curves_continued": {f"{m} ({s})": v for (m, s, met), v in fc.continued.items()
                                  if met == fc.metric},
         }

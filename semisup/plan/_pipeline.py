@@ -35,17 +35,20 @@ from .._seeding import derive_seed
 from ._bootstrap import CurveBand, band_from_samples, small_sample_factor
 from ._calibrate import Calibration, calibrate, calibrated_samples, ratio_table
 from ._choose import Option, budget_grid, curve_options
-from ._continuation import ContinuationPrior, continue_curve, load_prior, summarize_curve
+from ._continuation import (
+    Z90,
+    ContinuationPrior,
+    continue_curve,
+    decision_discount,
+    load_prior,
+    summarize_curve,
+)
 from ._curves import MAX_EXTRAPOLATION
 from ._ensemble import combine, ensemble_records, pool_errors
 from ._forecast import CurveModel, forecast_band, prepare_curve, weigh_curve
 from ._honest import shrink_toward_mean
 
 __all__ = ["SHOW_MULTIPLES", "Forecasts", "forecast_all"]
-
-#: The normal quantile of a two-sided 90% interval: the continuation prior's ``scale`` is set
-#: for that coverage.
-_Z90 = float(norm.ppf(0.95))
 
 #: Multiples of the largest measured budget every curve lists as options.
 SHOW_MULTIPLES = (1.5, 2, 3, 4)
@@ -72,6 +75,9 @@ class Forecasts:
     prior: ContinuationPrior | None = None
     #: the plan's metric
     metric: str = ""
+    #: per (method, strategy) of the plan's metric: what the stated probability of each grid
+    #: budget subtracts from the samples (the prior's decision margin; 0 where measured)
+    discounts: dict[tuple[str, str], np.ndarray] = field(default_factory=dict)
 
 
 def _grid(levels: np.ndarray, extra: Iterable[float]) -> tuple[np.ndarray, np.ndarray]:
@@ -118,18 +124,20 @@ def _last_backtest(model: CurveModel, cal: Calibration, interval: float, seed: i
 
 def _continue(band: CurveBand, own_var: np.ndarray, n: np.ndarray, metric: np.ndarray,
               prior: ContinuationPrior, *, model: CurveModel, eval_rows: float | None,
-              seed: int) -> tuple[CurveBand, np.ndarray, dict]:
+              seed: int) -> tuple[CurveBand, np.ndarray, dict, np.ndarray]:
     """Replace the band from the largest measured budget on by the corpus's continuation
     (``_continuation``): its mean, and samples from one normal draw per resample scaled so
     that the interval is the prior's (``scale * sd`` either side). ``own_var`` there becomes
-    the measurement noise of the curve's level, what the winner's-curse step shrinks by."""
+    the measurement noise of the curve's level, what the winner's-curse step shrinks by.
+    Last: per grid budget, what the stated probability of meeting a target subtracts from
+    the samples (``decision_discount``; 0 below the largest measured budget)."""
     # the curve model fitted the power law to these cells already
     summary = summarize_curve(n, metric, eval_rows=eval_rows,
                               power_fit=model.fits.get("power_law"))
     beyond = band.grid >= summary.n_max * (1 - 1e-9)
     u = np.log2(band.grid[beyond] / summary.n_max)
     mean, sd, scale = continue_curve(summary, prior, u)
-    eff = sd * scale / _Z90
+    eff = sd * scale / Z90
     # one normal draw per resample, taken at the normal's quantiles (i + 0.5) / B in a seeded
     # order: the samples' share above a target is then the normal probability itself, without
     # the Monte Carlo noise of B random draws (about 0.05 at B = 100)
@@ -152,10 +160,12 @@ def _continue(band: CurveBand, own_var: np.ndarray, n: np.ndarray, metric: np.nd
     samples[:, beyond] = 1.0 - (mean + eff * z)
     own = own_var.copy()
     own[beyond] = summary.last_se ** 2
+    discount = np.zeros(band.grid.size)
+    discount[beyond] = decision_discount(sd, scale, prior.decision_margin)
     info = {"last": summary.last, "last_se": summary.last_se, "slope": summary.slope,
             "slope_se": summary.slope_se}
     return (band_from_samples(band.fit, band.grid, point, samples, band.interval,
-                              band.n_failed), own, info)
+                              band.n_failed), own, info, discount)
 
 
 def _shrink(bands: dict, own_var: dict, keys: list[tuple[str, str]], metric: str,
@@ -257,6 +267,7 @@ def forecast_all(
 
     bands: dict[tuple[str, str, str], CurveBand] = {}
     own_var: dict[tuple[str, str], np.ndarray] = {}
+    discounts: dict[tuple[str, str], np.ndarray] = {}
     displays: dict[tuple[str, str, str], np.ndarray] = {}
     for k, m in models.items():
         grid, display = _grid(m.levels, [labels_owned])
@@ -268,7 +279,7 @@ def forecast_all(
         p = prior_of(metric)
         if p is not None:
             sub = groups[k][groups[k][metric].notna()]
-            band, var, continued[(*k, metric)] = _continue(
+            band, var, continued[(*k, metric)], discounts[k] = _continue(
                 band, var, sub["n_labels"].to_numpy(float), sub[metric].to_numpy(float), p,
                 model=m, eval_rows=level_rows,
                 seed=derive_seed(seed, "plan", "continuation", k[0], k[1], metric))
@@ -297,7 +308,7 @@ def forecast_all(
                                     eval_floor_rows=eval_floor_rows)
             p = prior_of(other)
             if p is not None:
-                band, _, continued[(*k, other)] = _continue(
+                band, _, continued[(*k, other)], _ = _continue(
                     band, np.var(band.samples, axis=0), sub["n_labels"].to_numpy(float),
                     sub[other].to_numpy(float), p, model=om, eval_rows=level_rows,
                     seed=derive_seed(seed, "plan", "continuation", k[0], k[1], other))
@@ -314,7 +325,7 @@ def forecast_all(
         if levels[0] <= labels_owned <= MAX_EXTRAPOLATION * levels[-1]:
             show.append(labels_owned)
         options.extend(curve_options(band, method=k[0], strategy=k[1], show=show,
-                                     **option_args))
+                                     discount=discounts.get(k), **option_args))
         bt = _last_backtest(m, cal, interval,
                             derive_seed(seed, "plan", "last-backtest", k[0], k[1]))
         backtest.append({"method": k[0], "strategy": k[1], **bt})
@@ -335,4 +346,5 @@ def forecast_all(
         warnings.append(f"intervals are not calibrated: {cal.reason}")
     return Forecasts(bands, models, cal, options, records,
                      ratio_table(raw_records, cal, interval), curve_models, backtest,
-                     displays, factors, warnings, continued, prior_of(metric), metric)
+                     displays, factors, warnings, continued, prior_of(metric), metric,
+                     discounts)

@@ -83,6 +83,12 @@ def evidence_section(plan: Mapping | None, study: Mapping | None = None,
     selection = plan.get("selection") or {}
     if selection.get("winners_curse"):
         s.para("Against the winner's curse: " + str(selection["winners_curse"]) + ".", "note")
+    margin = (plan.get("continuation") or {}).get("decision_margin")
+    if margin:
+        s.para(f"Against the winner's curse of the choice: the stated probability of a budget "
+               f"beyond the largest measured one is lowered by {float(margin):g} standard "
+               "deviations of its forecast, the margin at which the corpus's decisions to buy "
+               "labels reached their targets as often as stated.", "note")
     note = selection.get("note")
     s.para(f"Overlap: {note}." if note else
            "Overlap: no other option's interval overlaps the chosen one at its budget.")
