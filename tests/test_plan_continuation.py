@@ -296,3 +296,23 @@ def test_learn_margin_leaves_the_table_out():
     assert learn_margin(by, leave_out="c") == 0.1      # a, b, d all hit at 0.1
     assert learn_margin(by, leave_out="a") == 0.2      # 2 of 3 at 0.1 is below 0.8
     assert learn_margin({0.0: [row("a", False)], 0.5: [row("a", False)]}) == 0.5
+
+
+def test_targets_the_truth_resolves():
+    # a "buy" target is kept with resolve=1 only where the truth's step exceeds one standard
+    # error of the two truths (experiments/curves/loto.py; a rule of ours)
+    import sys
+
+    sys.path.insert(0, str(ROOT / "experiments" / "curves"))
+    from corpus_io import Curve, UserStudy
+    from loto import targets_for
+
+    truth = {1.0: (0.80, 0.01), 1.5: (0.81, 0.01), 2.0: (0.85, 0.01), 3.0: (0.86, 0.01),
+             4.0: (0.86, 0.01)}
+    c = Curve("t", 200, "m", np.array([100.0]), np.array([0.8]), 160, truth)
+    us = UserStudy("t", 200, 2, pd.DataFrame(), [c])
+    kinds = [(k, round(t, 3), r) for k, t, r in targets_for(us)]
+    assert kinds == [("owned", 0.79, 1.0), ("buy", 0.805, 1.5), ("buy", 0.83, 2.0),
+                     ("buy", 0.855, 3.0), ("unreachable", 0.87, None)]
+    # steps of 0.01 and 0.01 are within hypot(0.01, 0.01) = 0.014; 0.04 is not
+    assert [r for k, _, r in targets_for(us, resolve=1.0) if k == "buy"] == [2.0]
